@@ -1,0 +1,3 @@
+//! Sinks that receive waveforms as they are produced.
+
+pub mod hdf5;
