@@ -1,0 +1,86 @@
+//! Events are data: functions of the state and time whose sign change the stepper
+//! locates, and the reasons a step or an advance stops.
+
+use crate::circuit::ElementId;
+
+/// Which way a crossing must go to count.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Direction {
+    /// From below to above zero.
+    Rising,
+    /// From above to below zero.
+    Falling,
+}
+
+/// g(t) = signal(z) + offset + rate·(t − t_ref), watched for a zero crossing in
+/// `direction`. `signal` indexes [`crate::Observation::event_signals`]. The time term
+/// lets a comparator be set against a linear ramp without a state for the ramp.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct EventFn {
+    /// Index into the run's event signals.
+    pub signal: usize,
+    /// Constant added to the signal.
+    pub offset: f64,
+    /// Added per second after `t_ref`.
+    pub rate: f64,
+    /// Reference time of the rate term, seconds.
+    pub t_ref: f64,
+    /// Crossing direction.
+    pub direction: Direction,
+}
+
+/// Handle of an armed event; also its bit in [`StepOutcome::Event`] masks.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+pub struct EventSlot(pub u8);
+
+/// Most events armed at once (one bit each in a mask).
+pub const MAX_ARMED: usize = 64;
+
+/// Why one internal step stopped.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum StepOutcome {
+    /// A step of the grid, nothing happened.
+    Internal,
+    /// Events fired at `time`: diodes changed state and/or armed events crossed.
+    Event {
+        /// Seconds.
+        time: f64,
+        /// Bit k set when armed slot k crossed.
+        armed: u64,
+        /// First diode that changed state, if any.
+        diode: Option<ElementId>,
+    },
+    /// The requested stop time was reached.
+    StopTime,
+}
+
+/// Why [`crate::Simulation::advance`] returned.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum Stop {
+    /// The requested time was reached.
+    Reached,
+    /// Armed events crossed at `time` (bit k for slot k).
+    Armed {
+        /// Seconds.
+        time: f64,
+        /// Bit k set when slot k crossed.
+        mask: u64,
+    },
+}
+
+/// Receives samples as a run goes. Probe values come in the order the run's
+/// [`crate::Observation::probes`] lists them.
+pub trait Sink {
+    /// One sample. `at_event` marks samples taken at a switching instant (after the
+    /// switching) rather than on the fixed output interval.
+    fn sample(&mut self, time: f64, values: &[f64], at_event: bool) -> Result<(), String>;
+}
+
+/// A sink that drops everything, for runs that only want measurements.
+pub struct NullSink;
+
+impl Sink for NullSink {
+    fn sample(&mut self, _: f64, _: &[f64], _: bool) -> Result<(), String> {
+        Ok(())
+    }
+}

@@ -1,0 +1,1 @@
+//! Placeholder for the Dop853 cross-check path.

@@ -1,0 +1,576 @@
+//! The exact stepper: state, stepping on the tick grid, event location by bisection on
+//! the cached propagator ladder, diode settling, storm guard, output sampling.
+//!
+//! The loop inside [`Simulation::step`] allocates nothing: every vector it touches is
+//! allocated when the simulation is built.
+
+use std::sync::Arc;
+
+use nalgebra::DVector;
+
+use crate::circuit::{Circuit, ElementId, ElementKind};
+use crate::error::EngineError;
+use crate::event::{Direction, EventFn, EventSlot, Sink, StepOutcome, Stop, MAX_ARMED};
+use crate::ladder::{Tick, TimeGrid};
+use crate::system::{Observation, System, TopologyData};
+use crate::topology::Topology;
+use crate::waveform::Waveform;
+
+/// Limits on how many events may happen how quickly before a run is declared stuck.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct StormGuard {
+    /// Events allowed within `window`.
+    pub max_events: usize,
+    /// Seconds.
+    pub window: f64,
+}
+
+/// Run options. [`SimOptions::for_period`] gives settings suited to a switching period.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct SimOptions {
+    /// Longest step, seconds (top rung of the ladder).
+    pub max_step: f64,
+    /// Events are located to within this many seconds (tick length upper bound).
+    pub event_resolution: f64,
+    /// Output sample interval, seconds; `None` for event samples only.
+    pub sample_interval: Option<f64>,
+    /// Storm guard.
+    pub storm: StormGuard,
+    /// Most topologies kept in the cache.
+    pub cache_limit: usize,
+}
+
+impl SimOptions {
+    /// Options for a circuit switching with period `period` seconds: events located to
+    /// max(1 ps, 1e-9·period); at most 1/16 period per step; more than 500 events in
+    /// 1 % of a period is a storm.
+    pub fn for_period(period: f64) -> Self {
+        SimOptions {
+            max_step: period / 16.0,
+            event_resolution: (1e-9 * period).max(1e-12),
+            sample_interval: None,
+            storm: StormGuard {
+                max_events: 500,
+                window: period / 100.0,
+            },
+            cache_limit: 256,
+        }
+    }
+}
+
+/// One armed event.
+#[derive(Clone, Copy)]
+struct Armed {
+    f: EventFn,
+    row: usize,
+}
+
+/// A running simulation: the problem, its present state and preallocated work space.
+pub struct Simulation {
+    system: System,
+    tick: Tick,
+    z: DVector<f64>,
+    topo: Arc<TopologyData>,
+    armed: [Option<Armed>; MAX_ARMED],
+    sample_every: Option<Tick>,
+    next_sample: Tick,
+    /// Per source: next breakpoint time (seconds) of its waveform.
+    breaks: Vec<Option<f64>>,
+    next_break: Tick,
+    pending_flagged: bool,
+    meters: Vec<f64>,
+    storm: StormRing,
+    // Work space.
+    g_lo: Vec<f64>,
+    g_mid: Vec<f64>,
+    g_hi: Vec<f64>,
+    z_hi: DVector<f64>,
+    z_mid: DVector<f64>,
+    w_z: DVector<f64>,
+    values: Vec<f64>,
+    visited: Vec<Topology>,
+    flipped: Vec<ElementId>,
+}
+
+impl Simulation {
+    /// Checks the circuit, builds the grid, sets initial values and settles the diodes
+    /// at t = 0.
+    pub fn new(
+        circuit: Circuit,
+        observation: Observation,
+        options: SimOptions,
+    ) -> Result<Self, EngineError> {
+        let grid = TimeGrid::new(options.max_step, options.event_resolution)?;
+        if !(options.storm.window.is_finite()
+            && options.storm.window > 0.0
+            && options.storm.max_events > 0)
+        {
+            return Err(EngineError::BadOption {
+                what: "storm.window",
+                value: options.storm.window,
+                allowed: "a positive window and event count",
+            });
+        }
+        let sample_every = match options.sample_interval {
+            None => None,
+            Some(dt) if dt.is_finite() && dt > 0.0 => Some(grid.tick(dt).max(1)),
+            Some(dt) => {
+                return Err(EngineError::BadOption {
+                    what: "sample_interval",
+                    value: dt,
+                    allowed: "a positive time in seconds",
+                })
+            }
+        };
+        let mut system = System::new(circuit, observation, grid, options.cache_limit)?;
+        let topo = system.topology(initial_topology(&system))?;
+        let z = initial_state(&system);
+        let nz = z.len();
+        let n_rows = topo.rows.nrows();
+        let n_events = system.diode_count() + MAX_ARMED;
+        let breaks = system
+            .layout
+            .sources
+            .iter()
+            .map(|s| source_waveform(&system.circuit, *s).segment(0.0).until)
+            .collect();
+        let n_meters = system.observation.meters.len();
+        let storm_ticks = grid.tick(options.storm.window).max(1);
+        let mut sim = Simulation {
+            system,
+            tick: 0,
+            z,
+            topo,
+            armed: [None; MAX_ARMED],
+            sample_every,
+            next_sample: 0,
+            breaks,
+            next_break: Tick::MAX,
+            pending_flagged: true,
+            meters: vec![0.0; n_meters],
+            storm: StormRing::new(options.storm.max_events, storm_ticks),
+            g_lo: vec![0.0; n_events],
+            g_mid: vec![0.0; n_events],
+            g_hi: vec![0.0; n_events],
+            z_hi: DVector::zeros(nz),
+            z_mid: DVector::zeros(nz),
+            w_z: DVector::zeros(nz),
+            values: vec![0.0; n_rows],
+            visited: Vec::with_capacity(4 * MAX_ARMED),
+            flipped: Vec::with_capacity(4 * MAX_ARMED),
+        };
+        sim.refresh_next_break();
+        sim.settle()?;
+        Ok(sim)
+    }
+
+    /// Present time, seconds.
+    pub fn time(&self) -> f64 {
+        self.system.grid.time(self.tick)
+    }
+
+    /// The time grid.
+    pub fn grid(&self) -> &TimeGrid {
+        &self.system.grid
+    }
+
+    /// The problem being simulated.
+    pub fn system(&self) -> &System {
+        &self.system
+    }
+
+    /// Augmented state z = [x; 1; w; s] (see [`crate::layout`]).
+    pub fn state(&self) -> &DVector<f64> {
+        &self.z
+    }
+
+    /// Replaces the dynamic states x (length nx) and settles the diodes.
+    pub fn set_states(&mut self, x: &[f64]) -> Result<(), EngineError> {
+        let nx = self.system.layout.nx();
+        if x.len() != nx || x.iter().any(|v| !v.is_finite()) {
+            return Err(EngineError::BadOption {
+                what: "initial state length",
+                value: x.len() as f64,
+                allowed: "one finite value per state",
+            });
+        }
+        self.z.rows_mut(0, nx).copy_from_slice(x);
+        self.pending_flagged = true;
+        self.settle()
+    }
+
+    /// Present topology.
+    pub fn topology(&self) -> Topology {
+        self.topo.topology
+    }
+
+    /// Integrals of the meters so far, in the order of the observation.
+    pub fn meters(&self) -> &[f64] {
+        &self.meters
+    }
+
+    /// Present value of event signal `k` (without offset or rate).
+    pub fn event_signal(&self, k: usize) -> f64 {
+        self.topo
+            .rows
+            .row(self.system.diode_count() + k)
+            .tr_dot(&self.z)
+    }
+
+    /// Present value of probe `k`.
+    pub fn probe(&self, k: usize) -> f64 {
+        let r = self.system.diode_count() + self.system.observation.event_signals.len() + k;
+        self.topo.rows.row(r).tr_dot(&self.z)
+    }
+
+    /// Turns a switch on or off now, then settles the diodes.
+    pub fn set_gate(&mut self, switch: ElementId, on: bool) -> Result<(), EngineError> {
+        let bit = match (
+            self.system.circuit.elements.get(switch.0),
+            self.system.layout.bit_of.get(switch.0),
+        ) {
+            (Some(e), Some(Some(bit))) if matches!(e.kind, ElementKind::Switch { .. }) => *bit,
+            _ => return Err(self.not_a("switch", switch)),
+        };
+        let t = self.topo.topology.with(bit, on);
+        if t != self.topo.topology {
+            self.topo = self.system.topology(t)?;
+            self.pending_flagged = true;
+            self.settle()?;
+        }
+        Ok(())
+    }
+
+    /// Sets an independent source to `value` with `slope` per second from now on
+    /// (until its own waveform's next breakpoint), then settles the diodes.
+    pub fn set_source(
+        &mut self,
+        source: ElementId,
+        value: f64,
+        slope: f64,
+    ) -> Result<(), EngineError> {
+        let Some(k) = self.system.layout.sources.iter().position(|&s| s == source) else {
+            return Err(self.not_a("independent source", source));
+        };
+        if !(value.is_finite() && slope.is_finite()) {
+            return Err(EngineError::BadOption {
+                what: "source value",
+                value,
+                allowed: "finite value and slope",
+            });
+        }
+        let l = &self.system.layout;
+        let (w, s) = (l.w(k), l.s(k));
+        self.z[w] = value;
+        self.z[s] = slope;
+        self.pending_flagged = true;
+        self.settle()
+    }
+
+    fn not_a(&self, what: &str, id: ElementId) -> EngineError {
+        let element = self
+            .system
+            .circuit
+            .elements
+            .get(id.0)
+            .map_or_else(|| format!("element #{}", id.0), |e| e.name.clone());
+        EngineError::BadReference {
+            element,
+            problem: format!("is not a {what}"),
+        }
+    }
+
+    /// Arms an event; returns its slot.
+    pub fn arm(&mut self, f: EventFn) -> Result<EventSlot, EngineError> {
+        let n = self.system.observation.event_signals.len();
+        if f.signal >= n || !(f.offset.is_finite() && f.rate.is_finite() && f.t_ref.is_finite()) {
+            return Err(EngineError::BadOption {
+                what: "event signal index",
+                value: f.signal as f64,
+                allowed: "an index into the event signals, finite offset and rate",
+            });
+        }
+        let Some(slot) = self.armed.iter().position(Option::is_none) else {
+            return Err(EngineError::BadOption {
+                what: "armed events",
+                value: MAX_ARMED as f64,
+                allowed: "fewer armed at once",
+            });
+        };
+        let row = self.system.diode_count() + f.signal;
+        self.armed[slot] = Some(Armed { f, row });
+        Ok(EventSlot(slot as u8))
+    }
+
+    /// Disarms an event.
+    pub fn disarm(&mut self, slot: EventSlot) {
+        if let Some(a) = self.armed.get_mut(usize::from(slot.0)) {
+            *a = None;
+        }
+    }
+
+    /// Runs until `until` seconds or until an armed event crosses.
+    pub fn advance(&mut self, until: f64, sink: &mut dyn Sink) -> Result<Stop, EngineError> {
+        let stop = self.system.grid.tick(until);
+        loop {
+            match self.step(stop, sink)? {
+                StepOutcome::StopTime => return Ok(Stop::Reached),
+                StepOutcome::Event { time, armed, .. } if armed != 0 => {
+                    return Ok(Stop::Armed { time, mask: armed })
+                }
+                _ => {}
+            }
+        }
+    }
+
+    /// One internal step towards tick `stop`: a grid step, an event, or the stop time.
+    pub fn step_to(&mut self, stop: f64, sink: &mut dyn Sink) -> Result<StepOutcome, EngineError> {
+        let stop = self.system.grid.tick(stop);
+        self.step(stop, sink)
+    }
+
+    fn step(&mut self, stop: Tick, sink: &mut dyn Sink) -> Result<StepOutcome, EngineError> {
+        if self.pending_flagged {
+            self.pending_flagged = false;
+            self.emit(sink, true)?;
+        }
+        if self.tick >= stop {
+            return Ok(StepOutcome::StopTime);
+        }
+        let target = stop.min(self.next_sample_after()).min(self.next_break);
+        let n = target - self.tick;
+        let p = self.topo.ladder.top.min(63 - n.leading_zeros());
+        let topo = self.topo.clone();
+        eval_events(
+            &topo,
+            &self.armed,
+            self.system.diode_count(),
+            self.system.grid.time(self.tick),
+            &self.z,
+            &mut self.g_lo,
+        );
+        topo.ladder.phi[p as usize].mul_to(&self.z, &mut self.z_hi);
+        let t_hi = self.system.grid.time(self.tick + (1 << p));
+        eval_events(
+            &topo,
+            &self.armed,
+            self.system.diode_count(),
+            t_hi,
+            &self.z_hi,
+            &mut self.g_hi,
+        );
+        if fired(&self.g_lo, &self.g_hi) {
+            return self.locate(&topo, p, sink);
+        }
+        self.accumulate(&topo, p);
+        std::mem::swap(&mut self.z, &mut self.z_hi);
+        self.tick += 1 << p;
+        self.check_finite()?;
+        self.on_grid_point(sink)?;
+        Ok(if self.tick == stop {
+            StepOutcome::StopTime
+        } else {
+            StepOutcome::Internal
+        })
+    }
+
+    fn next_sample_after(&mut self) -> Tick {
+        let Some(every) = self.sample_every else {
+            return Tick::MAX;
+        };
+        while self.next_sample <= self.tick {
+            self.next_sample += every;
+        }
+        self.next_sample
+    }
+
+    /// Work due at the grid point just reached: source breakpoints, then samples.
+    fn on_grid_point(&mut self, sink: &mut dyn Sink) -> Result<(), EngineError> {
+        if self.tick == self.next_break {
+            self.apply_breakpoints()?;
+        }
+        if self.sample_every.is_some() && self.tick == self.next_sample {
+            self.emit(sink, false)?;
+        }
+        Ok(())
+    }
+
+    /// An event fired within a step of rung `p`: bisect on the lower rungs down to the
+    /// first tick at which some event function has crossed. One matrix–vector product
+    /// per rung; the located tick is within one quantum of the crossing.
+    fn locate(
+        &mut self,
+        topo: &TopologyData,
+        p: u32,
+        sink: &mut dyn Sink,
+    ) -> Result<StepOutcome, EngineError> {
+        let nd = self.system.diode_count();
+        for level in (0..p).rev() {
+            topo.ladder.phi[level as usize].mul_to(&self.z, &mut self.z_mid);
+            let t_mid = self.system.grid.time(self.tick + (1 << level));
+            eval_events(topo, &self.armed, nd, t_mid, &self.z_mid, &mut self.g_mid);
+            if fired(&self.g_lo, &self.g_mid) {
+                std::mem::swap(&mut self.z_hi, &mut self.z_mid);
+                std::mem::swap(&mut self.g_hi, &mut self.g_mid);
+            } else {
+                self.accumulate(topo, level);
+                std::mem::swap(&mut self.z, &mut self.z_mid);
+                std::mem::swap(&mut self.g_lo, &mut self.g_mid);
+                self.tick += 1 << level;
+            }
+        }
+        self.accumulate(topo, 0);
+        std::mem::swap(&mut self.z, &mut self.z_hi);
+        self.tick += 1;
+        self.check_finite()?;
+        let armed = armed_mask(&self.g_lo, &self.g_hi, nd);
+        self.flipped.clear();
+        self.settle()?;
+        let diode = self.flipped.first().copied();
+        self.storm
+            .record(self.tick)
+            .map_err(|count| self.storm_error(count))?;
+        self.on_grid_point(sink)?;
+        self.emit(sink, true)?;
+        Ok(StepOutcome::Event {
+            time: self.time(),
+            armed,
+            diode,
+        })
+    }
+}
+
+/// Event function values at state `z`, time `t`, into `g`: diode rows first, then one
+/// entry per armed slot (−∞ when empty, so it never fires), sign-adjusted so every
+/// function fires rising through zero.
+fn eval_events(
+    topo: &TopologyData,
+    armed: &[Option<Armed>],
+    nd: usize,
+    t: f64,
+    z: &DVector<f64>,
+    g: &mut [f64],
+) {
+    for (r, gr) in g.iter_mut().enumerate().take(nd) {
+        *gr = topo.rows.row(r).tr_dot(z);
+    }
+    for (k, a) in armed.iter().enumerate() {
+        g[nd + k] = match a {
+            Some(a) => {
+                let v = topo.rows.row(a.row).tr_dot(z) + a.f.offset + a.f.rate * (t - a.f.t_ref);
+                if a.f.direction == Direction::Rising {
+                    v
+                } else {
+                    -v
+                }
+            }
+            None => f64::NEG_INFINITY,
+        };
+    }
+}
+
+/// Whether any function went from ≤ 0 to > 0.
+fn fired(lo: &[f64], hi: &[f64]) -> bool {
+    lo.iter().zip(hi).any(|(&a, &b)| a <= 0.0 && b > 0.0)
+}
+
+/// Bit k set when armed slot k fired.
+fn armed_mask(lo: &[f64], hi: &[f64], nd: usize) -> u64 {
+    let mut mask = 0;
+    for (k, (&a, &b)) in lo[nd..].iter().zip(&hi[nd..]).enumerate() {
+        if a <= 0.0 && b > 0.0 {
+            mask |= 1 << k;
+        }
+    }
+    mask
+}
+
+fn initial_topology(system: &System) -> Topology {
+    let mut t = Topology::default();
+    for (bit, id) in system.layout.switchable.iter().enumerate() {
+        if let ElementKind::Switch {
+            initially_on: true, ..
+        } = system.circuit.elements[id.0].kind
+        {
+            t = t.with(bit, true);
+        }
+    }
+    t
+}
+
+fn initial_state(system: &System) -> DVector<f64> {
+    let l = &system.layout;
+    let mut z = DVector::zeros(l.nz());
+    for (i, e) in system.circuit.elements.iter().enumerate() {
+        match (&e.kind, l.state_of[i]) {
+            (
+                ElementKind::Inductor {
+                    initial_current, ..
+                },
+                Some(k),
+            ) => z[k] = *initial_current,
+            (
+                ElementKind::Capacitor {
+                    initial_voltage, ..
+                },
+                Some(k),
+            ) => z[k] = *initial_voltage,
+            _ => {}
+        }
+    }
+    for (b, block) in system.circuit.blocks.iter().enumerate() {
+        for (k, v) in block.initial_state.iter().enumerate() {
+            z[l.block_offset[b] + k] = *v;
+        }
+    }
+    z[l.one()] = 1.0;
+    for (k, src) in l.sources.iter().enumerate() {
+        let seg = source_waveform(&system.circuit, *src).segment(0.0);
+        z[l.w(k)] = seg.value;
+        z[l.s(k)] = seg.slope;
+    }
+    z
+}
+
+/// The waveform of an independent source (layout guarantees the kind).
+pub(crate) fn source_waveform(circuit: &Circuit, id: ElementId) -> &Waveform {
+    match &circuit.elements[id.0].kind {
+        ElementKind::VoltageSource { waveform } | ElementKind::CurrentSource { waveform } => {
+            waveform
+        }
+        _ => &Waveform::Constant(0.0),
+    }
+}
+
+/// Ring of recent event ticks for the storm guard.
+struct StormRing {
+    ticks: Vec<Tick>,
+    next: usize,
+    filled: bool,
+    window: Tick,
+}
+
+impl StormRing {
+    fn new(capacity: usize, window: Tick) -> Self {
+        StormRing {
+            ticks: vec![0; capacity],
+            next: 0,
+            filled: false,
+            window,
+        }
+    }
+
+    /// Records an event; Err(count) when `capacity` events fall inside the window.
+    fn record(&mut self, tick: Tick) -> Result<(), usize> {
+        let oldest = self.ticks[self.next];
+        self.ticks[self.next] = tick;
+        self.next = (self.next + 1) % self.ticks.len();
+        self.filled |= self.next == 0;
+        if self.filled && tick - oldest < self.window {
+            return Err(self.ticks.len());
+        }
+        Ok(())
+    }
+}
+
+mod support;

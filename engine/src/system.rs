@@ -1,0 +1,197 @@
+//! The immutable problem: a checked circuit, what is observed, the time grid, and the
+//! lazily built, bounded cache of per-topology matrices.
+
+use std::collections::HashMap;
+use std::sync::Arc;
+
+use nalgebra::DMatrix;
+
+use crate::check::check_structure;
+use crate::circuit::{Circuit, ElementKind, Signal};
+use crate::error::EngineError;
+use crate::ladder::{quadratic_form, Ladder, TimeGrid};
+use crate::layout::Layout;
+use crate::nodal::Nodal;
+use crate::topology::Topology;
+use crate::validate::validate;
+
+/// A quadratic integral ∫ Σ c·a(t)·b(t) dt, integrated exactly (an energy, a loss).
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct Meter {
+    /// Label for reports.
+    pub name: String,
+    /// (coefficient, a, b) products, summed.
+    pub terms: Vec<(f64, Signal, Signal)>,
+}
+
+/// What a run observes: output probes, signals that events are defined on, meters.
+#[derive(Clone, Debug, Default)]
+pub struct Observation {
+    /// Named output quantities, sampled into the sink in this order.
+    pub probes: Vec<(String, Signal)>,
+    /// Signals that [`crate::EventFn`]s refer to by index.
+    pub event_signals: Vec<Signal>,
+    /// Quadratic integrals.
+    pub meters: Vec<Meter>,
+}
+
+/// Matrices of one topology.
+pub struct TopologyData {
+    /// The topology.
+    pub topology: Topology,
+    /// Augmented state matrix: ż = M z.
+    pub m: DMatrix<f64>,
+    /// Exact propagators and meter integrals.
+    pub ladder: Ladder,
+    /// Rows over z: diode switching functions (one per diode), then event signals,
+    /// then probes.
+    pub rows: DMatrix<f64>,
+}
+
+/// A circuit ready to simulate.
+pub struct System {
+    pub(crate) circuit: Circuit,
+    pub(crate) layout: Layout,
+    pub(crate) grid: TimeGrid,
+    pub(crate) observation: Observation,
+    cache: HashMap<u64, (Arc<TopologyData>, u64)>,
+    cache_limit: usize,
+    clock: u64,
+}
+
+impl System {
+    /// Checks the circuit and prepares the problem. No topology is built yet.
+    pub fn new(
+        circuit: Circuit,
+        observation: Observation,
+        grid: TimeGrid,
+        cache_limit: usize,
+    ) -> Result<Self, EngineError> {
+        validate(&circuit)?;
+        check_structure(&circuit)?;
+        let layout = Layout::new(&circuit)?;
+        Ok(System {
+            circuit,
+            layout,
+            grid,
+            observation,
+            cache: HashMap::new(),
+            cache_limit: cache_limit.max(2),
+            clock: 0,
+        })
+    }
+
+    /// The circuit.
+    pub fn circuit(&self) -> &Circuit {
+        &self.circuit
+    }
+
+    /// The state layout.
+    pub fn layout(&self) -> &Layout {
+        &self.layout
+    }
+
+    /// The time grid.
+    pub fn grid(&self) -> &TimeGrid {
+        &self.grid
+    }
+
+    /// What is observed.
+    pub fn observation(&self) -> &Observation {
+        &self.observation
+    }
+
+    /// Number of diode rows at the top of [`TopologyData::rows`].
+    pub fn diode_count(&self) -> usize {
+        self.layout.diode_bits.len()
+    }
+
+    /// Matrices of a topology, from the cache or built now.
+    pub fn topology(&mut self, t: Topology) -> Result<Arc<TopologyData>, EngineError> {
+        self.clock += 1;
+        if let Some(entry) = self.cache.get_mut(&t.0) {
+            entry.1 = self.clock;
+            return Ok(entry.0.clone());
+        }
+        let data = Arc::new(self.build(t)?);
+        if self.cache.len() >= self.cache_limit {
+            // Least recently used goes; a scan is fine, eviction is rare.
+            if let Some(&oldest) = self
+                .cache
+                .iter()
+                .min_by_key(|(_, (_, used))| *used)
+                .map(|(k, _)| k)
+            {
+                self.cache.remove(&oldest);
+            }
+        }
+        self.cache.insert(t.0, (data.clone(), self.clock));
+        Ok(data)
+    }
+
+    /// Nodal analysis of a topology (for callers that want rows of their own).
+    pub fn nodal(&self, t: Topology) -> Result<Nodal<'_>, EngineError> {
+        Nodal::solve(&self.circuit, &self.layout, t)
+    }
+
+    fn build(&self, t: Topology) -> Result<TopologyData, EngineError> {
+        let nodal = self.nodal(t)?;
+        let m = nodal.state_matrix()?;
+        let nz = self.layout.nz();
+        let obs = &self.observation;
+        let n_rows = self.diode_count() + obs.event_signals.len() + obs.probes.len();
+        let mut rows = DMatrix::<f64>::zeros(n_rows, nz);
+        for (r, &bit) in self.layout.diode_bits.iter().enumerate() {
+            rows.set_row(r, &self.diode_function(&nodal, t, bit)?);
+        }
+        let signals = obs
+            .event_signals
+            .iter()
+            .chain(obs.probes.iter().map(|(_, s)| s));
+        for (r, s) in signals.enumerate() {
+            rows.set_row(self.diode_count() + r, &nodal.signal(s)?);
+        }
+        let mut forms = Vec::with_capacity(obs.meters.len());
+        for meter in &obs.meters {
+            let mut terms = Vec::with_capacity(meter.terms.len());
+            for (c, a, b) in &meter.terms {
+                terms.push((*c, nodal.signal(a)?, nodal.signal(b)?));
+            }
+            forms.push(quadratic_form(nz, &terms));
+        }
+        let ladder = Ladder::build(&m, self.layout.nx(), &self.grid, &forms);
+        if ladder.phi.iter().any(|p| p.iter().any(|v| !v.is_finite())) {
+            return Err(EngineError::NonFinite {
+                time: f64::NAN,
+                topology: t.describe(&self.circuit, &self.layout),
+            });
+        }
+        Ok(TopologyData {
+            topology: t,
+            m,
+            ladder,
+            rows,
+        })
+    }
+
+    /// Switching function of a diode: positive means it wants to change state.
+    /// Conducting: −i (current falls through zero). Blocking: v − vf (voltage rises
+    /// through the threshold).
+    fn diode_function(
+        &self,
+        nodal: &Nodal<'_>,
+        t: Topology,
+        bit: usize,
+    ) -> Result<nalgebra::RowDVector<f64>, EngineError> {
+        let id = self.layout.switchable[bit];
+        let ElementKind::Diode { params } = self.circuit.elements[id.0].kind else {
+            unreachable!("diode_bits index diodes only");
+        };
+        use crate::circuit::Quantity;
+        Ok(if t.is_on(bit) {
+            -nodal.quantity(Quantity::Current(id))?
+        } else {
+            nodal.quantity(Quantity::Voltage(id))? - nodal.quantity(Quantity::One)? * params.vf
+        })
+    }
+}
