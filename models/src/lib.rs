@@ -1,1 +1,22 @@
-//! placeholder
+//! # stepflux-models
+//!
+//! Forward converters on the stepflux engine. It owns: components as a designer enters
+//! them ([`components`]), converter templates that expand a design into an engine
+//! circuit with named probes ([`template`]), the open-loop gate source ([`gate`]), the
+//! per-cycle core-reset table ([`cycles`]), and the closed-form design figures the
+//! templates are checked against ([`figures`]).
+//!
+//! It depends on `stepflux-engine` only: no files, threads, terminals or serialisation.
+//! Everything here is deterministic.
+#![deny(missing_docs)]
+
+pub mod components;
+pub mod cycles;
+pub mod demo_design;
+mod error;
+pub mod figures;
+pub mod gate;
+pub mod run;
+pub mod template;
+
+pub use error::ModelError;

@@ -1,0 +1,93 @@
+//! A demonstration design of this project's own invention (not a product): an
+//! 18–36 V industrial bus to an isolated 5 V, 4 A rail at 150 kHz with a reset winding.
+//! The values are invented for examples and demos only; they are plausible, not
+//! optimised, and carry no claim about any real part.
+
+use crate::components::{Capacitor, Diode, Inductor, InputSource, Load, Switch, Transformer};
+use crate::template::{ForwardDesign, ResetScheme};
+
+/// Switching frequency of the demo design, hertz.
+pub const DEMO_FREQUENCY: f64 = 150e3;
+
+/// Nominal input of the demo design, volts.
+pub const DEMO_VIN: f64 = 24.0;
+
+/// A small-signal diode for the reset winding.
+pub fn reset_diode() -> Diode {
+    Diode {
+        vf: 0.7,
+        rd: 0.1,
+        r_off: 1e7,
+        junction_capacitance: 0.0,
+        reverse_rating: 100.0,
+    }
+}
+
+/// A low-drop power rectifier.
+pub fn power_diode() -> Diode {
+    Diode {
+        vf: 0.4,
+        rd: 0.01,
+        r_off: 1e6,
+        junction_capacitance: 0.0,
+        reverse_rating: 45.0,
+    }
+}
+
+/// The primary switch.
+pub fn primary_switch() -> Switch {
+    Switch {
+        r_on: 0.05,
+        r_off: 1e7,
+        output_capacitance: 0.0,
+        body_diode: None,
+        voltage_rating: 100.0,
+    }
+}
+
+/// The demo converter: Np:Ns:Nr = 12:9:12, Lm = 200 µH, Ae = 40 mm², Bsat = 0.3 T,
+/// 15 µH / 220 µF output, 1.25 Ω load (4 A at 5 V).
+pub fn demo_design() -> ForwardDesign {
+    ForwardDesign {
+        input: InputSource {
+            voltage: DEMO_VIN,
+            resistance: 0.0,
+            filter: None,
+            bulk: None,
+        },
+        transformer: Transformer {
+            primary_turns: 12.0,
+            secondary_turns: 9.0,
+            reset_turns: 12.0,
+            magnetising_inductance: 200e-6,
+            primary_leakage: 0.0,
+            secondary_leakage: 0.0,
+            reset_leakage: 0.0,
+            primary_resistance: 0.0,
+            secondary_resistance: 0.0,
+            reset_resistance: 0.0,
+            core_area: 40e-6,
+            saturation_flux_density: 0.3,
+            saturated_inductance: None,
+        },
+        switch: primary_switch(),
+        reset: ResetScheme::ResetWinding {
+            diode: reset_diode(),
+        },
+        rectifier: power_diode(),
+        freewheel: power_diode(),
+        output_inductor: Inductor {
+            inductance: 15e-6,
+            dcr: 0.01,
+            saturation_current: 8.0,
+        },
+        output_capacitor: Capacitor {
+            capacitance: 220e-6,
+            esr: 0.02,
+        },
+        load: Load {
+            resistance: Some(1.25),
+            current: None,
+        },
+    }
+}

@@ -1,0 +1,202 @@
+//! A converter under simulation: the engine run plus what a converter adds on top —
+//! gate commands by role, the saturation knee, and the cycle watch.
+
+use stepflux_engine::{
+    Direction, EventFn, EventSlot, Observation, Quantity, Signal, SimOptions, Simulation, Sink,
+    StepOutcome, Stop,
+};
+
+use crate::cycles::{CycleSink, CycleWatch, WatchPoints};
+use crate::error::ModelError;
+use crate::template::{Converter, KeyElements, Probe, SaturationBranch};
+
+/// Event-signal index of the magnetising current (see [`ConverterRun::new`]).
+const MAG_SIGNAL: usize = 0;
+
+/// Saturation switches and the events that toggle them.
+struct Knee {
+    branch: SaturationBranch,
+    positive_closed: bool,
+    negative_closed: bool,
+    slots: [Option<EventSlot>; 2],
+}
+
+/// A converter being simulated.
+pub struct ConverterRun {
+    /// The engine simulation.
+    pub sim: Simulation,
+    /// Elements of interest.
+    pub key: KeyElements,
+    probes: Vec<Probe>,
+    watch: CycleWatch,
+    knee: Option<Knee>,
+}
+
+fn required(conv: &Converter, name: &str) -> Result<usize, ModelError> {
+    conv.probe_index(name)
+        .ok_or_else(|| ModelError::Infeasible(format!("template has no '{name}' probe")))
+}
+
+impl ConverterRun {
+    /// Prepares a run of `conv`. Extra event signals (for a controller) follow the
+    /// magnetising current, which is event signal 0.
+    pub fn new(
+        conv: &Converter,
+        options: SimOptions,
+        extra_events: Vec<Signal>,
+    ) -> Result<Self, ModelError> {
+        let mut event_signals = vec![Signal::of(Quantity::Current(conv.key.magnetising))];
+        event_signals.extend(extra_events);
+        let observation = Observation {
+            probes: conv
+                .probes
+                .iter()
+                .map(|p| (p.name.clone(), p.signal.clone()))
+                .collect(),
+            event_signals,
+            meters: Vec::new(),
+        };
+        let sim = Simulation::new(conv.circuit.clone(), observation, options)?;
+        let points = WatchPoints::new(
+            &sim,
+            required(conv, "mag.i")?,
+            required(conv, "drain.v")?,
+            required(conv, "core.b")?,
+            &conv.key.reset_diodes,
+        );
+        let mut run = ConverterRun {
+            sim,
+            key: conv.key.clone(),
+            probes: conv.probes.clone(),
+            watch: CycleWatch::new(points),
+            knee: conv.key.saturation.map(|branch| Knee {
+                branch,
+                positive_closed: false,
+                negative_closed: false,
+                slots: [None, None],
+            }),
+        };
+        run.arm_knee()?;
+        Ok(run)
+    }
+
+    /// The probes, in sample order.
+    pub fn probes(&self) -> &[Probe] {
+        &self.probes
+    }
+
+    /// Present value of a probe by name.
+    pub fn probe(&self, name: &str) -> Option<f64> {
+        self.probes
+            .iter()
+            .position(|p| p.name == name)
+            .map(|k| self.sim.probe(k))
+    }
+
+    /// Turns the main switch(es) on or off.
+    pub fn set_main(&mut self, on: bool) -> Result<(), ModelError> {
+        for &s in &self.key.main_switches {
+            self.sim.set_gate(s, on)?;
+        }
+        Ok(())
+    }
+
+    /// Turns the complementary switch on or off (no-op without one).
+    pub fn set_aux(&mut self, on: bool) -> Result<(), ModelError> {
+        match self.key.aux_switch {
+            Some(s) => Ok(self.sim.set_gate(s, on)?),
+            None => Ok(()),
+        }
+    }
+
+    /// Opens a new cycle record at a turn-on.
+    pub fn start_cycle(&mut self, period: f64, duty: f64, cycles: &mut dyn CycleSink) {
+        self.watch.turn_on(&self.sim, period, duty, cycles);
+    }
+
+    /// Closes the last cycle record (end of run).
+    pub fn finish(&mut self, cycles: &mut dyn CycleSink) {
+        self.watch.close(&self.sim, cycles);
+    }
+
+    /// Runs to `t` seconds, handling the saturation knee and feeding the cycle watch;
+    /// returns early with the mask when an armed event other than the knee's fires.
+    pub fn advance(&mut self, t: f64, sink: &mut dyn Sink) -> Result<Stop, ModelError> {
+        loop {
+            let outcome = self.sim.step_to(t, sink)?;
+            self.watch.observe(&self.sim);
+            match outcome {
+                StepOutcome::StopTime => return Ok(Stop::Reached),
+                StepOutcome::Event { time, armed, .. } if armed != 0 => {
+                    let rest = self.on_knee(armed)?;
+                    if rest != 0 {
+                        return Ok(Stop::Armed { time, mask: rest });
+                    }
+                }
+                _ => {}
+            }
+        }
+    }
+
+    /// Toggles saturation switches whose event fired; returns the other bits.
+    fn on_knee(&mut self, mask: u64) -> Result<u64, ModelError> {
+        let Some(knee) = self.knee.as_mut() else {
+            return Ok(mask);
+        };
+        let mut rest = mask;
+        for (k, slot) in knee.slots.iter().enumerate() {
+            let Some(slot) = slot else { continue };
+            let bit = 1u64 << slot.0;
+            if mask & bit == 0 {
+                continue;
+            }
+            rest &= !bit;
+            let (switch, closed) = if k == 0 {
+                knee.positive_closed = !knee.positive_closed;
+                (knee.branch.positive, knee.positive_closed)
+            } else {
+                knee.negative_closed = !knee.negative_closed;
+                (knee.branch.negative, knee.negative_closed)
+            };
+            self.sim.set_gate(switch, closed)?;
+        }
+        if rest != mask {
+            self.arm_knee()?;
+        }
+        Ok(rest)
+    }
+
+    /// Arms the two knee crossings that can happen next: past ±knee outward while a
+    /// branch is open, back through ±knee while it is closed.
+    fn arm_knee(&mut self) -> Result<(), ModelError> {
+        let Some(knee) = self.knee.as_mut() else {
+            return Ok(());
+        };
+        for slot in knee.slots.iter_mut().flatten() {
+            self.sim.disarm(*slot);
+        }
+        let i_k = knee.branch.knee;
+        let event = |offset: f64, direction| EventFn {
+            signal: MAG_SIGNAL,
+            offset,
+            rate: 0.0,
+            t_ref: 0.0,
+            direction,
+        };
+        let pos = if knee.positive_closed {
+            Direction::Falling
+        } else {
+            Direction::Rising
+        };
+        let neg = if knee.negative_closed {
+            Direction::Rising
+        } else {
+            Direction::Falling
+        };
+        knee.slots = [
+            Some(self.sim.arm(event(-i_k, pos))?),
+            Some(self.sim.arm(event(i_k, neg))?),
+        ];
+        Ok(())
+    }
+}
