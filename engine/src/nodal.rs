@@ -49,9 +49,13 @@ impl<'a> Nodal<'a> {
         let singular = || EngineError::SingularTopology {
             topology: topology.describe(circuit, layout),
         };
-        let lu = m.lu();
-        if !lu.solve_mut(&mut rhs) || rhs.iter().any(|v| !v.is_finite()) {
-            return Err(singular());
+        // With no unknowns (only ground, e.g. a circuit of behavioural blocks alone)
+        // there is nothing to solve, and nalgebra's LU panics on an empty matrix.
+        if n > 0 {
+            let lu = m.lu();
+            if !lu.solve_mut(&mut rhs) || rhs.iter().any(|v| !v.is_finite()) {
+                return Err(singular());
+            }
         }
         Ok(Nodal {
             circuit,
