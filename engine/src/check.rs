@@ -51,10 +51,12 @@ fn class(kind: &ElementKind) -> EdgeClass {
     match kind {
         ElementKind::Capacitor { .. }
         | ElementKind::VoltageSource { .. }
-        | ElementKind::BlockVoltageSource { .. } => EdgeClass::Voltage,
+        | ElementKind::BlockVoltageSource { .. }
+        | ElementKind::ControlledVoltageSource { .. } => EdgeClass::Voltage,
         ElementKind::Inductor { .. }
         | ElementKind::CurrentSource { .. }
-        | ElementKind::BlockCurrentSource { .. } => EdgeClass::Current,
+        | ElementKind::BlockCurrentSource { .. }
+        | ElementKind::ControlledCurrentSource { .. } => EdgeClass::Current,
         _ => EdgeClass::Resistive,
     }
 }

@@ -115,6 +115,19 @@ pub enum ElementKind {
         /// Which of its outputs.
         output: usize,
     },
+    /// Voltage source whose value is a circuit signal: v(a) − v(b) = control. The
+    /// control may name any quantity, including ones the source itself affects; the
+    /// nodal solve resolves the loop (a voltage-controlled or current-controlled
+    /// voltage source of textbook nodal analysis).
+    ControlledVoltageSource {
+        /// The controlling signal, volts.
+        control: Signal,
+    },
+    /// Current source (a → b through the source) whose value is a circuit signal.
+    ControlledCurrentSource {
+        /// The controlling signal, amperes.
+        control: Signal,
+    },
     /// Gate-driven switch between a and b.
     Switch {
         /// On and off resistances.
@@ -342,6 +355,28 @@ impl Circuit {
         waveform: Waveform,
     ) -> Result<ElementId, EngineError> {
         self.add(name, a, b, ElementKind::CurrentSource { waveform })
+    }
+
+    /// Adds a voltage source controlled by a circuit signal.
+    pub fn controlled_voltage_source(
+        &mut self,
+        name: &str,
+        a: NodeId,
+        b: NodeId,
+        control: Signal,
+    ) -> Result<ElementId, EngineError> {
+        self.add(name, a, b, ElementKind::ControlledVoltageSource { control })
+    }
+
+    /// Adds a current source (a → b through it) controlled by a circuit signal.
+    pub fn controlled_current_source(
+        &mut self,
+        name: &str,
+        a: NodeId,
+        b: NodeId,
+        control: Signal,
+    ) -> Result<ElementId, EngineError> {
+        self.add(name, a, b, ElementKind::ControlledCurrentSource { control })
     }
 
     /// Adds a gate-driven switch.

@@ -84,7 +84,8 @@ impl Layout {
                     layout.branch_of[i] = Some(layout.take_branches(1));
                 }
                 ElementKind::CurrentSource { .. } => layout.sources.push(id),
-                ElementKind::BlockVoltageSource { .. } => {
+                ElementKind::BlockVoltageSource { .. }
+                | ElementKind::ControlledVoltageSource { .. } => {
                     layout.branch_of[i] = Some(layout.take_branches(1));
                 }
                 ElementKind::Transformer { windings } => {
@@ -97,7 +98,9 @@ impl Layout {
                     layout.bit_of[i] = Some(layout.switchable.len());
                     layout.switchable.push(id);
                 }
-                ElementKind::Resistor { .. } | ElementKind::BlockCurrentSource { .. } => {}
+                ElementKind::Resistor { .. }
+                | ElementKind::BlockCurrentSource { .. }
+                | ElementKind::ControlledCurrentSource { .. } => {}
             }
         }
         if layout.switchable.len() > MAX_SWITCHABLE {

@@ -29,6 +29,7 @@
 
 mod check;
 mod circuit;
+mod controlled;
 mod error;
 mod event;
 mod ladder;

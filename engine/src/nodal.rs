@@ -12,6 +12,7 @@
 use nalgebra::{DMatrix, DVector, RowDVector};
 
 use crate::circuit::{Circuit, ElementKind, NodeId, Quantity, Signal};
+use crate::controlled::Forms;
 use crate::error::EngineError;
 use crate::layout::{Layout, StateKind};
 use crate::topology::Topology;
@@ -151,9 +152,13 @@ impl<'a> Nodal<'a> {
             ElementKind::BlockCurrentSource { block, output } => {
                 self.block_output(block.0, *output, depth)?
             }
+            ElementKind::ControlledCurrentSource { control } => {
+                self.signal_at_depth(control, depth + 1)?
+            }
             ElementKind::Capacitor { .. }
             | ElementKind::VoltageSource { .. }
-            | ElementKind::BlockVoltageSource { .. } => {
+            | ElementKind::BlockVoltageSource { .. }
+            | ElementKind::ControlledVoltageSource { .. } => {
                 self.unknown_row(l.branch_of[i].unwrap_or(0))
             }
             ElementKind::Transformer { .. } => {
@@ -365,6 +370,44 @@ impl Assembler<'_> {
             }
             ElementKind::Transformer { windings } => {
                 self.transformer(l.branch_of[i].unwrap_or(0), windings)
+            }
+            ElementKind::ControlledVoltageSource { control } => {
+                let br = l.branch_of[i].unwrap_or(0);
+                self.voltage_branch(a, b, br);
+                // v(a) − v(b) − Σ c·unknown = Σ c·z
+                let form = Forms {
+                    circuit,
+                    layout: l,
+                    topology,
+                }
+                .signal(control, i, 0)?;
+                for (u, c) in form.unknowns {
+                    self.m[(br, u)] -= c;
+                }
+                for (col, c) in form.z {
+                    self.rhs[(br, col)] += c;
+                }
+            }
+            ElementKind::ControlledCurrentSource { control } => {
+                // The current leaving a: its unknowns part joins the matrix, its state
+                // part the right-hand side.
+                let form = Forms {
+                    circuit,
+                    layout: l,
+                    topology,
+                }
+                .signal(control, i, 0)?;
+                for (node, sign) in [(a, 1.0), (b, -1.0)] {
+                    let Some(row) = l.node_unknown(node) else {
+                        continue;
+                    };
+                    for &(u, c) in &form.unknowns {
+                        self.m[(row, u)] += sign * c;
+                    }
+                    for &(col, c) in &form.z {
+                        self.rhs[(row, col)] -= sign * c;
+                    }
+                }
             }
         }
         Ok(())

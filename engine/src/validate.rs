@@ -94,6 +94,10 @@ pub fn validate(circuit: &Circuit) -> Result<(), EngineError> {
                     });
                 }
             }
+            ElementKind::ControlledVoltageSource { control }
+            | ElementKind::ControlledCurrentSource { control } => {
+                validate_signal(circuit, name, control)?
+            }
             ElementKind::Switch { params, .. } => on_off(name, params.r_on, params.r_off)?,
             ElementKind::Diode { params } => {
                 on_off(name, params.r_on, params.r_off)?;
