@@ -98,17 +98,40 @@ impl Ladder {
         let phi: Vec<DMatrix<f64>> = (0..=grid.levels)
             .map(|p| (m * grid.rung(p)).exp())
             .collect();
-        let meters = q
-            .iter()
-            .map(|qm| {
-                (0..=grid.levels)
-                    .map(|p| van_loan(m, qm, grid.rung(p)))
-                    .collect()
-            })
-            .collect();
+        let meters = q.iter().map(|qm| meter_rungs(m, qm, &phi, grid)).collect();
         let top = oscillation_limit(m, nx, grid);
         Ladder { phi, top, meters }
     }
+}
+
+/// W_p for every rung. Van Loan's block contains exp(−Mᵀh), which overflows once a
+/// stiff topology has |λ|·h beyond ~700 (a 1 MΩ off-state across 20 µH on a
+/// microsecond rung), so it is used only on a step short enough that ‖M‖₁·h ≤ 1; longer
+/// steps come from splitting the integral at the midpoint,
+/// W(2h) = W(h) + Φ(h)ᵀ W(h) Φ(h), which only multiplies by the propagators.
+fn meter_rungs(
+    m: &DMatrix<f64>,
+    q: &DMatrix<f64>,
+    phi: &[DMatrix<f64>],
+    grid: &TimeGrid,
+) -> Vec<DMatrix<f64>> {
+    let norm = m.column_iter().map(|c| c.abs().sum()).fold(0.0, f64::max);
+    let halvings = (norm * grid.quantum).log2().ceil().clamp(0.0, 64.0) as i32;
+    let h0 = grid.quantum / 2f64.powi(halvings);
+    let mut w = van_loan(m, q, h0);
+    let mut f = (m * h0).exp();
+    for _ in 0..halvings {
+        w = &w + f.transpose() * &w * &f;
+        f = &f * &f;
+    }
+    let mut rungs = Vec::with_capacity(phi.len());
+    rungs.push(w);
+    for p in 1..phi.len() {
+        let prev = &rungs[p - 1];
+        let next = prev + phi[p - 1].transpose() * prev * &phi[p - 1];
+        rungs.push(next);
+    }
+    rungs
 }
 
 /// ∫₀ʰ exp(Mᵀs) Q exp(Ms) ds by Van Loan's block exponential.
