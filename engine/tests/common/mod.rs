@@ -100,10 +100,11 @@ pub fn worst(samples: &[Sample], k: usize, expected: impl Fn(f64) -> f64) -> Wor
     for s in samples {
         let (got, want) = (s.values[k], expected(s.time));
         let e = (got - want).abs();
-        // A NaN anywhere must fail, so it is taken as the worst.
-        if !(e <= w.error) || w.compared == 0 {
+        // A NaN anywhere must fail, so it counts as an infinite error.
+        let e = if e.is_nan() { f64::INFINITY } else { e };
+        if e > w.error || w.compared == 0 {
             w = Worst {
-                error: if e.is_nan() { f64::INFINITY } else { e },
+                error: e,
                 time: s.time,
                 got,
                 expected: want,
