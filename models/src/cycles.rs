@@ -132,6 +132,13 @@ impl CycleWatch {
         self.was_resetting = self.points.resetting(sim.topology());
     }
 
+    /// Records the open cycle's actual duty (known at turn-off).
+    pub fn set_duty(&mut self, duty: f64) {
+        if let Some(rec) = self.open.as_mut() {
+            rec.duty = duty;
+        }
+    }
+
     /// Updates extremes and the reset state after an engine step.
     pub fn observe(&mut self, sim: &Simulation) {
         let Some(rec) = self.open.as_mut() else {
@@ -151,9 +158,11 @@ impl CycleWatch {
     }
 
     /// Closes the open cycle at the present instant (the next turn-on or the run's end).
-    pub fn close(&mut self, sim: &Simulation, sink: &mut dyn CycleSink) {
+    pub fn close(&mut self, _sim: &Simulation, sink: &mut dyn CycleSink) {
         if let Some(mut rec) = self.open.take() {
-            rec.reset_incomplete = self.points.resetting(sim.topology());
+            // The state last observed, not the present one: at a turn-on the gate has
+            // already switched and the diodes have settled, which ends any reset.
+            rec.reset_incomplete = self.was_resetting;
             sink.cycle(&rec);
         }
     }

@@ -4,6 +4,10 @@
 //! optimised, and carry no claim about any real part.
 
 use crate::components::{Capacitor, Diode, Inductor, InputSource, Load, Switch, Transformer};
+use crate::controller::{
+    Amplifier, Compensation, ControllerSpec, CurrentLimit, Lockout, Oscillator, OutputMode,
+    VoltageLoop,
+};
 use crate::template::{ForwardDesign, ResetScheme};
 
 /// Switching frequency of the demo design, hertz.
@@ -89,5 +93,59 @@ pub fn demo_design() -> ForwardDesign {
             resistance: Some(1.25),
             current: None,
         },
+    }
+}
+
+/// An error amplifier of ordinary data-sheet figures: 80 dB, 1 MHz, 0–3.5 V output.
+pub fn demo_amplifier() -> Amplifier {
+    Amplifier {
+        dc_gain: 1e4,
+        gain_bandwidth: 1e6,
+        output_low: 0.0,
+        output_high: 3.5,
+    }
+}
+
+/// The demo controller: 150 kHz clock, 1–3 V ramp, 45 % duty clamp, 2 ms soft start,
+/// 2.5 V reference and a 1:1 divider for 5 V, type III compensation for a 15 kHz
+/// crossover (double zero near the output LC resonance of 2.8 kHz, poles at the
+/// output capacitor's ESR zero and at half the switching frequency), 8 A current
+/// limit, 16 V / 15 V lockout.
+pub fn demo_controller() -> ControllerSpec {
+    ControllerSpec {
+        oscillator: Oscillator {
+            frequency: DEMO_FREQUENCY,
+            valley: 1.0,
+            peak: 3.0,
+        },
+        mode: OutputMode::SingleEnded,
+        max_duty: 0.45,
+        soft_start: 2e-3,
+        voltage_loop: VoltageLoop {
+            reference: 2.5,
+            reference_soft_start: 0.0,
+            divider_top: 10e3,
+            divider_bottom: 10e3,
+            amplifier: demo_amplifier(),
+            compensation: Compensation::PolesZeros {
+                r1: 10e3,
+                integrator_hz: 2600.0,
+                zeros_hz: vec![2000.0, 3000.0],
+                poles_hz: vec![36e3, 75e3],
+            },
+        },
+        current_limit: Some(CurrentLimit {
+            sense_gain: 0.1,
+            threshold: 0.8,
+            amplifier: demo_amplifier(),
+            compensation: Compensation::TypeI { r1: 10e3, c1: 1e-9 },
+        }),
+        blanking: 150e-9,
+        min_on_time: 0.0,
+        gate_delay: 50e-9,
+        lockout: Some(Lockout {
+            start: 16.0,
+            stop: 15.0,
+        }),
     }
 }

@@ -3,6 +3,8 @@
 //! Forward converters on the stepflux engine. It owns: components as a designer enters
 //! them ([`components`]), converter templates that expand a design into an engine
 //! circuit with named probes ([`template`]), the open-loop gate source ([`gate`]), the
+//! behavioural PWM controller ([`controller`]), load/line/reference steps
+//! ([`disturbance`]), the
 //! per-cycle core-reset table ([`cycles`]), and the closed-form design figures the
 //! templates are checked against ([`figures`]).
 //!
@@ -11,8 +13,10 @@
 #![deny(missing_docs)]
 
 pub mod components;
+pub mod controller;
 pub mod cycles;
 pub mod demo_design;
+pub mod disturbance;
 mod error;
 pub mod figures;
 pub mod gate;

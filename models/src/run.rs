@@ -2,8 +2,8 @@
 //! gate commands by role, the saturation knee, and the cycle watch.
 
 use stepflux_engine::{
-    Direction, EventFn, EventSlot, Observation, Quantity, Signal, SimOptions, Simulation, Sink,
-    StepOutcome, Stop,
+    Direction, ElementId, EventFn, EventSlot, Observation, Quantity, Signal, SimOptions,
+    Simulation, Sink, StepOutcome, Stop,
 };
 
 use crate::cycles::{CycleSink, CycleWatch, WatchPoints};
@@ -21,6 +21,27 @@ struct Knee {
     slots: [Option<EventSlot>; 2],
 }
 
+/// A change applied at a set time while the run goes through it.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum Action {
+    /// Set an independent source to `value` with `slope` per second.
+    Source {
+        /// The source.
+        element: ElementId,
+        /// Value from now, SI units.
+        value: f64,
+        /// Slope per second from now.
+        slope: f64,
+    },
+    /// Turn a switch on or off.
+    Gate {
+        /// The switch.
+        switch: ElementId,
+        /// On or off.
+        on: bool,
+    },
+}
+
 /// A converter being simulated.
 pub struct ConverterRun {
     /// The engine simulation.
@@ -30,6 +51,8 @@ pub struct ConverterRun {
     probes: Vec<Probe>,
     watch: CycleWatch,
     knee: Option<Knee>,
+    /// Pending actions, latest first (popped from the end).
+    schedule: Vec<(f64, Action)>,
 }
 
 fn required(conv: &Converter, name: &str) -> Result<usize, ModelError> {
@@ -75,6 +98,7 @@ impl ConverterRun {
                 negative_closed: false,
                 slots: [None, None],
             }),
+            schedule: Vec::new(),
         };
         run.arm_knee()?;
         Ok(run)
@@ -119,9 +143,53 @@ impl ConverterRun {
         self.watch.close(&self.sim, cycles);
     }
 
-    /// Runs to `t` seconds, handling the saturation knee and feeding the cycle watch;
-    /// returns early with the mask when an armed event other than the knee's fires.
+    /// Queues actions to apply when the run passes their times (order of equal times
+    /// is kept).
+    pub fn schedule(&mut self, actions: impl IntoIterator<Item = (f64, Action)>) {
+        // Kept latest first so the next action pops off the end; a stable ascending
+        // sort then a reversal keeps equal times in the order given.
+        self.schedule.reverse();
+        self.schedule.extend(actions);
+        self.schedule.sort_by(|a, b| a.0.total_cmp(&b.0));
+        self.schedule.reverse();
+    }
+
+    /// Records the actual duty of the open cycle.
+    pub fn set_cycle_duty(&mut self, duty: f64) {
+        self.watch.set_duty(duty);
+    }
+
+    /// Runs to `t` seconds, applying scheduled actions on the way, handling the
+    /// saturation knee and feeding the cycle watch; returns early with the mask when an
+    /// armed event other than the knee's fires.
     pub fn advance(&mut self, t: f64, sink: &mut dyn Sink) -> Result<Stop, ModelError> {
+        while let Some(&(when, action)) = self.schedule.last() {
+            if when > t {
+                break;
+            }
+            if let Stop::Armed { time, mask } = self.advance_plain(when, sink)? {
+                return Ok(Stop::Armed { time, mask });
+            }
+            self.schedule.pop();
+            self.apply(action)?;
+        }
+        self.advance_plain(t, sink)
+    }
+
+    fn apply(&mut self, action: Action) -> Result<(), ModelError> {
+        match action {
+            Action::Source {
+                element,
+                value,
+                slope,
+            } => self.sim.set_source(element, value, slope)?,
+            Action::Gate { switch, on } => self.sim.set_gate(switch, on)?,
+        }
+        self.watch.observe(&self.sim);
+        Ok(())
+    }
+
+    fn advance_plain(&mut self, t: f64, sink: &mut dyn Sink) -> Result<Stop, ModelError> {
         loop {
             let outcome = self.sim.step_to(t, sink)?;
             self.watch.observe(&self.sim);

@@ -136,8 +136,10 @@ pub struct KeyElements {
     pub output_inductor: ElementId,
     /// Input voltage source.
     pub input_source: ElementId,
-    /// Load current sink, if the load has one.
-    pub load_sink: Option<ElementId>,
+    /// Load current sink (0 A when the design has none).
+    pub load_sink: ElementId,
+    /// Switch in series with the load resistor, if there is one.
+    pub load_switch: Option<ElementId>,
     /// Saturation branch, if saturation is modelled.
     pub saturation: Option<SaturationBranch>,
 }
@@ -238,6 +240,7 @@ impl ForwardDesign {
             output_inductor: out.inductor,
             input_source: input.source,
             load_sink: out.load_sink,
+            load_switch: out.load_switch,
             saturation: stage.saturation,
         };
         let mut probes = net.take_probes();

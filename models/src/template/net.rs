@@ -29,11 +29,19 @@ pub struct OutputStage {
     pub freewheel: ElementId,
     /// Output inductor.
     pub inductor: ElementId,
-    /// Load current sink.
-    pub load_sink: Option<ElementId>,
+    /// Load current sink (0 A when the load has none, so steps can use it).
+    pub load_sink: ElementId,
+    /// Switch in series with the load resistor, if there is one.
+    pub load_switch: Option<ElementId>,
 }
 
-/// Resistance of a switch's closed saturation branch, ohms: small against any winding.
+/// Load-branch switch: 1 nΩ on, 1 TΩ off.
+const LOAD_SWITCH: SwitchParams = SwitchParams {
+    r_on: 1e-9,
+    r_off: 1e12,
+};
+
+/// Resistance standing in for a zero-length connection, ohms: small against any winding.
 const SMALL_RESISTANCE: f64 = 1e-6;
 
 impl Net {
@@ -41,6 +49,14 @@ impl Net {
     pub fn new() -> Self {
         Net {
             circuit: Circuit::new(),
+            probes: Vec::new(),
+        }
+    }
+
+    /// Continues building on an existing circuit.
+    pub fn from_circuit(circuit: Circuit) -> Self {
+        Net {
+            circuit,
             probes: Vec::new(),
         }
     }
@@ -181,6 +197,23 @@ impl Net {
         Ok(id)
     }
 
+    /// A load resistor behind its own switch, so a load step can swap it for another
+    /// (the switch's on-resistance is negligible against any load). Returns the switch.
+    pub fn switched_load(
+        &mut self,
+        out: NodeId,
+        name: &str,
+        ohms: f64,
+        on: bool,
+    ) -> Result<ElementId, ModelError> {
+        let mid = self.node(&format!("{name}.sw"));
+        let sw = self
+            .circuit
+            .switch(&format!("{name}.sw"), out, mid, LOAD_SWITCH, on)?;
+        self.circuit.resistor(name, mid, NodeId::GROUND, ohms)?;
+        Ok(sw)
+    }
+
     /// Source, source resistance, optional LC filter and bulk capacitor.
     pub fn input_stage(&mut self, input: &InputSource) -> Result<InputStage, ModelError> {
         let src = self.node("vs");
@@ -252,18 +285,14 @@ impl Net {
             self.circuit.resistor("lout.dcr", l_end, out, l.dcr)?;
         }
         self.capacitor("cout", out, NodeId::GROUND, &d.output_capacitor, 0.0)?;
-        if let Some(r) = d.load.resistance {
-            self.circuit.resistor("load.r", out, NodeId::GROUND, r)?;
-        }
-        let load_sink = match d.load.current {
-            Some(i) => Some(self.circuit.current_source(
-                "load.i",
-                out,
-                NodeId::GROUND,
-                Waveform::Constant(i),
-            )?),
+        let load_switch = match d.load.resistance {
+            Some(r) => Some(self.switched_load(out, "load.r", r, true)?),
             None => None,
         };
+        let sink = Waveform::Constant(d.load.current.unwrap_or(0.0));
+        let load_sink = self
+            .circuit
+            .current_source("load.i", out, NodeId::GROUND, sink)?;
         self.probe("out.v", Signal::of(Quantity::NodeVoltage(out)), "V");
         self.probe("lout.i", Signal::of(Quantity::Current(inductor)), "A");
         self.probe("rect.i", Signal::of(Quantity::Current(rectifier)), "A");
@@ -275,6 +304,7 @@ impl Net {
             freewheel,
             inductor,
             load_sink,
+            load_switch,
         })
     }
 }

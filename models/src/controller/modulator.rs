@@ -1,0 +1,206 @@
+//! The controller's sequential part: clock, one-pulse-per-period latch, duty clamp with
+//! soft start, leading-edge blanking, minimum on-time, gate delay, output modes and
+//! under-voltage lockout, driving a [`ConverterRun`] cycle by cycle.
+//!
+//! Within a clock period the order is fixed (and so deterministic): lockout check at the
+//! clock; pulse skipped if the control voltage already demands no duty; turn-on after
+//! the gate delay; the comparator is armed once blanking and the minimum on-time have
+//! passed; the pulse ends at the first of the comparator crossing and the duty clamp,
+//! plus the gate delay. Nothing can turn the switch on again before the next clock: that
+//! is the latch.
+
+use stepflux_engine::{Direction, EventFn, Signal, SimOptions, Sink, Stop};
+
+use super::{ControllerParts, ControllerSpec, OutputMode};
+use crate::cycles::CycleSink;
+use crate::disturbance::{prepare, Disturbance};
+use crate::error::ModelError;
+use crate::run::ConverterRun;
+use crate::template::{Converter, ForwardDesign};
+
+/// Event-signal index of the control voltage in the run (0 is the magnetising current).
+const CONTROL_SIGNAL: usize = 1;
+
+/// A converter under closed-loop control.
+pub struct ClosedLoop {
+    /// The converter run.
+    pub run: ConverterRun,
+    /// The controller.
+    pub spec: ControllerSpec,
+    /// The converter with the controller's parts, as simulated.
+    pub converter: Converter,
+    parts: ControllerParts,
+    /// When switching was last enabled by the lockout (None: locked out).
+    enabled_at: Option<f64>,
+    clock: u64,
+}
+
+impl ClosedLoop {
+    /// Builds the power stage, attaches the controller and prepares the disturbances.
+    pub fn new(
+        design: &ForwardDesign,
+        spec: &ControllerSpec,
+        disturbances: &[Disturbance],
+        options: SimOptions,
+    ) -> Result<Self, ModelError> {
+        let conv = design.build()?;
+        let (with_ctl, parts) = spec.attach(&conv)?;
+        let (converter, actions) = prepare(&with_ctl, disturbances, Some(parts.reference))?;
+        let control = Signal::of(stepflux_engine::Quantity::NodeVoltage(parts.control));
+        let mut run = ConverterRun::new(&converter, options, vec![control])?;
+        run.schedule(actions);
+        let enabled_at = if spec.lockout.is_some() {
+            None
+        } else {
+            Some(0.0)
+        };
+        Ok(ClosedLoop {
+            run,
+            spec: spec.clone(),
+            converter,
+            parts,
+            enabled_at,
+            clock: 0,
+        })
+    }
+
+    /// Simulation options suited to this controller's clock.
+    pub fn default_options(spec: &ControllerSpec) -> SimOptions {
+        SimOptions::for_period(spec.clock_period())
+    }
+
+    /// Where the controller sits in the circuit.
+    pub fn parts(&self) -> &ControllerParts {
+        &self.parts
+    }
+
+    /// Runs whole clock periods until `t_end` seconds.
+    pub fn run_until(
+        &mut self,
+        t_end: f64,
+        sink: &mut dyn Sink,
+        cycles: &mut dyn CycleSink,
+    ) -> Result<(), ModelError> {
+        let period = self.spec.clock_period();
+        while (self.clock as f64 + 1.0) * period <= t_end * (1.0 + 1e-12) {
+            self.clock_period(sink, cycles)?;
+            self.clock += 1;
+        }
+        self.run.finish(cycles);
+        Ok(())
+    }
+
+    /// Ramp value at `t` in the period starting at `t0`: falling from peak to valley.
+    fn ramp(&self, t0: f64, t: f64) -> f64 {
+        let o = &self.spec.oscillator;
+        o.peak - (o.peak - o.valley) * (t - t0) / self.spec.clock_period()
+    }
+
+    fn control_voltage(&self) -> f64 {
+        self.run.sim.event_signal(CONTROL_SIGNAL)
+    }
+
+    fn update_lockout(&mut self, t0: f64) {
+        let Some(l) = &self.spec.lockout else { return };
+        let vin = self.run.probe("in.v").unwrap_or(0.0);
+        match self.enabled_at {
+            None if vin >= l.start => self.enabled_at = Some(t0),
+            Some(_) if vin < l.stop => self.enabled_at = None,
+            _ => {}
+        }
+    }
+
+    /// Duty limit for this clock period, as a fraction of the clock period.
+    fn clamp_duty(&self, t0: f64) -> f64 {
+        let per_output = match self.spec.mode {
+            OutputMode::SingleEnded => self.spec.max_duty,
+            // An output's period is two clock periods.
+            OutputMode::Alternating => 2.0 * self.spec.max_duty,
+        };
+        let since = self.enabled_at.map_or(0.0, |e| t0 - e);
+        let ramp_up = if self.spec.soft_start > 0.0 {
+            (since / self.spec.soft_start).min(1.0)
+        } else {
+            1.0
+        };
+        per_output * ramp_up
+    }
+
+    fn set_output(&mut self, b_side: bool, on: bool) -> Result<(), ModelError> {
+        if b_side {
+            self.run.set_aux(on)
+        } else {
+            self.run.set_main(on)
+        }
+    }
+
+    fn clock_period(
+        &mut self,
+        sink: &mut dyn Sink,
+        cycles: &mut dyn CycleSink,
+    ) -> Result<(), ModelError> {
+        let t_clock = self.spec.clock_period();
+        let t0 = self.clock as f64 * t_clock;
+        let t_next = t0 + t_clock;
+        self.update_lockout(t0);
+        let b_side = self.spec.mode == OutputMode::Alternating && self.clock % 2 == 1;
+        let limit = if self.enabled_at.is_some() {
+            self.clamp_duty(t0)
+        } else {
+            0.0
+        };
+        if limit <= 0.0 || self.control_voltage() >= self.spec.oscillator.peak {
+            self.run.advance(t_next, sink)?;
+            return Ok(());
+        }
+        let delay = self.spec.gate_delay;
+        self.run.advance(t0 + delay, sink)?;
+        self.set_output(b_side, true)?;
+        let output_period = if self.spec.mode == OutputMode::Alternating {
+            2.0 * t_clock
+        } else {
+            t_clock
+        };
+        if !b_side {
+            self.run
+                .start_cycle(output_period, limit * t_clock / output_period, cycles);
+        }
+        let t_limit = t0 + limit * t_clock;
+        let t_off = self.pulse_end(t0, t_limit, sink)?;
+        self.run.advance(t_off + delay, sink)?;
+        self.set_output(b_side, false)?;
+        if !b_side {
+            self.run.set_cycle_duty((t_off - t0) / output_period);
+        }
+        self.run.advance(t_next, sink)?;
+        Ok(())
+    }
+
+    /// When the pulse's off command comes: the comparator crossing after blanking and
+    /// minimum on-time, or the duty clamp, whichever is first.
+    fn pulse_end(&mut self, t0: f64, t_limit: f64, sink: &mut dyn Sink) -> Result<f64, ModelError> {
+        let t_arm = t0 + self.spec.blanking.max(self.spec.min_on_time);
+        if t_arm >= t_limit {
+            return Ok(t_limit);
+        }
+        self.run.advance(t_arm, sink)?;
+        let t_arm = t_arm.max(self.run.sim.time());
+        if self.control_voltage() >= self.ramp(t0, t_arm) {
+            return Ok(t_arm);
+        }
+        let o = &self.spec.oscillator;
+        let slot = self.run.sim.arm(EventFn {
+            signal: CONTROL_SIGNAL,
+            offset: -o.peak,
+            rate: (o.peak - o.valley) / self.spec.clock_period(),
+            t_ref: t0,
+            direction: Direction::Rising,
+        })?;
+        let stop = self.run.advance(t_limit, sink)?;
+        self.run.sim.disarm(slot);
+        Ok(match stop {
+            Stop::Armed { time, .. } => time,
+            Stop::Reached => t_limit,
+        })
+    }
+}
