@@ -49,8 +49,22 @@ impl OpenLoopGate {
     }
 
     /// Runs `periods` switching periods from the run's present time, which is taken as
-    /// a period boundary. Each turn-on opens a cycle record.
+    /// a period boundary, and closes the last cycle record. Each turn-on opens one.
     pub fn run(
+        &self,
+        run: &mut ConverterRun,
+        periods: usize,
+        sink: &mut dyn Sink,
+        cycles: &mut dyn CycleSink,
+    ) -> Result<(), ModelError> {
+        self.run_periods(run, periods, sink, cycles)?;
+        run.finish(cycles);
+        Ok(())
+    }
+
+    /// As [`OpenLoopGate::run`] but leaves the last cycle open, so a long run can be
+    /// driven in slices; end with [`ConverterRun::finish`].
+    pub fn run_periods(
         &self,
         run: &mut ConverterRun,
         periods: usize,
@@ -83,7 +97,6 @@ impl OpenLoopGate {
             run.set_aux(false)?;
             run.advance(t0 + periods as f64 * t_period, sink)?;
         }
-        run.finish(cycles);
         Ok(())
     }
 }

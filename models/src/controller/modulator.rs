@@ -74,8 +74,22 @@ impl ClosedLoop {
         &self.parts
     }
 
-    /// Runs whole clock periods until `t_end` seconds.
+    /// Runs whole clock periods until `t_end` seconds and closes the last cycle record.
     pub fn run_until(
+        &mut self,
+        t_end: f64,
+        sink: &mut dyn Sink,
+        cycles: &mut dyn CycleSink,
+    ) -> Result<(), ModelError> {
+        self.advance_to(t_end, sink, cycles)?;
+        self.run.finish(cycles);
+        Ok(())
+    }
+
+    /// Runs whole clock periods until `t_end` seconds, leaving the last cycle open so a
+    /// long run can be driven in slices (for progress reports); end with
+    /// [`ClosedLoop::finish`].
+    pub fn advance_to(
         &mut self,
         t_end: f64,
         sink: &mut dyn Sink,
@@ -86,8 +100,12 @@ impl ClosedLoop {
             self.clock_period(sink, cycles)?;
             self.clock += 1;
         }
-        self.run.finish(cycles);
         Ok(())
+    }
+
+    /// Closes the last cycle record.
+    pub fn finish(&mut self, cycles: &mut dyn CycleSink) {
+        self.run.finish(cycles);
     }
 
     /// Ramp value at `t` in the period starting at `t0`: falling from peak to valley.
