@@ -485,7 +485,7 @@ fn armed_mask(lo: &[f64], hi: &[f64], nd: usize) -> u64 {
     mask
 }
 
-fn initial_topology(system: &System) -> Topology {
+pub(crate) fn initial_topology(system: &System) -> Topology {
     let mut t = Topology::default();
     for (bit, id) in system.layout.switchable.iter().enumerate() {
         if let ElementKind::Switch {
@@ -498,7 +498,7 @@ fn initial_topology(system: &System) -> Topology {
     t
 }
 
-fn initial_state(system: &System) -> DVector<f64> {
+pub(crate) fn initial_state(system: &System) -> DVector<f64> {
     let l = &system.layout;
     let mut z = DVector::zeros(l.nz());
     for (i, e) in system.circuit.elements.iter().enumerate() {
@@ -574,3 +574,4 @@ impl StormRing {
 }
 
 mod support;
+pub(crate) use support::settle_diodes;

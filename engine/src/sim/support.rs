@@ -1,59 +1,32 @@
 //! Bookkeeping around the stepping loop: diode settling, meters, samples, source
 //! breakpoints and the storm guard's error.
 
+use std::sync::Arc;
+
+use nalgebra::DVector;
+
+use crate::circuit::ElementId;
 use crate::error::EngineError;
 use crate::event::Sink;
 use crate::ladder::Tick;
-use crate::system::TopologyData;
+use crate::system::{System, TopologyData};
+use crate::topology::Topology;
 
 use super::{source_waveform, Simulation};
 
 impl Simulation {
-    /// Brings the diodes to a consistent state at the present instant: while some
-    /// diode's switching function is positive, flip the most violated one. States
-    /// (inductor currents, capacitor voltages) do not jump, so only the resistive
-    /// solution changes. A topology seen twice means no consistent state exists.
+    /// Brings the diodes to a consistent state at the present instant (see
+    /// [`settle_diodes`]).
     pub(super) fn settle(&mut self) -> Result<(), EngineError> {
-        self.visited.clear();
-        self.visited.push(self.topo.topology);
-        let limit = 4 * self.system.diode_count() + 8;
-        loop {
-            let nd = self.system.diode_count();
-            let mut worst: Option<(usize, f64)> = None;
-            for r in 0..nd {
-                let g = self.topo.rows.row(r).tr_dot(&self.z);
-                if g > 0.0 && worst.is_none_or(|(_, w)| g > w) {
-                    worst = Some((r, g));
-                }
-            }
-            let Some((r, _)) = worst else { return Ok(()) };
-            let bit = self.system.layout.diode_bits[r];
-            let next = self.topo.topology.with(bit, !self.topo.topology.is_on(bit));
-            self.flipped.push(self.system.layout.switchable[bit]);
-            if self.visited.contains(&next) || self.visited.len() > limit {
-                return Err(self.inconsistent(next));
-            }
-            self.visited.push(next);
-            self.topo = self.system.topology(next)?;
-        }
-    }
-
-    fn inconsistent(&self, repeated: crate::topology::Topology) -> EngineError {
-        let first = self
-            .visited
-            .iter()
-            .position(|&t| t == repeated)
-            .unwrap_or(0);
-        let mut elements: Vec<String> = self.flipped[first.min(self.flipped.len())..]
-            .iter()
-            .map(|e| self.system.circuit.elements[e.0].name.clone())
-            .collect();
-        elements.sort();
-        elements.dedup();
-        EngineError::InconsistentDiodes {
-            time: self.time(),
-            elements,
-        }
+        let time = self.time();
+        settle_diodes(
+            &mut self.system,
+            &mut self.topo,
+            &self.z,
+            time,
+            &mut self.visited,
+            &mut self.flipped,
+        )
     }
 
     /// Adds each meter's exact integral over a step of rung `p` starting at z.
@@ -142,4 +115,62 @@ impl Simulation {
             elements,
         }
     }
+}
+
+/// Brings the diodes to a consistent state at time `time` (seconds): while some
+/// diode's switching function is positive, flip the most violated one (the first in
+/// layout order on a tie). States (inductor currents, capacitor voltages) do not jump,
+/// so only the resistive solution changes. A topology seen twice means no consistent
+/// state exists. `flipped` receives the diodes flipped, in order. Shared by the exact
+/// path and the reference path ([`crate::reference`]) so both follow the same rule.
+pub(crate) fn settle_diodes(
+    system: &mut System,
+    topo: &mut Arc<TopologyData>,
+    z: &DVector<f64>,
+    time: f64,
+    visited: &mut Vec<Topology>,
+    flipped: &mut Vec<ElementId>,
+) -> Result<(), EngineError> {
+    visited.clear();
+    flipped.clear();
+    visited.push(topo.topology);
+    let nd = system.diode_count();
+    let limit = 4 * nd + 8;
+    loop {
+        let mut worst: Option<(usize, f64)> = None;
+        for r in 0..nd {
+            let g = topo.rows.row(r).tr_dot(z);
+            if g > 0.0 && worst.is_none_or(|(_, w)| g > w) {
+                worst = Some((r, g));
+            }
+        }
+        let Some((r, _)) = worst else { return Ok(()) };
+        let bit = system.layout.diode_bits[r];
+        let next = topo.topology.with(bit, !topo.topology.is_on(bit));
+        flipped.push(system.layout.switchable[bit]);
+        if visited.contains(&next) || visited.len() > limit {
+            return Err(inconsistent(system, visited, flipped, next, time));
+        }
+        visited.push(next);
+        *topo = system.topology(next)?;
+    }
+}
+
+fn inconsistent(
+    system: &System,
+    visited: &[Topology],
+    flipped: &[ElementId],
+    repeated: Topology,
+    time: f64,
+) -> EngineError {
+    // visited[k] is the topology before flip k: the cycle is the flips from the first
+    // visit of the repeated topology on.
+    let first = visited.iter().position(|&t| t == repeated).unwrap_or(0);
+    let mut elements: Vec<String> = flipped[first.min(flipped.len())..]
+        .iter()
+        .map(|e| system.circuit.elements[e.0].name.clone())
+        .collect();
+    elements.sort();
+    elements.dedup();
+    EngineError::InconsistentDiodes { time, elements }
 }
