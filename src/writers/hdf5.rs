@@ -20,10 +20,15 @@ pub const DEFAULT_CHUNK_LEN: usize = 4096;
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct SignalId(usize);
 
-struct Signal {
+/// Handle of an integer column ([`Hdf5Writer::add_integers`]).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct IntegerId(usize);
+
+/// A chunked, growable 1-D dataset and the samples not yet written to it.
+struct Column<T> {
     name: String,
     dataset: h5::Dataset,
-    staged: Vec<f64>,
+    staged: Vec<T>,
     written: usize,
 }
 
@@ -31,7 +36,8 @@ pub struct Hdf5Writer {
     path: PathBuf,
     file: h5::File,
     chunk_len: usize,
-    signals: Vec<Signal>,
+    signals: Vec<Column<f64>>,
+    integers: Vec<Column<u64>>,
 }
 
 impl Hdf5Writer {
@@ -45,6 +51,7 @@ impl Hdf5Writer {
             file,
             chunk_len,
             signals: Vec::new(),
+            integers: Vec::new(),
         })
     }
 
@@ -70,13 +77,78 @@ impl Hdf5Writer {
             .create("unit")
             .and_then(|attr| attr.write_scalar(&unit_value))
             .with_context(|| format!("writing unit attribute of {name:?}"))?;
-        self.signals.push(Signal {
+        self.signals.push(Column {
             name: name.to_owned(),
             dataset,
             staged: Vec::with_capacity(self.chunk_len),
             written: 0,
         });
         Ok(SignalId(self.signals.len() - 1))
+    }
+
+    /// Create a group, so later names may be `group/name`.
+    pub fn add_group(&mut self, name: &str) -> Result<()> {
+        self.file
+            .create_group(name)
+            .with_context(|| format!("creating group {name:?} in {}", self.path.display()))?;
+        Ok(())
+    }
+
+    /// Attach a text attribute to the file root (e.g. the scenario echoed back).
+    pub fn set_text_attribute(&mut self, name: &str, text: &str) -> Result<()> {
+        let value: VarLenUnicode = text
+            .parse()
+            .with_context(|| format!("attribute {name:?} is not valid text"))?;
+        self.file
+            .new_attr::<VarLenUnicode>()
+            .shape(())
+            .create(name)
+            .and_then(|attr| attr.write_scalar(&value))
+            .with_context(|| format!("writing attribute {name:?} to {}", self.path.display()))
+    }
+
+    /// Declare a growable integer column with a description attribute.
+    pub fn add_integers(&mut self, name: &str, description: &str) -> Result<IntegerId> {
+        let dataset = self
+            .file
+            .new_dataset::<u64>()
+            .chunk(self.chunk_len)
+            .shape((0..,))
+            .create(name)
+            .with_context(|| format!("creating dataset {name:?} in {}", self.path.display()))?;
+        let text: VarLenUnicode = description
+            .parse()
+            .with_context(|| format!("description of {name:?} is not valid text"))?;
+        dataset
+            .new_attr::<VarLenUnicode>()
+            .shape(())
+            .create("description")
+            .and_then(|attr| attr.write_scalar(&text))
+            .with_context(|| format!("writing description of {name:?}"))?;
+        self.integers.push(Column {
+            name: name.to_owned(),
+            dataset,
+            staged: Vec::with_capacity(self.chunk_len),
+            written: 0,
+        });
+        Ok(IntegerId(self.integers.len() - 1))
+    }
+
+    /// Append one value to an integer column.
+    pub fn append_integer(&mut self, id: IntegerId, value: u64) -> Result<()> {
+        let chunk_len = self.chunk_len;
+        let Some(column) = self.integers.get_mut(id.0) else {
+            bail!(
+                "unknown integer column {} for {}",
+                id.0,
+                self.path.display()
+            );
+        };
+        column.staged.push(value);
+        if column.staged.len() == chunk_len {
+            column.flush()?;
+        }
+        Ok(())
     }
 
     /// Append samples, in order. Any block length works; a single sample
@@ -98,6 +170,7 @@ impl Hdf5Writer {
     }
 
     /// Samples accepted so far for `id` (written plus staged).
+    #[cfg(test)]
     pub fn len(&self, id: SignalId) -> Option<usize> {
         self.signals.get(id.0).map(|s| s.written + s.staged.len())
     }
@@ -109,14 +182,18 @@ impl Hdf5Writer {
         for signal in &mut self.signals {
             signal.flush()?;
         }
+        for column in &mut self.integers {
+            column.flush()?;
+        }
         // Datasets hold file handles; release them before closing.
         self.signals.clear();
+        self.integers.clear();
         self.file
             .close()
             .with_context(|| format!("closing HDF5 file {}", self.path.display()))
     }
 
-    fn signal_mut(&mut self, id: SignalId) -> Result<&mut Signal> {
+    fn signal_mut(&mut self, id: SignalId) -> Result<&mut Column<f64>> {
         match self.signals.get_mut(id.0) {
             Some(signal) => Ok(signal),
             None => bail!("unknown signal id {} for {}", id.0, self.path.display()),
@@ -124,7 +201,7 @@ impl Hdf5Writer {
     }
 }
 
-impl Signal {
+impl<T: h5::H5Type> Column<T> {
     fn flush(&mut self) -> Result<()> {
         if self.staged.is_empty() {
             return Ok(());

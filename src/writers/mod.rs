@@ -1,3 +1,5 @@
-//! Sinks that receive waveforms as they are produced.
+//! Output writers: waveforms (HDF5), plots (SVG).
 
 pub mod hdf5;
+pub mod plots;
+pub mod waveforms;

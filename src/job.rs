@@ -1,0 +1,86 @@
+//! A validated, ready-to-run scenario: the second stage of loading (raw file →
+//! [`Job`]). Everything here is in SI units and already checked; running it needs no
+//! further validation of user input.
+
+use stepflux_models::controller::ControllerSpec;
+use stepflux_models::disturbance::Disturbance;
+use stepflux_models::gate::OpenLoopGate;
+use stepflux_models::template::ForwardDesign;
+
+/// How the switches are driven.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Drive {
+    /// Fixed frequency and duty.
+    OpenLoop(OpenLoopGate),
+    /// The behavioural PWM controller.
+    Controller(ControllerSpec),
+}
+
+/// Initial state of the run.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Start {
+    /// Every inductor current and capacitor voltage at zero (a cold start).
+    Zero,
+    /// Given values of the dynamic states, in the engine's state order.
+    States(Vec<f64>),
+}
+
+/// Time settings of a run.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Analysis {
+    /// End of the run, seconds.
+    pub stop_time: f64,
+    /// Waveform output interval, seconds (switching instants are always saved too).
+    pub sample_interval: f64,
+    /// Initial state.
+    pub start: Start,
+}
+
+/// Spec limits a run is judged against; `None` means not checked.
+#[derive(Clone, Debug, PartialEq, Default)]
+pub struct Limits {
+    /// Highest start-up overshoot, percent of the set point.
+    pub startup_overshoot_percent: Option<f64>,
+    /// Longest start-up time to 90 % of the set point, seconds.
+    pub startup_time: Option<f64>,
+    /// Largest deviation after a load or line step, percent of the set point.
+    pub step_deviation_percent: Option<f64>,
+    /// Longest recovery into the band after a step, seconds.
+    pub recovery_time: Option<f64>,
+    /// Recovery band, percent of the set point (default 1 %).
+    pub recovery_band_percent: Option<f64>,
+    /// Largest output ripple peak-to-peak, volts.
+    pub ripple: Option<f64>,
+    /// Smallest reset margin, percent of the period.
+    pub reset_margin_percent: Option<f64>,
+    /// Smallest flux-density margin below Bsat, percent.
+    pub flux_margin_percent: Option<f64>,
+    /// Lowest efficiency of the power stage over the final window, percent.
+    pub efficiency_percent: Option<f64>,
+}
+
+/// One scenario, ready to run.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Job {
+    /// Name, also the output folder name (already checked to be a safe single path
+    /// component).
+    pub name: String,
+    /// Free text for reports.
+    pub description: String,
+    /// The power stage.
+    pub design: ForwardDesign,
+    /// How it is driven.
+    pub drive: Drive,
+    /// Load, line and reference steps.
+    pub disturbances: Vec<Disturbance>,
+    /// Time settings.
+    pub analysis: Analysis,
+    /// Spec limits.
+    pub limits: Limits,
+    /// Probe names to save as waveforms (empty: all).
+    pub save: Vec<String>,
+    /// Fixed controller bias power for whole-converter efficiency, watts.
+    pub bias_power: f64,
+    /// The scenario as given, echoed into outputs.
+    pub source_text: String,
+}

@@ -1,0 +1,261 @@
+//! Runs one [`Job`]: builds the converter and its drive, streams waveforms and cycle
+//! records to `waveforms.h5`, measures as it goes, then writes `summary.json` and the
+//! plots. A failure part-way still closes the waveform file and writes the summary
+//! with the error, so nothing already computed is lost.
+
+use std::cell::RefCell;
+use std::path::{Path, PathBuf};
+use std::time::Instant;
+
+use anyhow::{Context, Result};
+use stepflux_engine::{SimOptions, Sink};
+use stepflux_models::controller::modulator::ClosedLoop;
+use stepflux_models::cycles::{CycleRecord, CycleSink};
+use stepflux_models::disturbance;
+use stepflux_models::gate::OpenLoopGate;
+use stepflux_models::run::ConverterRun;
+use stepflux_models::ModelError;
+
+use crate::job::{Drive, Job, Start};
+use crate::report::{Summary, Tracker};
+use crate::writers::{plots, waveforms::WaveformSink};
+
+/// Progress slices per run: often enough for a smooth bar, rare enough to cost nothing.
+const SLICES: usize = 200;
+
+/// What a finished run left behind.
+pub struct RunOutput {
+    /// The run's folder.
+    pub dir: PathBuf,
+    /// The summary as written.
+    pub summary: Summary,
+    /// Plot files written.
+    pub plots: Vec<PathBuf>,
+}
+
+/// The converter under its drive.
+enum Driver {
+    Closed(Box<ClosedLoop>),
+    Open {
+        run: Box<ConverterRun>,
+        gate: OpenLoopGate,
+    },
+}
+
+impl Driver {
+    fn new(job: &Job) -> Result<Self, ModelError> {
+        let options = |period: f64| SimOptions {
+            sample_interval: Some(job.analysis.sample_interval),
+            ..SimOptions::for_period(period)
+        };
+        let mut driver = match &job.drive {
+            Drive::Controller(spec) => {
+                let options = options(spec.clock_period());
+                Driver::Closed(Box::new(ClosedLoop::new(
+                    &job.design,
+                    spec,
+                    &job.disturbances,
+                    options,
+                )?))
+            }
+            Drive::OpenLoop(gate) => {
+                let conv = job.design.build()?;
+                let (conv, actions) = disturbance::prepare(&conv, &job.disturbances, None)?;
+                let mut run = ConverterRun::new(&conv, options(gate.period()), Vec::new())?;
+                run.schedule(actions);
+                Driver::Open {
+                    run: Box::new(run),
+                    gate: *gate,
+                }
+            }
+        };
+        if let Start::States(x) = &job.analysis.start {
+            driver.run_mut().sim.set_states(x)?;
+        }
+        Ok(driver)
+    }
+
+    fn run_mut(&mut self) -> &mut ConverterRun {
+        match self {
+            Driver::Closed(c) => &mut c.run,
+            Driver::Open { run, .. } => run,
+        }
+    }
+
+    fn run_ref(&self) -> &ConverterRun {
+        match self {
+            Driver::Closed(c) => &c.run,
+            Driver::Open { run, .. } => run,
+        }
+    }
+
+    fn advance_to(
+        &mut self,
+        t: f64,
+        sink: &mut dyn Sink,
+        cycles: &mut dyn CycleSink,
+    ) -> Result<(), ModelError> {
+        match self {
+            Driver::Closed(c) => c.advance_to(t, sink, cycles),
+            Driver::Open { run, gate } => {
+                let done = (run.sim.time() / gate.period()).round();
+                let target = (t / gate.period()).floor();
+                let periods = (target - done).max(0.0) as usize;
+                gate.run_periods(run, periods, sink, cycles)
+            }
+        }
+    }
+
+    fn finish(&mut self, cycles: &mut dyn CycleSink) {
+        self.run_mut().finish(cycles);
+    }
+}
+
+/// Samples and cycle records go both to the file and to the measurements. The run
+/// hands samples and cycle records to two different sinks; both sides share the file
+/// and the tracker through cells (calls never nest, so a borrow never overlaps).
+struct Shared<'a> {
+    file: RefCell<&'a mut WaveformSink>,
+    measure: RefCell<&'a mut Tracker>,
+}
+
+struct Samples<'s, 'a>(&'s Shared<'a>);
+struct Cycles<'s, 'a>(&'s Shared<'a>);
+
+impl Sink for Samples<'_, '_> {
+    fn sample(&mut self, time: f64, values: &[f64], at_event: bool) -> Result<(), String> {
+        self.0.measure.borrow_mut().sample(time, values, at_event);
+        self.0.file.borrow_mut().sample(time, values, at_event)
+    }
+}
+
+impl CycleSink for Cycles<'_, '_> {
+    fn cycle(&mut self, record: &CycleRecord) {
+        self.0.measure.borrow_mut().cycle(record);
+        self.0.file.borrow_mut().cycle(record);
+    }
+}
+
+/// Runs a job into `out_root/<job name>/`, calling `progress` with the fraction done.
+pub fn run_job(job: &Job, out_root: &Path, progress: &(dyn Fn(f64) + Sync)) -> Result<RunOutput> {
+    let started = Instant::now();
+    let dir = out_root.join(&job.name);
+    std::fs::create_dir_all(dir.join("plots"))
+        .with_context(|| format!("creating {}", dir.display()))?;
+    let mut driver = Driver::new(job)
+        .map_err(|e| anyhow::anyhow!(e))
+        .context("building the converter")?;
+    let probes: Vec<(String, &str)> = driver
+        .run_ref()
+        .probes()
+        .iter()
+        .map(|p| (p.name.clone(), p.unit))
+        .collect();
+    let save = saved_indices(job, &probes);
+    let h5_path = dir.join("waveforms.h5");
+    let mut file = WaveformSink::create(&h5_path, &probes, &save, &job.source_text)?;
+    let mut tracker = Tracker::new(job, &probes);
+    let shared = Shared {
+        file: RefCell::new(&mut file),
+        measure: RefCell::new(&mut tracker),
+    };
+    let outcome = simulate(job, &mut driver, &shared, progress);
+    drop(shared);
+    let samples = file.samples();
+    let file_result = file.finish();
+    let simulated = driver.run_ref().sim.time();
+    let mut summary = tracker.summary(job, simulated, started.elapsed().as_secs_f64(), samples);
+    if let Err(e) = &outcome {
+        summary.error = Some(format!("{e:#}"));
+    }
+    if let Err(e) = &file_result {
+        summary.error.get_or_insert_with(|| format!("{e:#}"));
+    }
+    let summary_path = dir.join("summary.json");
+    std::fs::write(&summary_path, serde_json::to_string_pretty(&summary)?)
+        .with_context(|| format!("writing {}", summary_path.display()))?;
+    outcome?;
+    file_result?;
+    let plots = write_plots(&h5_path, &dir, &probes, &save)?;
+    Ok(RunOutput {
+        dir,
+        summary,
+        plots,
+    })
+}
+
+fn simulate(
+    job: &Job,
+    driver: &mut Driver,
+    shared: &Shared<'_>,
+    progress: &(dyn Fn(f64) + Sync),
+) -> Result<()> {
+    let stop = job.analysis.stop_time;
+    let (mut samples, mut cycles) = (Samples(shared), Cycles(shared));
+    for k in 1..=SLICES {
+        let t = stop * k as f64 / SLICES as f64;
+        driver
+            .advance_to(t, &mut samples, &mut cycles)
+            .map_err(|e| anyhow::anyhow!(e))
+            .with_context(|| format!("simulating '{}'", job.name))?;
+        progress(k as f64 / SLICES as f64);
+    }
+    driver.finish(&mut cycles);
+    Ok(())
+}
+
+fn saved_indices(job: &Job, probes: &[(String, &str)]) -> Vec<usize> {
+    if job.save.is_empty() {
+        return (0..probes.len()).collect();
+    }
+    probes
+        .iter()
+        .enumerate()
+        .filter(|(_, (n, _))| job.save.iter().any(|s| s == n))
+        .map(|(k, _)| k)
+        .collect()
+}
+
+/// The standard plots, for whichever of their signals were saved.
+fn write_plots(
+    h5: &Path,
+    dir: &Path,
+    probes: &[(String, &str)],
+    save: &[usize],
+) -> Result<Vec<PathBuf>> {
+    let saved = |name: &str| save.iter().any(|&k| probes[k].0 == name);
+    let sets: [(&str, &str, &str, Vec<&str>); 3] = [
+        (
+            "output.svg",
+            "time",
+            "Output voltage and inductor current",
+            vec!["out.v", "lout.i"],
+        ),
+        (
+            "primary.svg",
+            "time",
+            "Drain voltage, magnetising current and flux density",
+            vec!["drain.v", "mag.i", "core.b"],
+        ),
+        (
+            "duty.svg",
+            "cycles/start",
+            "Duty per cycle",
+            vec!["cycles/duty"],
+        ),
+    ];
+    let mut written = Vec::new();
+    for (file, x, title, signals) in sets {
+        let present: Vec<&str> = signals
+            .into_iter()
+            .filter(|s| s.starts_with("cycles/") || saved(s))
+            .collect();
+        if present.is_empty() {
+            continue;
+        }
+        let path = dir.join("plots").join(file);
+        plots::plot(h5, x, &present, title, &path)?;
+        written.push(path);
+    }
+    Ok(written)
+}

@@ -1,0 +1,144 @@
+//! The run's waveform file: samples of the saved probes, the switching-instant flags,
+//! the cycle table and the scenario echoed as an attribute — streamed chunk by chunk.
+//!
+//! Layout of `waveforms.h5` (this project's own):
+//! - `time` (s) and one dataset per saved probe, named as the probe (`out.v` …), each
+//!   with a `unit` attribute; `at_event` (1 where the sample is a switching instant);
+//! - group `cycles`: `start` (s), `duty` (1), `mag_current_start` (A), `reset_end` (s,
+//!   NaN when the reset did not finish), `reset_incomplete` (0/1), `drain_peak` (V),
+//!   `b_peak` (T), `mag_current_peak` (A);
+//! - root attributes `scenario` (the scenario text) and `tool_version`.
+
+use std::path::Path;
+
+use anyhow::Result;
+use stepflux_engine::Sink;
+use stepflux_models::cycles::{CycleRecord, CycleSink};
+
+use super::hdf5::{Hdf5Writer, IntegerId, SignalId, DEFAULT_CHUNK_LEN};
+
+/// Per-cycle columns.
+struct CycleColumns {
+    start: SignalId,
+    duty: SignalId,
+    mag_start: SignalId,
+    mag_peak: SignalId,
+    reset_end: SignalId,
+    incomplete: IntegerId,
+    drain_peak: SignalId,
+    b_peak: SignalId,
+}
+
+/// Streams samples and cycle records into `waveforms.h5`.
+pub struct WaveformSink {
+    writer: Hdf5Writer,
+    time: SignalId,
+    at_event: IntegerId,
+    /// (probe index, dataset) of every saved probe.
+    saved: Vec<(usize, SignalId)>,
+    cycles: CycleColumns,
+    /// First write failure, reported when the run ends (cycle sinks cannot fail).
+    failure: Option<String>,
+    samples: usize,
+}
+
+impl WaveformSink {
+    /// Creates the file. `probes` lists every probe (name, unit) in sample order;
+    /// `save` the indices to keep.
+    pub fn create(
+        path: &Path,
+        probes: &[(String, &str)],
+        save: &[usize],
+        scenario: &str,
+    ) -> Result<Self> {
+        let mut w = Hdf5Writer::create(path, DEFAULT_CHUNK_LEN)?;
+        w.set_text_attribute("scenario", scenario)?;
+        w.set_text_attribute("tool_version", env!("CARGO_PKG_VERSION"))?;
+        let time = w.add_signal("time", "s")?;
+        let at_event = w.add_integers(
+            "at_event",
+            "1 where the sample is taken at a switching instant",
+        )?;
+        let mut saved = Vec::with_capacity(save.len());
+        for &k in save {
+            let (name, unit) = &probes[k];
+            saved.push((k, w.add_signal(name, unit)?));
+        }
+        w.add_group("cycles")?;
+        let cycles = CycleColumns {
+            start: w.add_signal("cycles/start", "s")?,
+            duty: w.add_signal("cycles/duty", "1")?,
+            mag_start: w.add_signal("cycles/mag_current_start", "A")?,
+            mag_peak: w.add_signal("cycles/mag_current_peak", "A")?,
+            reset_end: w.add_signal("cycles/reset_end", "s")?,
+            incomplete: w.add_integers(
+                "cycles/reset_incomplete",
+                "1 where a reset diode still conducted at the next turn-on",
+            )?,
+            drain_peak: w.add_signal("cycles/drain_peak", "V")?,
+            b_peak: w.add_signal("cycles/b_peak", "T")?,
+        };
+        Ok(WaveformSink {
+            writer: w,
+            time,
+            at_event,
+            saved,
+            cycles,
+            failure: None,
+            samples: 0,
+        })
+    }
+
+    /// Samples written so far.
+    pub fn samples(&self) -> usize {
+        self.samples
+    }
+
+    /// Flushes and closes the file; reports any write failure met on the way.
+    pub fn finish(self) -> Result<()> {
+        if let Some(f) = self.failure {
+            anyhow::bail!("writing waveforms: {f}");
+        }
+        self.writer.finish()
+    }
+
+    fn write_cycle(&mut self, r: &CycleRecord) -> Result<()> {
+        let c = &self.cycles;
+        let w = &mut self.writer;
+        w.append(c.start, &[r.start])?;
+        w.append(c.duty, &[r.duty])?;
+        w.append(c.mag_start, &[r.mag_current_start])?;
+        w.append(c.mag_peak, &[r.mag_current_peak])?;
+        w.append(c.reset_end, &[r.reset_end.unwrap_or(f64::NAN)])?;
+        w.append_integer(c.incomplete, u64::from(r.reset_incomplete))?;
+        w.append(c.drain_peak, &[r.drain_peak])?;
+        w.append(c.b_peak, &[r.b_peak])
+    }
+}
+
+impl Sink for WaveformSink {
+    fn sample(&mut self, time: f64, values: &[f64], at_event: bool) -> Result<(), String> {
+        let mut write = || -> Result<()> {
+            self.writer.append(self.time, &[time])?;
+            self.writer
+                .append_integer(self.at_event, u64::from(at_event))?;
+            for &(k, id) in &self.saved {
+                self.writer.append(id, &values[k..=k])?;
+            }
+            Ok(())
+        };
+        write().map_err(|e| format!("{e:#}"))?;
+        self.samples += 1;
+        Ok(())
+    }
+}
+
+impl CycleSink for WaveformSink {
+    fn cycle(&mut self, record: &CycleRecord) {
+        if self.failure.is_none() {
+            if let Err(e) = self.write_cycle(record) {
+                self.failure = Some(format!("{e:#}"));
+            }
+        }
+    }
+}
