@@ -193,7 +193,7 @@ impl ReferenceRun {
     /// Present value of probe `k`, in the probe's own units.
     pub fn probe(&self, k: usize) -> f64 {
         let r = self.system.diode_count() + self.system.observation.event_signals.len() + k;
-        self.topo.rows.row(r).tr_dot(&self.z)
+        self.topo.value(r, &self.z)
     }
 
     /// Turns a switch on or off now, then settles the diodes.
@@ -505,12 +505,12 @@ fn eval_events(
     g: &mut [f64],
 ) {
     for (r, gr) in g.iter_mut().enumerate().take(nd) {
-        *gr = topo.rows.row(r).tr_dot(z);
+        *gr = topo.value(r, z);
     }
     for (k, a) in armed.iter().enumerate() {
         g[nd + k] = match a {
             Some(f) => {
-                let v = topo.rows.row(nd + f.signal).tr_dot(z) + f.offset + f.rate * (t - f.t_ref);
+                let v = topo.value(nd + f.signal, z) + f.offset + f.rate * (t - f.t_ref);
                 match f.direction {
                     Direction::Rising => v,
                     Direction::Falling => -v,

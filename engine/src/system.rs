@@ -43,9 +43,21 @@ pub struct TopologyData {
     pub m: DMatrix<f64>,
     /// Exact propagators and meter integrals.
     pub ladder: Ladder,
-    /// Rows over z: diode switching functions (one per diode), then event signals,
-    /// then probes.
-    pub rows: DMatrix<f64>,
+    /// Rows over z, stored as columns so each is contiguous: diode switching
+    /// functions (one per diode), then event signals, then probes.
+    pub rows_t: DMatrix<f64>,
+}
+
+impl TopologyData {
+    /// Value of row `r` (see [`TopologyData::rows_t`]) at state `z`.
+    pub fn value(&self, r: usize, z: &nalgebra::DVector<f64>) -> f64 {
+        self.rows_t.column(r).dot(z)
+    }
+
+    /// Number of rows.
+    pub fn row_count(&self) -> usize {
+        self.rows_t.ncols()
+    }
 }
 
 /// A circuit ready to simulate.
@@ -170,7 +182,7 @@ impl System {
             topology: t,
             m,
             ladder,
-            rows,
+            rows_t: rows.transpose(),
         })
     }
 

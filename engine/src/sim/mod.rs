@@ -72,6 +72,8 @@ pub struct Simulation {
     z: DVector<f64>,
     topo: Arc<TopologyData>,
     armed: [Option<Armed>; MAX_ARMED],
+    /// One past the highest occupied slot: loops over events stop here.
+    armed_len: usize,
     sample_every: Option<Tick>,
     next_sample: Tick,
     /// Per source: next breakpoint time (seconds) of its waveform.
@@ -126,7 +128,7 @@ impl Simulation {
         let topo = system.topology(initial_topology(&system))?;
         let z = initial_state(&system);
         let nz = z.len();
-        let n_rows = topo.rows.nrows();
+        let n_rows = topo.row_count();
         let n_events = system.diode_count() + MAX_ARMED;
         let breaks = system
             .layout
@@ -142,6 +144,7 @@ impl Simulation {
             z,
             topo,
             armed: [None; MAX_ARMED],
+            armed_len: 0,
             sample_every,
             next_sample: 0,
             breaks,
@@ -211,16 +214,13 @@ impl Simulation {
 
     /// Present value of event signal `k` (without offset or rate).
     pub fn event_signal(&self, k: usize) -> f64 {
-        self.topo
-            .rows
-            .row(self.system.diode_count() + k)
-            .tr_dot(&self.z)
+        self.topo.value(self.system.diode_count() + k, &self.z)
     }
 
     /// Present value of probe `k`.
     pub fn probe(&self, k: usize) -> f64 {
         let r = self.system.diode_count() + self.system.observation.event_signals.len() + k;
-        self.topo.rows.row(r).tr_dot(&self.z)
+        self.topo.value(r, &self.z)
     }
 
     /// Turns a switch on or off now, then settles the diodes.
@@ -299,6 +299,7 @@ impl Simulation {
         };
         let row = self.system.diode_count() + f.signal;
         self.armed[slot] = Some(Armed { f, row });
+        self.armed_len = self.armed_len.max(slot + 1);
         Ok(EventSlot(slot as u8))
     }
 
@@ -307,6 +308,11 @@ impl Simulation {
         if let Some(a) = self.armed.get_mut(usize::from(slot.0)) {
             *a = None;
         }
+        self.armed_len = self
+            .armed
+            .iter()
+            .rposition(Option::is_some)
+            .map_or(0, |i| i + 1);
     }
 
     /// Runs until `until` seconds or until an armed event crosses.
@@ -343,7 +349,7 @@ impl Simulation {
         let topo = self.topo.clone();
         eval_events(
             &topo,
-            &self.armed,
+            &self.armed[..self.armed_len],
             self.system.diode_count(),
             self.system.grid.time(self.tick),
             &self.z,
@@ -353,13 +359,14 @@ impl Simulation {
         let t_hi = self.system.grid.time(self.tick + (1 << p));
         eval_events(
             &topo,
-            &self.armed,
+            &self.armed[..self.armed_len],
             self.system.diode_count(),
             t_hi,
             &self.z_hi,
             &mut self.g_hi,
         );
-        if fired(&self.g_lo, &self.g_hi) {
+        let n_events = self.system.diode_count() + self.armed_len;
+        if fired(&self.g_lo[..n_events], &self.g_hi[..n_events]) {
             return self.locate(&topo, p, sink);
         }
         self.accumulate(&topo, p);
@@ -405,11 +412,19 @@ impl Simulation {
         sink: &mut dyn Sink,
     ) -> Result<StepOutcome, EngineError> {
         let nd = self.system.diode_count();
+        let n_events = nd + self.armed_len;
         for level in (0..p).rev() {
             topo.ladder.phi[level as usize].mul_to(&self.z, &mut self.z_mid);
             let t_mid = self.system.grid.time(self.tick + (1 << level));
-            eval_events(topo, &self.armed, nd, t_mid, &self.z_mid, &mut self.g_mid);
-            if fired(&self.g_lo, &self.g_mid) {
+            eval_events(
+                topo,
+                &self.armed[..self.armed_len],
+                nd,
+                t_mid,
+                &self.z_mid,
+                &mut self.g_mid,
+            );
+            if fired(&self.g_lo[..n_events], &self.g_mid[..n_events]) {
                 std::mem::swap(&mut self.z_hi, &mut self.z_mid);
                 std::mem::swap(&mut self.g_hi, &mut self.g_mid);
             } else {
@@ -423,7 +438,7 @@ impl Simulation {
         std::mem::swap(&mut self.z, &mut self.z_hi);
         self.tick += 1;
         self.check_finite()?;
-        let armed = armed_mask(&self.g_lo, &self.g_hi, nd);
+        let armed = armed_mask(&self.g_lo[..n_events], &self.g_hi[..n_events], nd);
         self.flipped.clear();
         self.settle()?;
         let diode = self.flipped.first().copied();
@@ -452,12 +467,12 @@ fn eval_events(
     g: &mut [f64],
 ) {
     for (r, gr) in g.iter_mut().enumerate().take(nd) {
-        *gr = topo.rows.row(r).tr_dot(z);
+        *gr = topo.value(r, z);
     }
     for (k, a) in armed.iter().enumerate() {
         g[nd + k] = match a {
             Some(a) => {
-                let v = topo.rows.row(a.row).tr_dot(z) + a.f.offset + a.f.rate * (t - a.f.t_ref);
+                let v = topo.value(a.row, z) + a.f.offset + a.f.rate * (t - a.f.t_ref);
                 if a.f.direction == Direction::Rising {
                     v
                 } else {

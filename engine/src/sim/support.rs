@@ -42,7 +42,7 @@ impl Simulation {
         let first = self.system.diode_count() + self.system.observation.event_signals.len();
         let n = self.system.observation.probes.len();
         for k in 0..n {
-            self.values[k] = self.topo.rows.row(first + k).tr_dot(&self.z);
+            self.values[k] = self.topo.value(first + k, &self.z);
         }
         let time = self.time();
         sink.sample(time, &self.values[..n], at_event)
@@ -139,7 +139,7 @@ pub(crate) fn settle_diodes(
     loop {
         let mut worst: Option<(usize, f64)> = None;
         for r in 0..nd {
-            let g = topo.rows.row(r).tr_dot(z);
+            let g = topo.value(r, z);
             if g > 0.0 && worst.is_none_or(|(_, w)| g > w) {
                 worst = Some((r, g));
             }
