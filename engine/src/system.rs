@@ -186,6 +186,21 @@ impl System {
         })
     }
 
+    /// Switching functions of every diode in topology `t` at state `z` (positive: the
+    /// diode wants to change state), from a nodal solve alone.
+    pub fn diode_functions(
+        &self,
+        t: Topology,
+        z: &nalgebra::DVector<f64>,
+    ) -> Result<Vec<f64>, EngineError> {
+        let nodal = self.nodal(t)?;
+        self.layout
+            .diode_bits
+            .iter()
+            .map(|&bit| Ok(self.diode_function(&nodal, t, bit)?.transpose().dot(z)))
+            .collect()
+    }
+
     /// Switching function of a diode: positive means it wants to change state.
     /// Conducting: −i (current falls through zero). Blocking: v − vf (voltage rises
     /// through the threshold).

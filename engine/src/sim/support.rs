@@ -149,11 +149,57 @@ pub(crate) fn settle_diodes(
         let next = topo.topology.with(bit, !topo.topology.is_on(bit));
         flipped.push(system.layout.switchable[bit]);
         if visited.contains(&next) || visited.len() > limit {
-            return Err(inconsistent(system, visited, flipped, next, time));
+            // The greedy rule cycles; a consistent state may still exist among the
+            // diodes it kept flipping, so try their combinations before giving up.
+            return match search_consistent(system, visited[0], flipped, z)? {
+                Some(found) => {
+                    *topo = system.topology(found)?;
+                    Ok(())
+                }
+                None => Err(inconsistent(system, visited, flipped, next, time)),
+            };
         }
         visited.push(next);
         *topo = system.topology(next)?;
     }
+}
+
+/// Most diodes whose combinations [`search_consistent`] tries (2^10 nodal solves).
+const MAX_SEARCHED_DIODES: usize = 10;
+
+/// Tries every on/off combination of the diodes in `flipped` on top of `start`, fewest
+/// changes first (then in bit order, so the result is deterministic), and returns the
+/// first topology in which no diode wants to change. Only nodal solves are needed, no
+/// exponentials; this runs only when the greedy rule has cycled.
+fn search_consistent(
+    system: &System,
+    start: Topology,
+    flipped: &[ElementId],
+    z: &DVector<f64>,
+) -> Result<Option<Topology>, EngineError> {
+    let mut bits: Vec<usize> = flipped
+        .iter()
+        .filter_map(|e| system.layout.bit_of[e.0])
+        .collect();
+    bits.sort_unstable();
+    bits.dedup();
+    if bits.len() > MAX_SEARCHED_DIODES {
+        return Ok(None);
+    }
+    let mut masks: Vec<u32> = (1..1u32 << bits.len()).collect();
+    masks.sort_by_key(|m| (m.count_ones(), *m));
+    for mask in masks {
+        let mut t = start;
+        for (k, &bit) in bits.iter().enumerate() {
+            if mask >> k & 1 == 1 {
+                t = t.with(bit, !start.is_on(bit));
+            }
+        }
+        if system.diode_functions(t, z)?.iter().all(|&g| g <= 0.0) {
+            return Ok(Some(t));
+        }
+    }
+    Ok(None)
 }
 
 fn inconsistent(
