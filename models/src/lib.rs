@@ -12,6 +12,7 @@
 //! Everything here is deterministic.
 #![deny(missing_docs)]
 
+pub mod averaged;
 pub mod components;
 pub mod controller;
 pub mod cycles;
