@@ -8,7 +8,7 @@ use std::path::{Path, PathBuf};
 use std::time::Instant;
 
 use anyhow::{Context, Result};
-use stepflux_engine::{SimOptions, Sink};
+use stepflux_engine::{SimOptions, Sink, Topology};
 use stepflux_models::controller::modulator::ClosedLoop;
 use stepflux_models::cycles::{CycleRecord, CycleSink};
 use stepflux_models::disturbance;
@@ -127,6 +127,18 @@ impl Sink for Samples<'_, '_> {
         self.0.measure.borrow_mut().sample(time, values, at_event);
         self.0.file.borrow_mut().sample(time, values, at_event)
     }
+
+    fn topology_change(
+        &mut self,
+        time: f64,
+        before: Topology,
+        after: Topology,
+    ) -> Result<(), String> {
+        self.0
+            .file
+            .borrow_mut()
+            .topology_change(time, before, after)
+    }
 }
 
 impl CycleSink for Cycles<'_, '_> {
@@ -153,7 +165,8 @@ pub fn run_job(job: &Job, out_root: &Path, progress: &(dyn Fn(f64) + Sync)) -> R
         .collect();
     let save = saved_indices(job, &probes);
     let h5_path = dir.join("waveforms.h5");
-    let mut file = WaveformSink::create(&h5_path, &probes, &save, &job.source_text)?;
+    let switchable = switchable_names(driver.run_ref());
+    let mut file = WaveformSink::create(&h5_path, &probes, &save, &switchable, &job.source_text)?;
     let mut tracker = Tracker::new(job, &probes);
     let shared = Shared {
         file: RefCell::new(&mut file),
@@ -202,6 +215,16 @@ fn simulate(
     }
     driver.finish(&mut cycles);
     Ok(())
+}
+
+fn switchable_names(run: &ConverterRun) -> Vec<String> {
+    let system = run.sim.system();
+    system
+        .layout()
+        .switchable
+        .iter()
+        .map(|&e| system.circuit().element(e).name.clone())
+        .collect()
 }
 
 fn saved_indices(job: &Job, probes: &[(String, &str)]) -> Vec<usize> {

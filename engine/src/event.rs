@@ -2,6 +2,7 @@
 //! locates, and the reasons a step or an advance stops.
 
 use crate::circuit::ElementId;
+use crate::topology::Topology;
 
 /// Which way a crossing must go to count.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -74,6 +75,19 @@ pub trait Sink {
     /// One sample. `at_event` marks samples taken at a switching instant (after the
     /// switching) rather than on the fixed output interval.
     fn sample(&mut self, time: f64, values: &[f64], at_event: bool) -> Result<(), String>;
+
+    /// The topology changed at `time` from `before` to `after` (bit k is
+    /// [`crate::Layout::switchable`]`[k]`). Called just before the flagged sample of
+    /// that instant. The default ignores it.
+    fn topology_change(
+        &mut self,
+        time: f64,
+        before: Topology,
+        after: Topology,
+    ) -> Result<(), String> {
+        let _ = (time, before, after);
+        Ok(())
+    }
 }
 
 /// A sink that drops everything, for runs that only want measurements.

@@ -7,12 +7,14 @@
 //! - group `cycles`: `start` (s), `duty` (1), `mag_current_start` (A), `reset_end` (s,
 //!   NaN when the reset did not finish), `reset_incomplete` (0/1), `drain_peak` (V),
 //!   `b_peak` (T), `mag_current_peak` (A);
+//! - group `events`: `time` (s), `before` and `after` (topology bit masks; bit k is the
+//!   k-th name in the root attribute `topology_bits`, one name per line);
 //! - root attributes `scenario` (the scenario text) and `tool_version`.
 
 use std::path::Path;
 
 use anyhow::Result;
-use stepflux_engine::Sink;
+use stepflux_engine::{Sink, Topology};
 use stepflux_models::cycles::{CycleRecord, CycleSink};
 
 use super::hdf5::{Hdf5Writer, IntegerId, SignalId, DEFAULT_CHUNK_LEN};
@@ -29,8 +31,16 @@ struct CycleColumns {
     b_peak: SignalId,
 }
 
+/// Topology-change columns.
+struct EventColumns {
+    time: SignalId,
+    before: IntegerId,
+    after: IntegerId,
+}
+
 /// Streams samples and cycle records into `waveforms.h5`.
 pub struct WaveformSink {
+    events: EventColumns,
     writer: Hdf5Writer,
     time: SignalId,
     at_event: IntegerId,
@@ -45,14 +55,29 @@ pub struct WaveformSink {
 impl WaveformSink {
     /// Creates the file. `probes` lists every probe (name, unit) in sample order;
     /// `save` the indices to keep.
+    /// `switchable` names the switches and diodes in topology bit order.
     pub fn create(
         path: &Path,
         probes: &[(String, &str)],
         save: &[usize],
+        switchable: &[String],
         scenario: &str,
     ) -> Result<Self> {
         let mut w = Hdf5Writer::create(path, DEFAULT_CHUNK_LEN)?;
         w.set_text_attribute("scenario", scenario)?;
+        w.set_text_attribute("topology_bits", &switchable.join("\n"))?;
+        w.add_group("events")?;
+        let events = EventColumns {
+            time: w.add_signal("events/time", "s")?,
+            before: w.add_integers(
+                "events/before",
+                "topology before the change (bit k: k-th name of topology_bits)",
+            )?,
+            after: w.add_integers(
+                "events/after",
+                "topology after the change (bit k: k-th name of topology_bits)",
+            )?,
+        };
         w.set_text_attribute("tool_version", env!("CARGO_PKG_VERSION"))?;
         let time = w.add_signal("time", "s")?;
         let at_event = w.add_integers(
@@ -79,6 +104,7 @@ impl WaveformSink {
             b_peak: w.add_signal("cycles/b_peak", "T")?,
         };
         Ok(WaveformSink {
+            events,
             writer: w,
             time,
             at_event,
@@ -130,6 +156,24 @@ impl Sink for WaveformSink {
         write().map_err(|e| format!("{e:#}"))?;
         self.samples += 1;
         Ok(())
+    }
+
+    fn topology_change(
+        &mut self,
+        time: f64,
+        before: Topology,
+        after: Topology,
+    ) -> Result<(), String> {
+        self.write_event(time, before.0, after.0)
+            .map_err(|e| format!("{e:#}"))
+    }
+}
+
+impl WaveformSink {
+    fn write_event(&mut self, time: f64, before: u64, after: u64) -> Result<()> {
+        self.writer.append(self.events.time, &[time])?;
+        self.writer.append_integer(self.events.before, before)?;
+        self.writer.append_integer(self.events.after, after)
     }
 }
 

@@ -72,6 +72,8 @@ pub struct Simulation {
     z: DVector<f64>,
     topo: Arc<TopologyData>,
     armed: [Option<Armed>; MAX_ARMED],
+    /// Topology last reported to the sink.
+    reported: Topology,
     /// One past the highest occupied slot: loops over events stop here.
     armed_len: usize,
     sample_every: Option<Tick>,
@@ -145,6 +147,7 @@ impl Simulation {
             topo,
             armed: [None; MAX_ARMED],
             armed_len: 0,
+            reported: Topology::default(),
             sample_every,
             next_sample: 0,
             breaks,

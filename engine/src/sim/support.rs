@@ -45,6 +45,12 @@ impl Simulation {
             self.values[k] = self.topo.value(first + k, &self.z);
         }
         let time = self.time();
+        let now = self.topo.topology;
+        if at_event && now != self.reported {
+            sink.topology_change(time, self.reported, now)
+                .map_err(|message| EngineError::Sink { time, message })?;
+            self.reported = now;
+        }
         sink.sample(time, &self.values[..n], at_event)
             .map_err(|message| EngineError::Sink { time, message })
     }
