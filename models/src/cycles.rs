@@ -26,6 +26,9 @@ pub struct CycleRecord {
     pub reset_end: Option<f64>,
     /// Whether a reset diode still conducted at the next turn-on.
     pub reset_incomplete: bool,
+    /// Drain voltage just after turn-on, volts: the output capacitance's voltage when the
+    /// switch has one (it cannot jump), else the on-state drop.
+    pub drain_start: f64,
     /// Highest drain voltage, volts.
     pub drain_peak: f64,
     /// Highest |B|, tesla.
@@ -125,6 +128,7 @@ impl CycleWatch {
             mag_current_peak: i,
             reset_end: None,
             reset_incomplete: false,
+            drain_start: sim.probe(self.points.drain),
             drain_peak: sim.probe(self.points.drain),
             b_peak: sim.probe(self.points.flux).abs(),
         });

@@ -2,7 +2,7 @@
 //! gate commands by role, the saturation knee, and the cycle watch.
 
 use stepflux_engine::{
-    Direction, ElementId, EventFn, EventSlot, Observation, Quantity, Signal, SimOptions,
+    Direction, ElementId, EventFn, EventSlot, Meter, Observation, Quantity, Signal, SimOptions,
     Simulation, Sink, StepOutcome, Stop,
 };
 
@@ -68,6 +68,17 @@ impl ConverterRun {
         options: SimOptions,
         extra_events: Vec<Signal>,
     ) -> Result<Self, ModelError> {
+        Self::with_meters(conv, options, extra_events, Vec::new())
+    }
+
+    /// As [`ConverterRun::new`], with engine meters (exact energy integrals, read with
+    /// `sim.meters()` in the order given).
+    pub fn with_meters(
+        conv: &Converter,
+        options: SimOptions,
+        extra_events: Vec<Signal>,
+        meters: Vec<Meter>,
+    ) -> Result<Self, ModelError> {
         let mut event_signals = vec![Signal::of(Quantity::Current(conv.key.magnetising))];
         event_signals.extend(extra_events);
         let observation = Observation {
@@ -77,7 +88,7 @@ impl ConverterRun {
                 .map(|p| (p.name.clone(), p.signal.clone()))
                 .collect(),
             event_signals,
-            meters: Vec::new(),
+            meters,
         };
         let sim = Simulation::new(conv.circuit.clone(), observation, options)?;
         let points = WatchPoints::new(

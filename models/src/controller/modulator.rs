@@ -9,7 +9,7 @@
 //! plus the gate delay. Nothing can turn the switch on again before the next clock: that
 //! is the latch.
 
-use stepflux_engine::{Direction, EventFn, Signal, SimOptions, Sink, Stop};
+use stepflux_engine::{Direction, EventFn, Meter, Signal, SimOptions, Sink, Stop};
 
 use super::{ControllerParts, ControllerSpec, OutputMode};
 use crate::cycles::CycleSink;
@@ -43,11 +43,24 @@ impl ClosedLoop {
         disturbances: &[Disturbance],
         options: SimOptions,
     ) -> Result<Self, ModelError> {
+        Self::with_meters(design, spec, disturbances, options, |_| Ok(Vec::new()))
+    }
+
+    /// As [`ClosedLoop::new`], with engine meters made from the converter as simulated
+    /// (power stage, controller parts and disturbance branches).
+    pub fn with_meters(
+        design: &ForwardDesign,
+        spec: &ControllerSpec,
+        disturbances: &[Disturbance],
+        options: SimOptions,
+        meters: impl FnOnce(&Converter) -> Result<Vec<Meter>, ModelError>,
+    ) -> Result<Self, ModelError> {
         let conv = design.build()?;
         let (with_ctl, parts) = spec.attach(&conv)?;
         let (converter, actions) = prepare(&with_ctl, disturbances, Some(parts.reference))?;
         let control = Signal::of(stepflux_engine::Quantity::NodeVoltage(parts.control));
-        let mut run = ConverterRun::new(&converter, options, vec![control])?;
+        let meters = meters(&converter)?;
+        let mut run = ConverterRun::with_meters(&converter, options, vec![control], meters)?;
         run.schedule(actions);
         let enabled_at = if spec.lockout.is_some() {
             None
