@@ -1,0 +1,167 @@
+//! Losses, efficiency and the energy balance over a window between two snapshots.
+//!
+//! Powers are energy differences over the window divided by its length, so they are
+//! exact averages (the meters are exact integrals), whatever the waveforms did inside.
+//! Efficiency of the power stage is P_out/P_in; of the whole converter,
+//! P_out/(P_in + P_bias) with the controller's bias power P_bias (a fixed figure the
+//! designer supplies, watts), which is why it falls at light load: the bias stays while
+//! P_out shrinks.
+
+use super::losses::{EnergySnapshot, LossClass, LossMeters};
+use super::Figure;
+use crate::error::ModelError;
+
+/// Energies over a window, by element and class.
+#[derive(Clone, Debug, PartialEq)]
+pub struct LossReport {
+    /// Window start and end, seconds.
+    pub window: (f64, f64),
+    /// Energy per metered element over the window: (name, class, joules).
+    pub elements: Vec<(String, LossClass, f64)>,
+    /// Change of the energy stored in the power stage, joules.
+    pub stored_change: f64,
+    /// Energy the main switch's Coss released at turn-on (part of
+    /// [`LossClass::Switch`]), joules.
+    pub coss_turn_on: f64,
+}
+
+impl LossReport {
+    /// The report between snapshots `a` and `b` of the same run, with the Coss
+    /// turn-on energy counted over the same window (0 if not measured).
+    pub fn between(
+        meters: &LossMeters,
+        a: &EnergySnapshot,
+        b: &EnergySnapshot,
+        coss_turn_on: f64,
+    ) -> Result<Self, ModelError> {
+        let n = meters.entries.len();
+        if !(b.time > a.time && a.energies.len() == n && b.energies.len() == n) {
+            return Err(ModelError::Infeasible(format!(
+                "loss report: snapshots at {} s and {} s are not an increasing pair of this account",
+                a.time, b.time
+            )));
+        }
+        let elements = meters
+            .entries
+            .iter()
+            .zip(a.energies.iter().zip(&b.energies))
+            .map(|(e, (ea, eb))| (e.element.clone(), e.class, eb - ea))
+            .collect();
+        Ok(LossReport {
+            window: (a.time, b.time),
+            elements,
+            stored_change: b.stored - a.stored,
+            coss_turn_on,
+        })
+    }
+
+    /// Window length, seconds.
+    pub fn duration(&self) -> f64 {
+        self.window.1 - self.window.0
+    }
+
+    /// Energy of one class over the window, joules.
+    pub fn class_energy(&self, class: LossClass) -> f64 {
+        self.elements
+            .iter()
+            .filter(|e| e.1 == class)
+            // A fold from +0, not `sum`, whose empty value is −0.
+            .fold(0.0, |acc, e| acc + e.2)
+    }
+
+    /// Average power of one class, watts.
+    pub fn class_power(&self, class: LossClass) -> f64 {
+        self.class_energy(class) / self.duration()
+    }
+
+    /// Average input power, watts.
+    pub fn input_power(&self) -> f64 {
+        self.class_power(LossClass::Input)
+    }
+
+    /// Average power into the load, watts.
+    pub fn output_power(&self) -> f64 {
+        self.class_power(LossClass::Output)
+    }
+
+    /// Average total loss, watts.
+    pub fn loss_power(&self) -> f64 {
+        LossClass::ALL
+            .iter()
+            .filter(|c| c.is_loss())
+            .map(|&c| self.class_power(c))
+            .sum()
+    }
+
+    /// Main-switch conduction: the switch class minus the Coss turn-on energy, watts.
+    pub fn switch_conduction_power(&self) -> f64 {
+        (self.class_energy(LossClass::Switch) - self.coss_turn_on) / self.duration()
+    }
+
+    /// Average rate of change of stored energy, watts.
+    pub fn stored_power(&self) -> f64 {
+        self.stored_change / self.duration()
+    }
+
+    /// P_in − P_out − Σ losses − dE_stored/dt, watts: zero but for rounding when every
+    /// element is accounted for.
+    pub fn balance_error(&self) -> f64 {
+        self.input_power() - self.output_power() - self.loss_power() - self.stored_power()
+    }
+
+    /// Power-stage efficiency P_out/P_in.
+    pub fn efficiency(&self) -> f64 {
+        self.output_power() / self.input_power()
+    }
+
+    /// Whole-converter efficiency with a fixed controller bias power `bias` watts:
+    /// P_out/(P_in + P_bias).
+    pub fn efficiency_with_bias(&self, bias: f64) -> f64 {
+        self.output_power() / (self.input_power() + bias)
+    }
+
+    /// Every figure: powers, losses by class and element, balance, efficiencies.
+    pub fn figures(&self, bias: f64) -> Vec<Figure> {
+        let mut f = vec![
+            Figure::new("energy.window_start", self.window.0, "s"),
+            Figure::new("energy.window_end", self.window.1, "s"),
+            Figure::new("power.in", self.input_power(), "W"),
+            Figure::new("power.out", self.output_power(), "W"),
+            Figure::new("power.loss_total", self.loss_power(), "W"),
+            Figure::new("power.stored_change", self.stored_power(), "W"),
+            Figure::new("power.balance_error", self.balance_error(), "W"),
+        ];
+        for c in LossClass::ALL.iter().filter(|c| c.is_loss()) {
+            f.push(Figure::new(
+                format!("loss.{}", c.name()),
+                self.class_power(*c),
+                "W",
+            ));
+        }
+        f.push(Figure::new(
+            "loss.switch.coss_turn_on",
+            self.coss_turn_on / self.duration(),
+            "W",
+        ));
+        f.push(Figure::new(
+            "loss.switch.conduction",
+            self.switch_conduction_power(),
+            "W",
+        ));
+        for (name, class, e) in self.elements.iter().filter(|e| e.1.is_loss()) {
+            f.push(Figure::new(
+                format!("loss.{}.{name}", class.name()),
+                e / self.duration(),
+                "W",
+            ));
+        }
+        f.push(Figure::new("efficiency.stage", self.efficiency(), "1"));
+        f.push(Figure::new("bias_power", bias, "W"));
+        f.push(Figure::new(
+            "efficiency.with_bias",
+            self.efficiency_with_bias(bias),
+            "1",
+        ));
+        f
+    }
+}

@@ -1,0 +1,94 @@
+//! What a designer reads off a run: losses and efficiency, start-up, load and line
+//! steps, ripple, and the per-cycle core-reset check.
+//!
+//! Everything streams. A measurement sees samples `(time, probe values, at_event)` and
+//! closed cycle records through a [`Tee`], which forwards both to the run's own sink
+//! and cycle sink, so writers keep streaming; each measurement keeps O(1) state (or
+//! O(window) where stated) and never stores a run. Energies are not sampled at all:
+//! [`LossMeters`] makes engine meters (exact quadratic integrals) and reads them at two
+//! instants.
+//!
+//! Every result reduces to a list of [`Figure`]s, each with its name and unit.
+//!
+//! Sample-based extremes (peaks, dips, ripple) are taken at the samples the engine
+//! emits: every `sample_interval` plus one at each event, gate or source change. The
+//! switching instants, where converter waveforms turn, are therefore always seen;
+//! ringing between events is seen only as finely as the sample interval.
+
+mod coss;
+mod efficiency;
+mod losses;
+mod reset_check;
+mod ripple;
+mod startup;
+mod step;
+mod tee;
+mod window;
+
+pub use coss::CossTurnOn;
+pub use efficiency::LossReport;
+pub use losses::{EnergySnapshot, LossClass, LossMeters};
+pub use reset_check::{Criterion, CycleCheck, ResetCheck, ResetLimits, ResetVerdict};
+pub use ripple::{Ripple, RippleResult};
+pub use startup::{StartUp, StartUpResult};
+pub use step::{StepResponse, StepResult, StepSettings};
+pub use tee::{CycleTee, SampleTee, Tee};
+
+use crate::cycles::CycleRecord;
+use crate::error::ModelError;
+use crate::template::Probe;
+
+/// One reported number.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Figure {
+    /// Dotted name, e.g. `startup.t90`.
+    pub name: String,
+    /// Value in `unit`.
+    pub value: f64,
+    /// SI unit symbol, `%` or `1` for a pure number.
+    pub unit: &'static str,
+}
+
+impl Figure {
+    /// A figure.
+    pub fn new(name: impl Into<String>, value: f64, unit: &'static str) -> Self {
+        Figure {
+            name: name.into(),
+            value,
+            unit,
+        }
+    }
+}
+
+impl std::fmt::Display for Figure {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "{} = {:.6e} {}", self.name, self.value, self.unit)
+    }
+}
+
+/// A streaming measurement: fed samples and cycle records, reports figures.
+pub trait Measurement {
+    /// One sample: time in seconds, probe values in probe order, and whether it was
+    /// taken at an event.
+    fn sample(&mut self, _time: f64, _values: &[f64], _at_event: bool) {}
+    /// One closed cycle record.
+    fn cycle(&mut self, _record: &CycleRecord) {}
+    /// The figures so far.
+    fn figures(&self) -> Vec<Figure>;
+}
+
+/// Position of probe `name`, or an error naming it.
+pub(crate) fn probe_index(probes: &[Probe], name: &str) -> Result<usize, ModelError> {
+    probes
+        .iter()
+        .position(|p| p.name == name)
+        .ok_or_else(|| ModelError::Infeasible(format!("measurement needs probe '{name}'")))
+}
+
+/// Value as a percentage of `of`.
+pub(crate) fn percent(value: f64, of: f64) -> f64 {
+    100.0 * value / of
+}
+
+#[cfg(test)]
+mod tests;

@@ -1,0 +1,83 @@
+//! Ripple: peak-to-peak and mean of one probe over a window (normally a steady-state
+//! stretch of whole switching periods).
+
+use super::window::{WindowExtremes, WindowMean};
+use super::{probe_index, Figure, Measurement};
+use crate::error::ModelError;
+use crate::template::{Probe, Unit};
+
+/// Peak-to-peak and time average of a probe over `[from, to]`.
+#[derive(Clone, Debug)]
+pub struct Ripple {
+    name: String,
+    unit: Unit,
+    column: usize,
+    mean: WindowMean,
+    extremes: WindowExtremes,
+}
+
+/// What [`Ripple`] found.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct RippleResult {
+    /// Highest minus lowest sample, in the probe's unit.
+    pub peak_to_peak: f64,
+    /// Time average (trapezoidal between samples), in the probe's unit.
+    pub mean: f64,
+    /// Lowest sample.
+    pub min: f64,
+    /// Highest sample.
+    pub max: f64,
+}
+
+impl Ripple {
+    /// Watches probe `probe` (by name) over `[from, to]` seconds.
+    pub fn new(probes: &[Probe], probe: &str, from: f64, to: f64) -> Result<Self, ModelError> {
+        let column = probe_index(probes, probe)?;
+        if !(from.is_finite() && to > from) {
+            return Err(ModelError::Infeasible(format!(
+                "ripple window [{from}, {to}] s is empty"
+            )));
+        }
+        Ok(Ripple {
+            name: probe.to_string(),
+            unit: probes[column].unit,
+            column,
+            mean: WindowMean::new(from, to),
+            extremes: WindowExtremes::new(from, to),
+        })
+    }
+
+    /// The result, or `None` until the window has been seen.
+    pub fn result(&self) -> Option<RippleResult> {
+        let (_, max) = self.extremes.max?;
+        let (_, min) = self.extremes.min?;
+        Some(RippleResult {
+            peak_to_peak: max - min,
+            mean: self.mean.mean()?,
+            min,
+            max,
+        })
+    }
+}
+
+impl Measurement for Ripple {
+    fn sample(&mut self, time: f64, values: &[f64], _at_event: bool) {
+        if let Some(&v) = values.get(self.column) {
+            self.mean.add(time, v);
+            self.extremes.add(time, v);
+        }
+    }
+
+    fn figures(&self) -> Vec<Figure> {
+        let Some(r) = self.result() else {
+            return Vec::new();
+        };
+        let n = &self.name;
+        vec![
+            Figure::new(format!("{n}.ripple_pp"), r.peak_to_peak, self.unit),
+            Figure::new(format!("{n}.mean"), r.mean, self.unit),
+            Figure::new(format!("{n}.min"), r.min, self.unit),
+            Figure::new(format!("{n}.max"), r.max, self.unit),
+        ]
+    }
+}

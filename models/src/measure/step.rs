@@ -1,0 +1,213 @@
+//! Response to a load or line step: undershoot and overshoot, recovery into a band,
+//! steady-state error, and how far the duty moved.
+
+use super::window::{CycleRange, WindowExtremes, WindowMean};
+use super::{percent, probe_index, Figure, Measurement};
+use crate::cycles::CycleRecord;
+use crate::error::ModelError;
+use crate::template::Probe;
+
+/// Settings of a [`StepResponse`].
+#[derive(Clone, Debug, PartialEq)]
+pub struct StepSettings {
+    /// Prefix of the figure names, e.g. `load_step`.
+    pub label: String,
+    /// When the step starts, seconds.
+    pub step_time: f64,
+    /// Set point of the output, volts.
+    pub set_point: f64,
+    /// Half-width of the recovery band as a fraction of the set point (0.01 = ±1 %).
+    pub band: f64,
+    /// Length of the duty windows before and after the step, seconds.
+    pub duty_window: f64,
+    /// Start of the final window for the steady-state error, seconds.
+    pub settle_from: f64,
+    /// End of everything this measurement looks at (the next disturbance or the end
+    /// of the run), seconds.
+    pub until: f64,
+}
+
+/// Step-response figures of `out.v`.
+///
+/// Recovery time is measured from the step to the moment the output last enters the
+/// band `set point ± band` (interpolated between the sample outside and the one
+/// inside); a streaming run cannot know it has stayed inside for good, so the figure
+/// holds for the samples seen up to `until`. Extremes include the switching ripple.
+#[derive(Clone, Debug)]
+pub struct StepResponse {
+    settings: StepSettings,
+    column: usize,
+    extremes: WindowExtremes,
+    final_mean: WindowMean,
+    before: CycleRange,
+    after: CycleRange,
+    last: Option<(f64, f64)>,
+    ever_outside: bool,
+    entered: Option<f64>,
+}
+
+/// What [`StepResponse`] found.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct StepResult {
+    /// Lowest output after the step, volts, and when, seconds.
+    pub min: (f64, f64),
+    /// Highest output after the step, volts, and when, seconds.
+    pub max: (f64, f64),
+    /// Set point minus the lowest output (0 if never below), volts.
+    pub undershoot: f64,
+    /// Highest output minus the set point (0 if never above), volts.
+    pub overshoot: f64,
+    /// Seconds from the step until the output last entered the band; 0 if it never
+    /// left; `None` if the last sample was outside.
+    pub recovery: Option<f64>,
+    /// Mean output over the final window minus the set point, volts.
+    pub steady_error: Option<f64>,
+    /// Duty spread (max − min) over the window before the step.
+    pub duty_spread_before: Option<f64>,
+    /// Duty spread over the window after the step.
+    pub duty_spread_after: Option<f64>,
+    /// Lowest and highest duty in the window after the step.
+    pub duty_range_after: Option<(f64, f64)>,
+}
+
+impl StepResponse {
+    /// Watches `out.v` around a step.
+    pub fn new(probes: &[Probe], settings: StepSettings) -> Result<Self, ModelError> {
+        let s = &settings;
+        let ok = s.set_point > 0.0
+            && s.band > 0.0
+            && s.duty_window > 0.0
+            && s.until > s.step_time
+            && s.settle_from >= s.step_time
+            && s.settle_from < s.until;
+        if !ok {
+            return Err(ModelError::Infeasible(format!(
+                "{}: set point, band and duty window must be positive and \
+                 step_time ≤ settle_from < until (got {s:?})",
+                s.label
+            )));
+        }
+        Ok(StepResponse {
+            column: probe_index(probes, "out.v")?,
+            extremes: WindowExtremes::new(s.step_time, s.until),
+            final_mean: WindowMean::new(s.settle_from, s.until),
+            before: CycleRange::new(s.step_time - s.duty_window, s.step_time),
+            after: CycleRange::new(s.step_time, s.step_time + s.duty_window),
+            last: None,
+            ever_outside: false,
+            entered: None,
+            settings,
+        })
+    }
+
+    /// The settings.
+    pub fn settings(&self) -> &StepSettings {
+        &self.settings
+    }
+
+    /// The figures so far, or `None` before any sample after the step.
+    pub fn result(&self) -> Option<StepResult> {
+        let s = &self.settings;
+        let (min, max) = (self.extremes.min?, self.extremes.max?);
+        let recovery = match (self.ever_outside, self.entered) {
+            (false, _) => Some(0.0),
+            (true, Some(t)) => Some(t - s.step_time),
+            (true, None) => None,
+        };
+        Some(StepResult {
+            min,
+            max,
+            undershoot: (s.set_point - min.1).max(0.0),
+            overshoot: (max.1 - s.set_point).max(0.0),
+            recovery,
+            steady_error: self.final_mean.mean().map(|m| m - s.set_point),
+            duty_spread_before: self.before.spread(),
+            duty_spread_after: self.after.spread(),
+            duty_range_after: self.after.min.zip(self.after.max),
+        })
+    }
+
+    /// Tracks band exits and the last entry.
+    fn track_band(&mut self, t: f64, v: f64) {
+        let s = &self.settings;
+        let half = s.band * s.set_point;
+        let outside = (v - s.set_point).abs() > half;
+        if outside {
+            self.ever_outside = true;
+            self.entered = None;
+        } else if let Some((t0, v0)) = self.last {
+            let was_outside = (v0 - s.set_point).abs() > half;
+            if was_outside && t > t0 {
+                let edge = s.set_point + half * (v0 - s.set_point).signum();
+                self.entered = Some(t0 + (t - t0) * (edge - v0) / (v - v0));
+            }
+        }
+    }
+}
+
+impl Measurement for StepResponse {
+    fn sample(&mut self, time: f64, values: &[f64], _at_event: bool) {
+        let Some(&v) = values.get(self.column) else {
+            return;
+        };
+        if time < self.settings.step_time || time > self.settings.until {
+            return;
+        }
+        self.extremes.add(time, v);
+        self.final_mean.add(time, v);
+        self.track_band(time, v);
+        self.last = Some((time, v));
+    }
+
+    fn cycle(&mut self, r: &CycleRecord) {
+        self.before.add(r.start, r.duty);
+        self.after.add(r.start, r.duty);
+    }
+
+    fn figures(&self) -> Vec<Figure> {
+        let Some(r) = self.result() else {
+            return Vec::new();
+        };
+        let s = &self.settings;
+        let l = &s.label;
+        let opt = |x: Option<f64>| x.unwrap_or(f64::NAN);
+        let mut f = vec![
+            Figure::new(format!("{l}.undershoot"), r.undershoot, "V"),
+            Figure::new(
+                format!("{l}.undershoot_pct"),
+                percent(r.undershoot, s.set_point),
+                "%",
+            ),
+            Figure::new(format!("{l}.overshoot"), r.overshoot, "V"),
+            Figure::new(
+                format!("{l}.overshoot_pct"),
+                percent(r.overshoot, s.set_point),
+                "%",
+            ),
+            Figure::new(format!("{l}.min_time"), r.min.0, "s"),
+            Figure::new(format!("{l}.band_pct"), 100.0 * s.band, "%"),
+            Figure::new(format!("{l}.recovery"), opt(r.recovery), "s"),
+            Figure::new(format!("{l}.steady_error"), opt(r.steady_error), "V"),
+            Figure::new(
+                format!("{l}.steady_error_pct"),
+                opt(r.steady_error.map(|e| percent(e, s.set_point))),
+                "%",
+            ),
+            Figure::new(
+                format!("{l}.duty_spread_before"),
+                opt(r.duty_spread_before),
+                "1",
+            ),
+            Figure::new(
+                format!("{l}.duty_spread_after"),
+                opt(r.duty_spread_after),
+                "1",
+            ),
+        ];
+        if let Some((lo, hi)) = r.duty_range_after {
+            f.push(Figure::new(format!("{l}.duty_min_after"), lo, "1"));
+            f.push(Figure::new(format!("{l}.duty_max_after"), hi, "1"));
+        }
+        f
+    }
+}
