@@ -46,12 +46,21 @@ pub struct TopologyData {
     /// Rows over z, stored as columns so each is contiguous: diode switching
     /// functions (one per diode), then event signals, then probes.
     pub rows_t: DMatrix<f64>,
+    /// Event rows carried ahead by each rung, (R·Φ_p)ᵀ for the diode and event-signal
+    /// rows R: an event function one rung ahead of z is one dot product, no
+    /// matrix–vector product, which is what bisection mostly needs.
+    pub ahead_t: Vec<DMatrix<f64>>,
 }
 
 impl TopologyData {
     /// Value of row `r` (see [`TopologyData::rows_t`]) at state `z`.
     pub fn value(&self, r: usize, z: &nalgebra::DVector<f64>) -> f64 {
         self.rows_t.column(r).dot(z)
+    }
+
+    /// Value of event row `r` one rung `p` ahead of state `z`.
+    pub fn value_ahead(&self, p: usize, r: usize, z: &nalgebra::DVector<f64>) -> f64 {
+        self.ahead_t[p].column(r).dot(z)
     }
 
     /// Number of rows.
@@ -178,11 +187,19 @@ impl System {
                 topology: t.describe(&self.circuit, &self.layout),
             });
         }
+        let n_events = self.diode_count() + obs.event_signals.len();
+        let events = rows.rows(0, n_events);
+        let ahead_t = ladder
+            .phi
+            .iter()
+            .map(|phi| (events * phi).transpose())
+            .collect();
         Ok(TopologyData {
             topology: t,
             m,
             ladder,
             rows_t: rows.transpose(),
+            ahead_t,
         })
     }
 

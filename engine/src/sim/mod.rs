@@ -72,6 +72,11 @@ pub struct Simulation {
     z: DVector<f64>,
     topo: Arc<TopologyData>,
     armed: [Option<Armed>; MAX_ARMED],
+    /// Bumped whenever the state, topology or armed events change outside a plain
+    /// step, so event values cached for a tick are known to be stale.
+    generation: u64,
+    /// (tick, generation) at which `g_lo` holds the event values of `z`.
+    g_lo_at: Option<(Tick, u64)>,
     /// Topology last reported to the sink.
     reported: Topology,
     /// One past the highest occupied slot: loops over events stop here.
@@ -148,6 +153,8 @@ impl Simulation {
             armed: [None; MAX_ARMED],
             armed_len: 0,
             reported: Topology::default(),
+            generation: 0,
+            g_lo_at: None,
             sample_every,
             next_sample: 0,
             breaks,
@@ -303,6 +310,7 @@ impl Simulation {
         let row = self.system.diode_count() + f.signal;
         self.armed[slot] = Some(Armed { f, row });
         self.armed_len = self.armed_len.max(slot + 1);
+        self.generation += 1;
         Ok(EventSlot(slot as u8))
     }
 
@@ -350,31 +358,41 @@ impl Simulation {
         let n = target - self.tick;
         let p = self.topo.ladder.top.min(63 - n.leading_zeros());
         let topo = self.topo.clone();
-        eval_events(
-            &topo,
-            &self.armed[..self.armed_len],
-            self.system.diode_count(),
-            self.system.grid.time(self.tick),
-            &self.z,
-            &mut self.g_lo,
-        );
+        let nd = self.system.diode_count();
+        let n_events = nd + self.armed_len;
+        let all = mask_of(n_events);
+        if self.g_lo_at != Some((self.tick, self.generation)) {
+            let t_lo = self.system.grid.time(self.tick);
+            eval_events(
+                &*topo,
+                &self.armed[..self.armed_len],
+                nd,
+                t_lo,
+                &self.z,
+                &mut self.g_lo,
+                all,
+            );
+        }
         topo.ladder.phi[p as usize].mul_to(&self.z, &mut self.z_hi);
         let t_hi = self.system.grid.time(self.tick + (1 << p));
         eval_events(
-            &topo,
+            &*topo,
             &self.armed[..self.armed_len],
-            self.system.diode_count(),
+            nd,
             t_hi,
             &self.z_hi,
             &mut self.g_hi,
+            all,
         );
-        let n_events = self.system.diode_count() + self.armed_len;
-        if fired(&self.g_lo[..n_events], &self.g_hi[..n_events]) {
-            return self.locate(&topo, p, sink);
+        let candidates = fired(&self.g_lo, &self.g_hi, all);
+        if candidates != 0 {
+            return self.locate(&topo, p, candidates, sink);
         }
         self.accumulate(&topo, p);
         std::mem::swap(&mut self.z, &mut self.z_hi);
+        std::mem::swap(&mut self.g_lo, &mut self.g_hi);
         self.tick += 1 << p;
+        self.g_lo_at = Some((self.tick, self.generation));
         self.check_finite()?;
         self.on_grid_point(sink)?;
         Ok(if self.tick == stop {
@@ -412,36 +430,52 @@ impl Simulation {
         &mut self,
         topo: &TopologyData,
         p: u32,
+        candidates: u128,
         sink: &mut dyn Sink,
     ) -> Result<StepOutcome, EngineError> {
+        // Only the functions that crossed over the whole step can cross first, so only
+        // they are evaluated on the way down.
         let nd = self.system.diode_count();
-        let n_events = nd + self.armed_len;
         for level in (0..p).rev() {
-            topo.ladder.phi[level as usize].mul_to(&self.z, &mut self.z_mid);
             let t_mid = self.system.grid.time(self.tick + (1 << level));
-            eval_events(
+            let ahead = Ahead {
                 topo,
+                rung: level as usize,
+            };
+            eval_events(
+                &ahead,
                 &self.armed[..self.armed_len],
                 nd,
                 t_mid,
-                &self.z_mid,
+                &self.z,
                 &mut self.g_mid,
+                candidates,
             );
-            if fired(&self.g_lo[..n_events], &self.g_mid[..n_events]) {
-                std::mem::swap(&mut self.z_hi, &mut self.z_mid);
-                std::mem::swap(&mut self.g_hi, &mut self.g_mid);
-            } else {
+            if fired(&self.g_lo, &self.g_mid, candidates) == 0 {
+                // Crossing in the right half: move there (the only product needed).
                 self.accumulate(topo, level);
+                topo.ladder.phi[level as usize].mul_to(&self.z, &mut self.z_mid);
                 std::mem::swap(&mut self.z, &mut self.z_mid);
                 std::mem::swap(&mut self.g_lo, &mut self.g_mid);
                 self.tick += 1 << level;
             }
         }
+        topo.ladder.phi[0].mul_to(&self.z, &mut self.z_hi);
+        let t_hi = self.system.grid.time(self.tick + 1);
+        eval_events(
+            topo,
+            &self.armed[..self.armed_len],
+            nd,
+            t_hi,
+            &self.z_hi,
+            &mut self.g_hi,
+            candidates,
+        );
         self.accumulate(topo, 0);
         std::mem::swap(&mut self.z, &mut self.z_hi);
         self.tick += 1;
         self.check_finite()?;
-        let armed = armed_mask(&self.g_lo[..n_events], &self.g_hi[..n_events], nd);
+        let armed = (fired(&self.g_lo, &self.g_hi, candidates) >> nd) as u64;
         self.flipped.clear();
         self.settle()?;
         let diode = self.flipped.first().copied();
@@ -458,49 +492,85 @@ impl Simulation {
     }
 }
 
-/// Event function values at state `z`, time `t`, into `g`: diode rows first, then one
-/// entry per armed slot (−∞ when empty, so it never fires), sign-adjusted so every
-/// function fires rising through zero.
-fn eval_events(
-    topo: &TopologyData,
+/// Event function values at state `z`, time `t`, into `g`, for the functions whose bit
+/// is set in `which`: diode rows first (bit r), then armed slot k (bit nd + k),
+/// sign-adjusted so every function fires rising through zero; an empty slot is −∞ so
+/// it never fires.
+fn eval_events<R: Rows>(
+    topo: &R,
     armed: &[Option<Armed>],
     nd: usize,
     t: f64,
     z: &DVector<f64>,
     g: &mut [f64],
+    which: u128,
 ) {
-    for (r, gr) in g.iter_mut().enumerate().take(nd) {
-        *gr = topo.value(r, z);
-    }
-    for (k, a) in armed.iter().enumerate() {
-        g[nd + k] = match a {
-            Some(a) => {
-                let v = topo.value(a.row, z) + a.f.offset + a.f.rate * (t - a.f.t_ref);
-                if a.f.direction == Direction::Rising {
-                    v
-                } else {
-                    -v
+    let mut rest = which;
+    while rest != 0 {
+        let i = rest.trailing_zeros() as usize;
+        rest &= rest - 1;
+        g[i] = if i < nd {
+            topo.value(i, z)
+        } else {
+            match &armed[i - nd] {
+                Some(a) => {
+                    let v = topo.value(a.row, z) + a.f.offset + a.f.rate * (t - a.f.t_ref);
+                    if a.f.direction == Direction::Rising {
+                        v
+                    } else {
+                        -v
+                    }
                 }
+                None => f64::NEG_INFINITY,
             }
-            None => f64::NEG_INFINITY,
         };
     }
 }
 
-/// Whether any function went from ≤ 0 to > 0.
-fn fired(lo: &[f64], hi: &[f64]) -> bool {
-    lo.iter().zip(hi).any(|(&a, &b)| a <= 0.0 && b > 0.0)
+/// Where event rows are read from: the present state, or one rung ahead.
+trait Rows {
+    fn value(&self, r: usize, z: &DVector<f64>) -> f64;
 }
 
-/// Bit k set when armed slot k fired.
-fn armed_mask(lo: &[f64], hi: &[f64], nd: usize) -> u64 {
-    let mut mask = 0;
-    for (k, (&a, &b)) in lo[nd..].iter().zip(&hi[nd..]).enumerate() {
-        if a <= 0.0 && b > 0.0 {
-            mask |= 1 << k;
+impl Rows for TopologyData {
+    fn value(&self, r: usize, z: &DVector<f64>) -> f64 {
+        TopologyData::value(self, r, z)
+    }
+}
+
+/// Event rows `rung` ahead of the state they are applied to.
+struct Ahead<'a> {
+    topo: &'a TopologyData,
+    rung: usize,
+}
+
+impl Rows for Ahead<'_> {
+    fn value(&self, r: usize, z: &DVector<f64>) -> f64 {
+        self.topo.value_ahead(self.rung, r, z)
+    }
+}
+
+/// Bits (among `which`) of the functions that went from ≤ 0 to > 0.
+fn fired(lo: &[f64], hi: &[f64], which: u128) -> u128 {
+    let mut rest = which;
+    let mut out = 0;
+    while rest != 0 {
+        let i = rest.trailing_zeros() as usize;
+        rest &= rest - 1;
+        if lo[i] <= 0.0 && hi[i] > 0.0 {
+            out |= 1 << i;
         }
     }
-    mask
+    out
+}
+
+/// Mask of the first `n` bits.
+fn mask_of(n: usize) -> u128 {
+    if n >= 128 {
+        u128::MAX
+    } else {
+        (1u128 << n) - 1
+    }
 }
 
 pub(crate) fn initial_topology(system: &System) -> Topology {

@@ -18,6 +18,7 @@ impl Simulation {
     /// Brings the diodes to a consistent state at the present instant (see
     /// [`settle_diodes`]).
     pub(super) fn settle(&mut self) -> Result<(), EngineError> {
+        self.generation += 1;
         let time = self.time();
         settle_diodes(
             &mut self.system,

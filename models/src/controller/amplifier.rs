@@ -14,7 +14,7 @@
 //! "higher control voltage, less duty" convention). With an ideal amplifier,
 //! out = v+ + (Zf/Zi)·(v+ − ref).
 
-use stepflux_engine::{DiodeParams, NodeId, Quantity, Signal, Waveform};
+use stepflux_engine::{DiodeParams, NodeId, Quantity, Signal};
 
 use crate::components::positive;
 use crate::error::ModelError;
@@ -243,18 +243,24 @@ impl Amplifier {
         c.controlled_current_source(&format!("{name}.gm"), NodeId::GROUND, internal, control)?;
         c.resistor(&format!("{name}.ro"), internal, NodeId::GROUND, INTERNAL_R)?;
         c.capacitor(&format!("{name}.co"), internal, NodeId::GROUND, co, start)?;
+        // The rails are fixed levels: sources driven by the engine's constant, which
+        // unlike independent sources add no entries to the state (nothing will step
+        // or ramp them).
         let (hi, lo) = (c.node(&format!("{name}.hi")), c.node(&format!("{name}.lo")));
-        c.voltage_source(
+        let level = |v: f64| Signal {
+            terms: vec![(v, Quantity::One)],
+        };
+        c.controlled_voltage_source(
             &format!("{name}.vhi"),
             hi,
             NodeId::GROUND,
-            Waveform::Constant(self.output_high),
+            level(self.output_high),
         )?;
-        c.voltage_source(
+        c.controlled_voltage_source(
             &format!("{name}.vlo"),
             lo,
             NodeId::GROUND,
-            Waveform::Constant(self.output_low),
+            level(self.output_low),
         )?;
         c.diode(&format!("{name}.clamp_hi"), internal, hi, CLAMP)?;
         c.diode(&format!("{name}.clamp_lo"), lo, internal, CLAMP)?;

@@ -253,12 +253,12 @@ impl ControllerSpec {
             net.circuit()
                 .controlled_voltage_source("ctl.sense", cs, NodeId::GROUND, sense)?;
             let lim = net.node("ctl.ilim");
-            net.circuit().voltage_source(
-                "ctl.vlim",
-                lim,
-                NodeId::GROUND,
-                Waveform::Constant(cl.threshold),
-            )?;
+            // A fixed level: driven by the engine's constant, so it adds no state.
+            let threshold = Signal {
+                terms: vec![(cl.threshold, Quantity::One)],
+            };
+            net.circuit()
+                .controlled_voltage_source("ctl.vlim", lim, NodeId::GROUND, threshold)?;
             let ca = error_amplifier(&mut net, "ctl.ca", cs, lim, &cl.amplifier, &cl.compensation)?;
             net.circuit().diode("ctl.or_i", ca, control, OR_DIODE)?;
             probes.push(probe(
