@@ -6,7 +6,9 @@ mod cli;
 mod demo;
 mod exit;
 mod job;
+mod measurements;
 mod pipeline;
+mod print;
 mod report;
 mod writers;
 
@@ -41,53 +43,13 @@ fn run(cli: Cli) -> Result<(), Failure> {
                 .exit_with(Exit::BadInput);
             }
             let output = demo::run(&out, &|_| {}).exit_with(Exit::SimulationFailed)?;
-            print_run(&output);
+            print::run_summary(&output);
             if output.summary.passed {
                 Ok(())
             } else {
                 Err(anyhow::anyhow!("a spec limit failed")).exit_with(Exit::SpecFailed)
             }
         }
-    }
-}
-
-/// Where a run's outputs are and its key figures. A closed stdout (a pager quit early)
-/// is not an error worth a panic, so write failures are ignored.
-fn print_run(output: &pipeline::RunOutput) {
-    use std::io::Write;
-    let mut out = std::io::stdout().lock();
-    let s = &output.summary;
-    let _ = writeln!(
-        out,
-        "{}: {} cycles, {:.3} ms simulated in {:.2} s",
-        s.scenario,
-        s.cycles,
-        1e3 * s.simulated_time_s,
-        s.run_time_s
-    );
-    for f in &s.measurements {
-        let _ = writeln!(out, "  {:<32} {:>12.5} {}", f.name, f.value, f.unit);
-    }
-    for v in &s.verdicts {
-        let mark = if v.pass { "pass" } else { "FAIL" };
-        let _ = writeln!(
-            out,
-            "  [{mark}] {} = {:.4} ({} {})",
-            v.limit, v.value, v.kind, v.bound
-        );
-    }
-    let _ = writeln!(
-        out,
-        "  waveforms: {}",
-        output.dir.join("waveforms.h5").display()
-    );
-    let _ = writeln!(
-        out,
-        "  summary:   {}",
-        output.dir.join("summary.json").display()
-    );
-    for p in &output.plots {
-        let _ = writeln!(out, "  plot:      {}", p.display());
     }
 }
 

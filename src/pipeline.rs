@@ -13,11 +13,14 @@ use stepflux_models::controller::modulator::ClosedLoop;
 use stepflux_models::cycles::{CycleRecord, CycleSink};
 use stepflux_models::disturbance;
 use stepflux_models::gate::OpenLoopGate;
+use stepflux_models::measure::LossMeters;
 use stepflux_models::run::ConverterRun;
+use stepflux_models::template::Converter;
 use stepflux_models::ModelError;
 
 use crate::job::{Drive, Job, Start};
-use crate::report::{Summary, Tracker};
+use crate::measurements::Plan;
+use crate::report::{verdicts, Figure, Summary, CAUTION};
 use crate::writers::{plots, waveforms::WaveformSink};
 
 /// Progress slices per run: often enough for a smooth bar, rare enough to cost nothing.
@@ -43,25 +46,42 @@ enum Driver {
 }
 
 impl Driver {
-    fn new(job: &Job) -> Result<Self, ModelError> {
+    /// The driver and the loss meters it carries (built on the converter as
+    /// simulated, controller and load-step branches included).
+    fn new(job: &Job) -> Result<(Self, LossMeters), ModelError> {
         let options = |period: f64| SimOptions {
             sample_interval: Some(job.analysis.sample_interval),
             ..SimOptions::for_period(period)
         };
+        let mut losses = None;
         let mut driver = match &job.drive {
             Drive::Controller(spec) => {
                 let options = options(spec.clock_period());
-                Driver::Closed(Box::new(ClosedLoop::new(
+                let meters = |conv: &Converter| {
+                    let l = LossMeters::new(conv)?;
+                    let m = l.meters();
+                    losses = Some(l);
+                    Ok(m)
+                };
+                Driver::Closed(Box::new(ClosedLoop::with_meters(
                     &job.design,
                     spec,
                     &job.disturbances,
                     options,
+                    meters,
                 )?))
             }
             Drive::OpenLoop(gate) => {
                 let conv = job.design.build()?;
                 let (conv, actions) = disturbance::prepare(&conv, &job.disturbances, None)?;
-                let mut run = ConverterRun::new(&conv, options(gate.period()), Vec::new())?;
+                let l = LossMeters::new(&conv)?;
+                let mut run = ConverterRun::with_meters(
+                    &conv,
+                    options(gate.period()),
+                    Vec::new(),
+                    l.meters(),
+                )?;
+                losses = Some(l);
                 run.schedule(actions);
                 Driver::Open {
                     run: Box::new(run),
@@ -72,7 +92,9 @@ impl Driver {
         if let Start::States(x) = &job.analysis.start {
             driver.run_mut().sim.set_states(x)?;
         }
-        Ok(driver)
+        let losses =
+            losses.ok_or_else(|| ModelError::Infeasible("loss meters were not built".into()))?;
+        Ok((driver, losses))
     }
 
     fn run_mut(&mut self) -> &mut ConverterRun {
@@ -116,7 +138,7 @@ impl Driver {
 /// and the tracker through cells (calls never nest, so a borrow never overlaps).
 struct Shared<'a> {
     file: RefCell<&'a mut WaveformSink>,
-    measure: RefCell<&'a mut Tracker>,
+    measure: RefCell<&'a mut Plan>,
 }
 
 struct Samples<'s, 'a>(&'s Shared<'a>);
@@ -154,7 +176,7 @@ pub fn run_job(job: &Job, out_root: &Path, progress: &(dyn Fn(f64) + Sync)) -> R
     let dir = out_root.join(&job.name);
     std::fs::create_dir_all(dir.join("plots"))
         .with_context(|| format!("creating {}", dir.display()))?;
-    let mut driver = Driver::new(job)
+    let (mut driver, losses) = Driver::new(job)
         .map_err(|e| anyhow::anyhow!(e))
         .context("building the converter")?;
     let probes: Vec<(String, &str)> = driver
@@ -167,17 +189,34 @@ pub fn run_job(job: &Job, out_root: &Path, progress: &(dyn Fn(f64) + Sync)) -> R
     let h5_path = dir.join("waveforms.h5");
     let switchable = switchable_names(driver.run_ref());
     let mut file = WaveformSink::create(&h5_path, &probes, &save, &switchable, &job.source_text)?;
-    let mut tracker = Tracker::new(job, &probes);
-    let shared = Shared {
-        file: RefCell::new(&mut file),
-        measure: RefCell::new(&mut tracker),
+    let mut plan =
+        Plan::new(job, driver.run_ref().probes(), Some(losses)).map_err(|e| anyhow::anyhow!(e))?;
+    let outcome = {
+        let shared = Shared {
+            file: RefCell::new(&mut file),
+            measure: RefCell::new(&mut plan),
+        };
+        simulate(job, &mut driver, &shared, progress)
     };
-    let outcome = simulate(job, &mut driver, &shared, progress);
-    drop(shared);
     let samples = file.samples();
     let file_result = file.finish();
     let simulated = driver.run_ref().sim.time();
-    let mut summary = tracker.summary(job, simulated, started.elapsed().as_secs_f64(), samples);
+    let measurements: Vec<Figure> = plan.figures().into_iter().map(Figure::from).collect();
+    let verdicts = verdicts(job, &measurements);
+    let finished = outcome.is_ok() && file_result.is_ok();
+    let mut summary = Summary {
+        scenario: job.name.clone(),
+        tool: format!("stepflux {}", env!("CARGO_PKG_VERSION")),
+        run_time_s: started.elapsed().as_secs_f64(),
+        simulated_time_s: simulated,
+        samples,
+        design: Vec::new(),
+        passed: finished && plan.reset_passed() && verdicts.iter().all(|v| v.pass),
+        measurements,
+        verdicts,
+        error: None,
+        caution: CAUTION,
+    };
     if let Err(e) = &outcome {
         summary.error = Some(format!("{e:#}"));
     }
@@ -204,14 +243,32 @@ fn simulate(
     progress: &(dyn Fn(f64) + Sync),
 ) -> Result<()> {
     let stop = job.analysis.stop_time;
+    let window = shared.measure.borrow().window;
     let (mut samples, mut cycles) = (Samples(shared), Cycles(shared));
-    for k in 1..=SLICES {
-        let t = stop * k as f64 / SLICES as f64;
+    // Slice ends: evenly spaced for progress, plus the steady window's ends where the
+    // energy meters are read.
+    let mut ends: Vec<(f64, Option<bool>)> = (1..=SLICES)
+        .map(|k| (stop * k as f64 / SLICES as f64, None))
+        .collect();
+    ends.push((window.0, Some(false)));
+    ends.push((window.1, Some(true)));
+    ends.sort_by(|a, b| a.0.total_cmp(&b.0));
+    for (t, snapshot) in ends {
+        if t > stop {
+            continue;
+        }
         driver
             .advance_to(t, &mut samples, &mut cycles)
             .map_err(|e| anyhow::anyhow!(e))
             .with_context(|| format!("simulating '{}'", job.name))?;
-        progress(k as f64 / SLICES as f64);
+        if let Some(end) = snapshot {
+            shared
+                .measure
+                .borrow_mut()
+                .snapshot(&driver.run_ref().sim, end)
+                .map_err(|e| anyhow::anyhow!(e))?;
+        }
+        progress(t / stop);
     }
     driver.finish(&mut cycles);
     Ok(())

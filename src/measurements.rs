@@ -1,0 +1,200 @@
+//! Which measurements a job gets, and when: the plan that turns a scenario's drive and
+//! disturbances into windows for the streaming measurements of `models::measure`.
+//!
+//! - start-up: from 0 to the first disturbance (closed loop only: it needs a set point);
+//! - one step response per load or line step, until the next disturbance or the end;
+//! - ripple of `out.v` and `lout.i`, and the exact energy balance (efficiency, loss
+//!   breakdown), over a steady window: the last [`STEADY_PERIODS`] periods before the
+//!   first disturbance, or before the end;
+//! - the core-reset check over every cycle of the run.
+
+use stepflux_engine::Simulation;
+use stepflux_models::cycles::CycleRecord;
+use stepflux_models::disturbance::Disturbance;
+use stepflux_models::measure::{
+    CossTurnOn, EnergySnapshot, Figure, LossMeters, LossReport, Measurement, ResetCheck,
+    ResetLimits, Ripple, StartUp, StepResponse, StepSettings,
+};
+use stepflux_models::template::Probe;
+use stepflux_models::ModelError;
+
+use crate::job::{Drive, Job};
+
+/// Length of the steady window, switching periods.
+const STEADY_PERIODS: f64 = 20.0;
+/// Dips allowed below the running maximum before 90 % in a monotonic start-up, as a
+/// fraction of the set point (about the ripple of a typical output).
+const DIP_ALLOWANCE: f64 = 0.01;
+/// Default recovery band, fraction of the set point (common practice: ±1 %).
+const DEFAULT_BAND: f64 = 0.01;
+
+/// The measurements of one run.
+pub struct Plan {
+    startup: Option<StartUp>,
+    steps: Vec<StepResponse>,
+    ripple: Vec<Ripple>,
+    reset: ResetCheck,
+    coss: CossTurnOn,
+    /// Steady window, seconds.
+    pub window: (f64, f64),
+    losses: Option<LossMeters>,
+    snapshots: (Option<EnergySnapshot>, Option<EnergySnapshot>),
+    bias: f64,
+}
+
+/// Switching period of the job's drive, seconds.
+pub fn period(job: &Job) -> f64 {
+    match &job.drive {
+        Drive::Controller(c) => match c.mode {
+            stepflux_models::controller::OutputMode::SingleEnded => c.clock_period(),
+            stepflux_models::controller::OutputMode::Alternating => 2.0 * c.clock_period(),
+        },
+        Drive::OpenLoop(g) => g.period(),
+    }
+}
+
+fn set_point(job: &Job) -> Option<f64> {
+    match &job.drive {
+        Drive::Controller(c) => Some(c.voltage_loop.set_point()),
+        Drive::OpenLoop(_) => None,
+    }
+}
+
+impl Plan {
+    /// The plan for `job`, whose run has `probes`; `losses` are the meters given to it.
+    pub fn new(
+        job: &Job,
+        probes: &[Probe],
+        losses: Option<LossMeters>,
+    ) -> Result<Self, ModelError> {
+        let stop = job.analysis.stop_time;
+        let mut times: Vec<f64> = job
+            .disturbances
+            .iter()
+            .map(Disturbance::time)
+            .filter(|&t| t < stop)
+            .collect();
+        times.sort_by(f64::total_cmp);
+        let first = times.first().copied().unwrap_or(stop);
+        let window = (
+            (first - STEADY_PERIODS * period(job)).max(0.5 * first),
+            first,
+        );
+        let band = job
+            .limits
+            .recovery_band_percent
+            .map_or(DEFAULT_BAND, |p| p / 100.0);
+        let startup = match set_point(job) {
+            Some(sp) => Some(StartUp::new(probes, sp, DIP_ALLOWANCE * sp, 0.0, first)?),
+            None => None,
+        };
+        let mut steps = Vec::new();
+        if let Some(sp) = set_point(job) {
+            for (k, d) in job.disturbances.iter().enumerate() {
+                let label = match d {
+                    Disturbance::LoadCurrent { .. } | Disturbance::LoadResistance { .. } => {
+                        format!("load_step{k}")
+                    }
+                    Disturbance::Line { .. } => format!("line_step{k}"),
+                    Disturbance::Reference { .. } => continue,
+                };
+                let at = d.time();
+                let until = times.iter().copied().find(|&t| t > at).unwrap_or(stop);
+                let settings = StepSettings {
+                    label,
+                    step_time: at,
+                    set_point: sp,
+                    band,
+                    duty_window: (0.25 * (until - at)).min(STEADY_PERIODS * period(job)),
+                    settle_from: until - 0.2 * (until - at),
+                    until,
+                };
+                steps.push(StepResponse::new(probes, settings)?);
+            }
+        }
+        let ripple = ["out.v", "lout.i"]
+            .iter()
+            .map(|p| Ripple::new(probes, p, window.0, window.1))
+            .collect::<Result<_, _>>()?;
+        let coss = CossTurnOn::new(
+            losses.as_ref().map_or(0.0, LossMeters::main_switch_coss),
+            window.0,
+            window.1,
+        );
+        Ok(Plan {
+            startup,
+            steps,
+            ripple,
+            reset: ResetCheck::new(&job.design, probes, ResetLimits::for_design(&job.design))?,
+            coss,
+            window,
+            losses,
+            snapshots: (None, None),
+            bias: job.bias_power,
+        })
+    }
+
+    /// Reads the energy meters at the steady window's start (`end` false) or end.
+    pub fn snapshot(&mut self, sim: &Simulation, end: bool) -> Result<(), ModelError> {
+        if let Some(l) = &self.losses {
+            let s = Some(l.snapshot(sim)?);
+            if end {
+                self.snapshots.1 = s;
+            } else {
+                self.snapshots.0 = s;
+            }
+        }
+        Ok(())
+    }
+
+    fn parts(&mut self) -> Vec<&mut dyn Measurement> {
+        let mut v: Vec<&mut dyn Measurement> = Vec::new();
+        if let Some(s) = self.startup.as_mut() {
+            v.push(s);
+        }
+        for s in &mut self.steps {
+            v.push(s);
+        }
+        for r in &mut self.ripple {
+            v.push(r);
+        }
+        v.push(&mut self.reset);
+        v.push(&mut self.coss);
+        v
+    }
+
+    /// One sample.
+    pub fn sample(&mut self, time: f64, values: &[f64], at_event: bool) {
+        for m in self.parts() {
+            m.sample(time, values, at_event);
+        }
+    }
+
+    /// One cycle record.
+    pub fn cycle(&mut self, record: &CycleRecord) {
+        for m in self.parts() {
+            m.cycle(record);
+        }
+    }
+
+    /// Whether the core-reset check passed every cycle.
+    pub fn reset_passed(&self) -> bool {
+        self.reset.verdict().passed()
+    }
+
+    /// Every figure so far.
+    pub fn figures(&mut self) -> Vec<Figure> {
+        let mut out: Vec<Figure> = Vec::new();
+        let coss_energy = self.coss.energy();
+        if let (Some(l), (Some(a), Some(b))) = (&self.losses, &self.snapshots) {
+            // A window too short to hold two snapshots has no energy balance to report.
+            if let Ok(report) = LossReport::between(l, a, b, coss_energy) {
+                out.extend(report.figures(self.bias));
+            }
+        }
+        for m in self.parts() {
+            out.extend(m.figures());
+        }
+        out
+    }
+}
