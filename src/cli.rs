@@ -27,4 +27,24 @@ pub enum Command {
         #[arg(long, value_name = "DIR", default_value = "out")]
         out: PathBuf,
     },
+    /// Validate a scenario file and print its paper design figures and warnings.
+    #[command(
+        after_help = "Example:\n  stepflux check scenarios/demo-startup.json\n  \
+        stepflux check --json scenarios/rcd-clamp.json > figures.json\n\n\
+        Exits 0 when the scenario can run (warnings included), 2 when it cannot, with the \
+        file position or field path of the problem on stderr."
+    )]
+    Check {
+        /// Scenario file (JSON; see `stepflux schema`).
+        #[arg(value_name = "SCENARIO")]
+        scenario: PathBuf,
+        /// Print one JSON object instead of text.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Print the JSON Schema of the scenario file format.
+    #[command(after_help = "Example:\n  stepflux schema > stepflux.schema.json\n\n\
+        Point an editor at the schema (or put \"$schema\" in a scenario) for completion \
+        and early checks; `stepflux check` remains the authority.")]
+    Schema,
 }

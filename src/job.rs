@@ -8,6 +8,8 @@ use stepflux_models::gate::OpenLoopGate;
 use stepflux_models::template::ForwardDesign;
 
 /// How the switches are driven.
+// One per job, built once: boxing the controller would only add an indirection.
+#[allow(clippy::large_enum_variant)]
 #[derive(Clone, Debug, PartialEq)]
 pub enum Drive {
     /// Fixed frequency and duty.

@@ -2,6 +2,7 @@
 //! command, and turns failures into a documented exit code plus the full
 //! error context chain on stderr.
 
+mod check;
 mod cli;
 mod demo;
 mod exit;
@@ -10,6 +11,8 @@ mod measurements;
 mod pipeline;
 mod print;
 mod report;
+mod scenario;
+mod units;
 mod writers;
 
 use std::process::ExitCode;
@@ -34,6 +37,8 @@ fn main() -> ExitCode {
 
 fn run(cli: Cli) -> Result<(), Failure> {
     match cli.command {
+        Command::Check { scenario, json } => check::check(&scenario, json),
+        Command::Schema => check::schema(),
         Command::Demo { out } => {
             if out.exists() && !out.is_dir() {
                 return Err(anyhow::anyhow!(

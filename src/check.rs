@@ -1,0 +1,236 @@
+//! `stepflux check` (validate a scenario and print its paper design figures) and
+//! `stepflux schema` (print the scenario format's JSON Schema).
+
+use std::path::Path;
+
+use anyhow::Context;
+use serde_json::json;
+use stepflux_models::figures::{DesignFigures, DesignPoint};
+
+use crate::exit::{Exit, ExitWith, Failure};
+use crate::job::Drive;
+use crate::scenario::{self, design_point, Loaded};
+
+/// Validates the scenario at `path` and prints its figures and warnings to stdout,
+/// as text or as one JSON object.
+pub fn check(path: &Path, as_json: bool) -> Result<(), Failure> {
+    let loaded = scenario::load(path)
+        .context("scenario is not valid")
+        .exit_with(Exit::BadInput)?;
+    if as_json {
+        let text = serde_json::to_string_pretty(&report_json(&loaded))
+            .context("formatting the report")
+            .exit_with(Exit::SimulationFailed)?;
+        println!("{text}");
+    } else {
+        print!("{}", report_text(&loaded));
+    }
+    Ok(())
+}
+
+/// Prints the JSON Schema of the scenario format.
+pub fn schema() -> Result<(), Failure> {
+    let text = serde_json::to_string_pretty(&scenario::json_schema())
+        .context("formatting the schema")
+        .exit_with(Exit::SimulationFailed)?;
+    println!("{text}");
+    Ok(())
+}
+
+fn drive_name(drive: &Drive) -> &'static str {
+    match drive {
+        Drive::OpenLoop(_) => "open_loop",
+        Drive::Controller(_) => "controller",
+    }
+}
+
+/// The check report as JSON: SI units, field names carrying the unit.
+pub fn report_json(l: &Loaded) -> serde_json::Value {
+    let p = design_point(&l.job);
+    let f = &l.figures;
+    json!({
+        "name": l.job.name,
+        "valid": true,
+        "template": l.job.design.reset.name(),
+        "drive": drive_name(&l.job.drive),
+        "design_point": {
+            "switching_frequency_hz": p.frequency,
+            "max_duty": p.max_duty,
+            "set_point_v": p.set_point,
+            "nominal_line_v": l.job.design.input.voltage,
+            "low_line_v": p.low_line,
+            "high_line_v": p.high_line,
+        },
+        "figures": {
+            "secondary_ratio": f.secondary_ratio,
+            "reset_ratio": f.reset_ratio,
+            "output_voltage_v": f.output_voltage,
+            "load_current_a": f.load_current,
+            "nominal_duty": f.nominal_duty,
+            "low_line_duty_needed": f.low_line_duty_needed,
+            "reset_limit_duty": f.reset_limit_duty,
+            "magnetising_peak_a": f.magnetising_peak,
+            "flux_peak_t": f.flux_peak,
+            "saturation_flux_density_t": l.job.design.transformer.saturation_flux_density,
+            "inductor_ripple_a": f.inductor_ripple,
+            "output_ripple_v": f.output_ripple,
+            "clamp_voltage_v": f.clamp_voltage,
+            "drain_stress_v": f.drain_stress,
+            "switch_voltage_rating_v": l.job.design.switch.voltage_rating,
+        },
+        "signals": l.probes,
+        "warnings": l.warnings.iter().map(|w| json!({"field": w.field, "message": w.message})).collect::<Vec<_>>(),
+    })
+}
+
+/// The check report as aligned text.
+pub fn report_text(l: &Loaded) -> String {
+    let p = design_point(&l.job);
+    let d = &l.job.design;
+    let mut out = format!(
+        "{}: valid ({} template, {} drive)\n",
+        l.job.name,
+        d.reset.name(),
+        drive_name(&l.job.drive)
+    );
+    for (label, value) in figure_lines(&l.figures, &p, d) {
+        out.push_str(&format!("  {label:<44} {value}\n"));
+    }
+    out.push_str(&format!("  signals: {}\n", l.probes.join(", ")));
+    if l.warnings.is_empty() {
+        out.push_str("no warnings\n");
+    } else {
+        out.push_str(&format!("{} warning(s):\n", l.warnings.len()));
+        for w in &l.warnings {
+            out.push_str(&format!("  warning: {w}\n"));
+        }
+    }
+    out
+}
+
+fn figure_lines(
+    f: &DesignFigures,
+    p: &DesignPoint,
+    d: &stepflux_models::template::ForwardDesign,
+) -> Vec<(String, String)> {
+    let vin = d.input.voltage;
+    let bsat = d.transformer.saturation_flux_density;
+    let mut lines = vec![
+        (
+            "turns ratio Ns/Np".to_string(),
+            format!("{:.4}", f.secondary_ratio),
+        ),
+        ("switching frequency".into(), eng(p.frequency, "Hz")),
+        (
+            "line: nominal / low / high".into(),
+            format!(
+                "{} / {} / {}",
+                eng(vin, "V"),
+                eng(p.low_line, "V"),
+                eng(p.high_line, "V")
+            ),
+        ),
+        (
+            match p.set_point {
+                Some(_) => "output voltage (set point)".into(),
+                None => "output voltage (fixed duty, nominal line)".into(),
+            },
+            eng(f.output_voltage, "V"),
+        ),
+        ("load current".into(), eng(f.load_current, "A")),
+        (
+            format!("duty at nominal line {}", eng(vin, "V")),
+            format!("{:.4}", f.nominal_duty),
+        ),
+    ];
+    if let Some(r) = f.reset_ratio {
+        lines.insert(1, ("turns ratio Nr/Np".into(), format!("{r:.4}")));
+    }
+    if let Some(needed) = f.low_line_duty_needed {
+        lines.push((
+            format!("duty needed at low line {}", eng(p.low_line, "V")),
+            format!("{needed:.4}"),
+        ));
+    }
+    lines.push(("maximum duty".into(), format!("{:.4}", p.max_duty)));
+    lines.push((
+        "reset-limit duty".into(),
+        f.reset_limit_duty
+            .map_or("none below 1".into(), |v| format!("{v:.4}")),
+    ));
+    lines.push((
+        "magnetising peak (max duty, low line)".into(),
+        eng(f.magnetising_peak, "A"),
+    ));
+    lines.push((
+        "flux density peak (max duty, low line)".into(),
+        format!(
+            "{} ({:.0} % of Bsat {})",
+            eng(f.flux_peak, "T"),
+            100.0 * f.flux_peak / bsat,
+            eng(bsat, "T")
+        ),
+    ));
+    lines.push((
+        "inductor ripple (nominal line)".into(),
+        format!("{} p-p", eng(f.inductor_ripple, "A")),
+    ));
+    lines.push((
+        "output ripple (nominal line)".into(),
+        format!("{} p-p", eng(f.output_ripple, "V")),
+    ));
+    if let Some(vc) = f.clamp_voltage {
+        lines.push((
+            "clamp voltage above input (worst line)".into(),
+            eng(vc, "V"),
+        ));
+    }
+    lines.push((
+        "drain stress (worst line)".into(),
+        format!(
+            "{} (rating {})",
+            eng(f.drain_stress, "V"),
+            eng(d.switch.voltage_rating, "V")
+        ),
+    ));
+    lines
+}
+
+/// `value` with an SI prefix and four significant figures, e.g. "220 µF".
+pub fn eng(value: f64, unit: &str) -> String {
+    const PREFIXES: [(f64, &str); 7] = [
+        (1e9, "G"),
+        (1e6, "M"),
+        (1e3, "k"),
+        (1.0, ""),
+        (1e-3, "m"),
+        (1e-6, "µ"),
+        (1e-9, "n"),
+    ];
+    if value == 0.0 || !value.is_finite() {
+        return format!("{value} {unit}");
+    }
+    let (scale, prefix) = PREFIXES
+        .iter()
+        .copied()
+        .find(|(s, _)| value.abs() >= *s * 0.9995)
+        .unwrap_or((1e-12, "p"));
+    let scaled = value / scale;
+    let decimals = 3usize.saturating_sub(scaled.abs().log10().floor().max(0.0) as usize);
+    format!("{scaled:.decimals$} {prefix}{unit}")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::eng;
+
+    #[test]
+    fn engineering_notation_picks_the_prefix_and_four_figures() {
+        assert_eq!(eng(220e-6, "F"), "220.0 µF");
+        assert_eq!(eng(150e3, "Hz"), "150.0 kHz");
+        assert_eq!(eng(4.0, "A"), "4.000 A");
+        assert_eq!(eng(0.0123, "V"), "12.30 mV");
+        assert_eq!(eng(-48.0, "V"), "-48.00 V");
+        assert_eq!(eng(0.0, "V"), "0 V");
+    }
+}

@@ -1,0 +1,317 @@
+//! Whole-design checks: build the circuit exactly as a run will (so its probe names and
+//! state count are known), compute the paper design figures, and sort what they show
+//! into errors (the design cannot work as specified) and warnings (it runs, but look).
+
+use stepflux_engine::Layout;
+use stepflux_models::controller::OutputMode;
+use stepflux_models::disturbance::{prepare, Disturbance};
+use stepflux_models::figures::{DesignFigures, DesignPoint};
+use stepflux_models::template::{ForwardDesign, ResetScheme};
+use stepflux_models::ModelError;
+
+use super::error::{ScenarioError, Warning};
+use super::validate::Ctx;
+use crate::job::{Drive, Job, Start};
+
+/// Flux density above this fraction of Bsat is flagged: a margin for Bsat's fall with
+/// temperature and part spread (common practice).
+const FLUX_WARN: f64 = 0.8;
+/// Inductor ripple above this fraction of the load current is flagged: the inductor
+/// current runs near discontinuous conduction at this load (common practice).
+const RIPPLE_WARN: f64 = 0.5;
+/// Switch voltage above this fraction of its rating is flagged: the usual derating
+/// for ringing and spikes the steady figure does not include (common practice).
+const RATING_WARN: f64 = 0.8;
+/// Sample counts above this per signal are flagged: tens of megabytes per waveform.
+const SAMPLES_WARN: f64 = 1e7;
+
+/// The converter as a run builds it: its probe names and number of dynamic states.
+pub struct Built {
+    /// Probe names in sample order.
+    pub probes: Vec<String>,
+    /// Number of dynamic states (the length `analysis.start.states` must have).
+    pub states: usize,
+}
+
+/// Builds the power stage, the controller's parts and the disturbance branches.
+pub fn build(
+    job_design: &ForwardDesign,
+    drive: &Drive,
+    events: &[Disturbance],
+) -> Result<Built, ModelError> {
+    let conv = job_design.build()?;
+    let conv = match drive {
+        Drive::Controller(spec) => {
+            let (with, parts) = spec.attach(&conv)?;
+            prepare(&with, events, Some(parts.reference))?.0
+        }
+        Drive::OpenLoop(_) => prepare(&conv, events, None)?.0,
+    };
+    let states = Layout::new(&conv.circuit)?.nx();
+    Ok(Built {
+        probes: conv.probes.iter().map(|p| p.name.clone()).collect(),
+        states,
+    })
+}
+
+/// Checks `save` names and the length of given initial states against the build.
+pub fn check_build(ctx: &Ctx, job: &Job, built: &Built) -> Result<(), ScenarioError> {
+    for (k, name) in job.save.iter().enumerate() {
+        if !built.probes.contains(name) {
+            return Err(ScenarioError::UnknownSignal {
+                file: ctx.file.to_string(),
+                field: format!("save[{k}]"),
+                name: name.clone(),
+                available: built.probes.join(", "),
+            });
+        }
+        if job.save[..k].contains(name) {
+            return Err(ctx.range(
+                &format!("save[{k}]"),
+                format!("{name:?}"),
+                "each signal once",
+            ));
+        }
+    }
+    if let Start::States(x) = &job.analysis.start {
+        if x.len() != built.states {
+            return Err(ctx.range(
+                "analysis.start.states",
+                format!("{} values", x.len()),
+                &format!(
+                    "{} values, one per dynamic state of this circuit",
+                    built.states
+                ),
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// Where the figures are evaluated for `job`.
+pub fn design_point(job: &Job) -> DesignPoint {
+    let lines =
+        std::iter::once(job.design.input.voltage).chain(job.disturbances.iter().filter_map(|d| {
+            match d {
+                Disturbance::Line { to, .. } => Some(*to),
+                _ => None,
+            }
+        }));
+    let (low_line, high_line) =
+        lines.fold((f64::MAX, f64::MIN), |(lo, hi), v| (lo.min(v), hi.max(v)));
+    match &job.drive {
+        Drive::OpenLoop(g) => DesignPoint {
+            frequency: g.frequency,
+            max_duty: g.duty,
+            set_point: None,
+            low_line,
+            high_line,
+        },
+        Drive::Controller(c) => DesignPoint {
+            // In alternating mode the main switch runs on output A, at half the clock.
+            frequency: match c.mode {
+                OutputMode::SingleEnded => c.oscillator.frequency,
+                OutputMode::Alternating => c.oscillator.frequency / 2.0,
+            },
+            max_duty: c.max_duty,
+            set_point: Some(c.voltage_loop.set_point()),
+            low_line,
+            high_line,
+        },
+    }
+}
+
+/// Errors that make the design unworkable, then the warnings.
+pub fn judge(ctx: &Ctx, job: &Job, f: &DesignFigures) -> Result<Vec<Warning>, ScenarioError> {
+    let point = design_point(job);
+    let duty_field = match job.drive {
+        Drive::OpenLoop(_) => "drive.open_loop.duty",
+        Drive::Controller(_) => "drive.controller.max_duty",
+    };
+    let mut warnings = Vec::new();
+    let mut warn = |field: &str, message: String| {
+        warnings.push(Warning {
+            field: field.to_string(),
+            message,
+        })
+    };
+    let d = &job.design;
+    match (&d.reset, f.reset_limit_duty) {
+        (ResetScheme::ResetWinding { .. } | ResetScheme::TwoSwitch { .. }, Some(limit))
+            if point.max_duty > limit =>
+        {
+            return Err(ctx.infeasible(
+                duty_field,
+                format!(
+                    "duty {} is above the {} reset limit {:.4} (1/(1 + Nr/Np)): the core \
+                     cannot reset within the off-time and walks into saturation",
+                    point.max_duty,
+                    d.reset.name(),
+                    limit
+                ),
+            ))
+        }
+        (ResetScheme::RcdClamp { .. }, Some(limit)) if point.max_duty > limit => warn(
+            duty_field,
+            format!(
+                "duty {} at low line {} V is above {:.3}, where the RCD clamp's steady \
+                 voltage {:.1} V (energy balance) still resets the core: the clamp voltage \
+                 will rise and the magnetising current will not return to zero",
+                point.max_duty,
+                point.low_line,
+                limit,
+                f.clamp_voltage.unwrap_or(0.0)
+            ),
+        ),
+        _ => {}
+    }
+    if matches!(d.reset, ResetScheme::ActiveClamp { .. })
+        && matches!(job.drive, Drive::Controller(_))
+    {
+        return Err(ctx.infeasible(
+            "drive.controller",
+            "the controller does not gate an active clamp's auxiliary switch; drive this \
+             template with open_loop"
+                .into(),
+        ));
+    }
+    for (field, rating) in switch_ratings(d) {
+        if f.drain_stress > rating {
+            return Err(ctx.infeasible(
+                &field,
+                format!(
+                    "steady drain voltage {:.1} V (at line {:.1} to {:.1} V) exceeds the \
+                     {rating} V rating",
+                    f.drain_stress, point.low_line, point.high_line
+                ),
+            ));
+        }
+        if f.drain_stress > RATING_WARN * rating {
+            warn(
+                &field,
+                format!(
+                    "steady drain voltage {:.1} V is {:.0} % of the {rating} V rating, above \
+                     the usual {:.0} % derating, before any leakage spike",
+                    f.drain_stress,
+                    100.0 * f.drain_stress / rating,
+                    100.0 * RATING_WARN
+                ),
+            );
+        }
+    }
+    design_warnings(job, f, &point, &mut warn);
+    Ok(warnings)
+}
+
+/// The switches that see the drain stress, with their field paths.
+fn switch_ratings(d: &ForwardDesign) -> Vec<(String, f64)> {
+    let mut list = vec![(
+        "converter.switch.voltage_rating".to_string(),
+        d.switch.voltage_rating,
+    )];
+    match &d.reset {
+        ResetScheme::TwoSwitch { high_side, .. } => list.push((
+            "converter.reset.two-switch.high_side.voltage_rating".into(),
+            high_side.voltage_rating,
+        )),
+        ResetScheme::ActiveClamp { aux_switch, .. } => list.push((
+            "converter.reset.active-clamp.aux_switch.voltage_rating".into(),
+            aux_switch.voltage_rating,
+        )),
+        _ => {}
+    }
+    list
+}
+
+fn design_warnings(
+    job: &Job,
+    f: &DesignFigures,
+    point: &DesignPoint,
+    warn: &mut dyn FnMut(&str, String),
+) {
+    let bsat = job.design.transformer.saturation_flux_density;
+    if f.flux_peak > FLUX_WARN * bsat {
+        warn(
+            "converter.transformer.saturation_flux_density",
+            format!(
+                "flux density at maximum duty {} and low line {} V reaches {:.3} T, {:.0} % \
+                 of Bsat {bsat} T (above {:.0} %)",
+                point.max_duty,
+                point.low_line,
+                f.flux_peak,
+                100.0 * f.flux_peak / bsat,
+                100.0 * FLUX_WARN
+            ),
+        );
+    }
+    if f.load_current <= 0.0 {
+        warn(
+            "converter.load",
+            "no load at t = 0: the output inductor current will be discontinuous".into(),
+        );
+    } else if f.inductor_ripple > RIPPLE_WARN * f.load_current {
+        warn(
+            "converter.output_inductor.inductance",
+            format!(
+                "inductor ripple {:.3} A p-p is {:.0} % of the {:.3} A load (above {:.0} %): \
+                 near discontinuous conduction",
+                f.inductor_ripple,
+                100.0 * f.inductor_ripple / f.load_current,
+                f.load_current,
+                100.0 * RIPPLE_WARN
+            ),
+        );
+    }
+    if let (Some(needed), Some(vo)) = (f.low_line_duty_needed, point.set_point) {
+        if needed > point.max_duty {
+            warn(
+                "drive.controller.max_duty",
+                format!(
+                    "holding {vo:.3} V at low line {} V needs duty {needed:.3}, above \
+                     max_duty {}: the output will fall out of regulation",
+                    point.low_line, point.max_duty
+                ),
+            );
+        }
+    }
+    timing_warnings(job, warn);
+}
+
+fn timing_warnings(job: &Job, warn: &mut dyn FnMut(&str, String)) {
+    let a = &job.analysis;
+    for (k, e) in job.disturbances.iter().enumerate() {
+        if e.time() >= a.stop_time {
+            warn(
+                &format!("events[{k}]"),
+                format!(
+                    "at {} s, not before stop_time {} s: it never happens",
+                    e.time(),
+                    a.stop_time
+                ),
+            );
+        }
+    }
+    let samples = a.stop_time / a.sample_interval;
+    if samples > SAMPLES_WARN {
+        warn(
+            "analysis.sample_interval",
+            format!("{samples:.3e} samples per signal: large output files"),
+        );
+    }
+    let lockout = match &job.drive {
+        Drive::Controller(c) => c.lockout.as_ref(),
+        Drive::OpenLoop(_) => None,
+    };
+    if let Some(l) = lockout {
+        if job.design.input.voltage < l.start {
+            warn(
+                "drive.controller.lockout.start",
+                format!(
+                    "input {} V is below the lockout start {} V: the controller will not \
+                     switch until a line event raises it",
+                    job.design.input.voltage, l.start
+                ),
+            );
+        }
+    }
+}

@@ -1,0 +1,106 @@
+//! Scenario files: JSON in this project's own format, loaded in two stages — serde
+//! types that parse and check units ([`raw`]), then a validated [`Job`]
+//! ([`validate`], [`feasibility`]).
+//!
+//! ```json
+//! {
+//!   "name": "startup",
+//!   "converter": { "input": { "voltage": "24 V" }, "reset": { "reset-winding": { … } }, … },
+//!   "drive": { "open_loop": { "frequency": "150 kHz", "duty": 0.3 } },
+//!   "analysis": { "stop_time": "2 ms", "sample_interval": "1 us" }
+//! }
+//! ```
+//!
+//! `stepflux schema` prints the full JSON Schema; `scenarios/` has worked examples.
+
+mod error;
+mod feasibility;
+pub mod raw;
+mod validate;
+
+use std::path::Path;
+
+use stepflux_models::figures::DesignFigures;
+
+pub use error::{ScenarioError, Warning};
+pub use feasibility::design_point;
+
+use crate::job::Job;
+use validate::Ctx;
+
+/// A scenario that can run, with what `check` reports about it.
+#[derive(Clone, Debug)]
+pub struct Loaded {
+    /// The validated job.
+    pub job: Job,
+    /// Design concerns that do not stop the run.
+    pub warnings: Vec<Warning>,
+    /// Paper design figures at the scenario's operating range.
+    pub figures: DesignFigures,
+    /// Probe names of the converter as built, in sample order.
+    pub probes: Vec<String>,
+}
+
+/// Reads and validates the scenario file at `path`.
+pub fn load(path: &Path) -> Result<Loaded, ScenarioError> {
+    let text = std::fs::read_to_string(path).map_err(|source| ScenarioError::Read {
+        path: path.to_path_buf(),
+        source,
+    })?;
+    load_str(&text, &path.display().to_string())
+}
+
+/// Validates scenario `text`; `file` names it in messages.
+pub fn load_str(text: &str, file: &str) -> Result<Loaded, ScenarioError> {
+    let ctx = Ctx { file };
+    let raw = parse(text, file)?;
+    let design = validate::design(&ctx, &raw.converter)?;
+    let drive = validate::drive(&ctx, &raw.drive)?;
+    let disturbances = validate::events(&ctx, &raw.events, &drive)?;
+    let job = Job {
+        name: validate::name(&ctx, &raw.name)?,
+        description: raw.description,
+        design,
+        drive,
+        disturbances,
+        analysis: validate::analysis(&ctx, &raw.analysis)?,
+        limits: validate::limits(&ctx, &raw.limits)?,
+        save: raw.save,
+        bias_power: ctx.non_negative("bias_power", raw.bias_power.map_or(0.0, |w| w.si()))?,
+        source_text: text.to_string(),
+    };
+    let built = feasibility::build(&job.design, &job.drive, &job.disturbances)
+        .map_err(|e| ctx.model("converter", e, &|f| format!("converter.{f}")))?;
+    feasibility::check_build(&ctx, &job, &built)?;
+    let figures = DesignFigures::compute(&job.design, &design_point(&job));
+    let warnings = feasibility::judge(&ctx, &job, &figures)?;
+    Ok(Loaded {
+        job,
+        warnings,
+        figures,
+        probes: built.probes,
+    })
+}
+
+/// First stage: JSON → raw types, with the field path of any error.
+fn parse(text: &str, file: &str) -> Result<raw::Scenario, ScenarioError> {
+    let mut de = serde_json::Deserializer::from_str(text);
+    let raw: raw::Scenario =
+        serde_path_to_error::deserialize(&mut de).map_err(|e| error::from_json(file, e))?;
+    // Trailing text after the object is malformed too.
+    de.end().map_err(|e| ScenarioError::Syntax {
+        file: file.to_string(),
+        line: e.line(),
+        column: e.column(),
+        message: "text after the end of the scenario object".into(),
+    })?;
+    Ok(raw)
+}
+
+/// The JSON Schema of the format, generated from the same types the loader uses.
+pub fn json_schema() -> serde_json::Value {
+    serde_json::to_value(schemars::schema_for!(raw::Scenario)).unwrap_or_default()
+}
+
+#[cfg(test)]
+mod tests;

@@ -1,0 +1,565 @@
+//! The scenario file as written: serde types that only parse, refuse unknown fields and
+//! check units. Ranges and consistency are checked in [`super::validate`].
+//!
+//! Enumerations are written as an object with one key naming the choice, e.g.
+//! `"reset": { "rcd-clamp": { … } }`, so an error inside a choice carries its full path.
+//! Values carry their unit (see [`crate::units`]). The JSON Schema printed by
+//! `stepflux schema` is generated from these types, doc comments included.
+
+use schemars::JsonSchema;
+use serde::Deserialize;
+
+use crate::units::{
+    Amperes, AmperesPerSecond, Farads, Henries, Hertz, Ohms, Ratio, Seconds, SquareMetres, Tesla,
+    Volts, VoltsPerSecond, Watts,
+};
+
+/// A stepflux scenario: one forward converter, how it is driven, what happens to it
+/// and for how long, and the limits its run is judged against.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Scenario {
+    /// Optional reference to the JSON Schema, for editors; ignored by stepflux.
+    #[serde(rename = "$schema", default)]
+    #[allow(dead_code)]
+    // Accepted so editors can find the schema; stepflux needs nothing from it.
+    pub schema: Option<String>,
+    /// Scenario name, also the output folder name: letters, digits, '-', '_' and '.',
+    /// not starting with '.', at most 64 characters.
+    pub name: String,
+    /// Free text for reports.
+    #[serde(default)]
+    pub description: String,
+    /// The power stage.
+    pub converter: Converter,
+    /// How the switches are driven.
+    pub drive: Drive,
+    /// Time settings of the run.
+    pub analysis: Analysis,
+    /// Load, line and reference changes at set times.
+    #[serde(default)]
+    pub events: Vec<Event>,
+    /// Specification limits the run is judged against (all optional).
+    #[serde(default)]
+    pub limits: Limits,
+    /// Signals to save as waveforms (empty: all). Names are the converter's probes,
+    /// e.g. "out.v", "mag.i", "core.b"; `stepflux check` lists them.
+    #[serde(default)]
+    pub save: Vec<String>,
+    /// Fixed controller bias power for whole-converter efficiency (default 0 W).
+    pub bias_power: Option<Watts>,
+}
+
+/// The forward converter's power stage. Parasitics left out are zero (the element is
+/// not modelled); off-state resistances default to 10 MΩ.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Converter {
+    /// Input source.
+    pub input: Input,
+    /// Transformer (the reset winding, if any, is part of `reset`).
+    pub transformer: Transformer,
+    /// Main (low-side) primary switch.
+    pub switch: Switch,
+    /// How the core is reset; names the template.
+    pub reset: Reset,
+    /// Forward rectifier diode.
+    pub rectifier: Diode,
+    /// Freewheel diode.
+    pub freewheel: Diode,
+    /// Output inductor.
+    pub output_inductor: Inductor,
+    /// Output capacitor.
+    pub output_capacitor: Capacitor,
+    /// Load: a resistor, a current sink, or both in parallel.
+    pub load: Load,
+}
+
+/// Input source with an optional LC filter and bulk capacitor.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Input {
+    /// Source voltage at t = 0 (nominal line).
+    pub voltage: Volts,
+    /// Source resistance (default 0: none).
+    pub resistance: Option<Ohms>,
+    /// Series inductor then shunt capacitor between the source and the converter.
+    pub filter: Option<InputFilter>,
+    /// Bulk capacitor at the converter input.
+    pub bulk: Option<Capacitor>,
+}
+
+/// Input LC filter.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct InputFilter {
+    /// Series inductance.
+    pub inductance: Henries,
+    /// Series inductor resistance (default 0).
+    pub resistance: Option<Ohms>,
+    /// Shunt capacitor.
+    pub capacitor: Capacitor,
+}
+
+/// Transformer core and the primary and secondary windings.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Transformer {
+    /// Primary turns Np.
+    pub primary_turns: Ratio,
+    /// Secondary turns Ns.
+    pub secondary_turns: Ratio,
+    /// Magnetising inductance referred to the primary.
+    pub magnetising_inductance: Henries,
+    /// Primary leakage inductance (default 0).
+    pub primary_leakage: Option<Henries>,
+    /// Secondary leakage inductance (default 0).
+    pub secondary_leakage: Option<Henries>,
+    /// Primary winding resistance (default 0).
+    pub primary_resistance: Option<Ohms>,
+    /// Secondary winding resistance (default 0).
+    pub secondary_resistance: Option<Ohms>,
+    /// Core effective area Ae.
+    pub core_area: SquareMetres,
+    /// Saturation flux density Bsat.
+    pub saturation_flux_density: Tesla,
+    /// Incremental inductance above the saturation knee; omit for a core that does not
+    /// saturate in the model.
+    pub saturated_inductance: Option<Henries>,
+}
+
+/// A primary or clamp switch.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Switch {
+    /// On resistance.
+    pub r_on: Ohms,
+    /// Off resistance (default 10 MΩ).
+    pub r_off: Option<Ohms>,
+    /// Output capacitance Coss (default 0).
+    pub output_capacitance: Option<Farads>,
+    /// Body diode, if modelled.
+    pub body_diode: Option<Diode>,
+    /// Drain–source voltage rating.
+    pub voltage_rating: Volts,
+}
+
+/// A diode.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Diode {
+    /// Forward threshold voltage.
+    pub vf: Volts,
+    /// Forward (dynamic) resistance.
+    pub rd: Ohms,
+    /// Off resistance (default 10 MΩ).
+    pub r_off: Option<Ohms>,
+    /// Junction capacitance (default 0).
+    pub junction_capacitance: Option<Farads>,
+    /// Reverse-voltage rating.
+    pub reverse_rating: Volts,
+}
+
+/// Output inductor.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Inductor {
+    /// Inductance.
+    pub inductance: Henries,
+    /// Winding resistance (default 0).
+    pub dcr: Option<Ohms>,
+    /// Saturation current rating.
+    pub saturation_current: Amperes,
+}
+
+/// A capacitor.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Capacitor {
+    /// Capacitance.
+    pub capacitance: Farads,
+    /// Equivalent series resistance (default 0).
+    pub esr: Option<Ohms>,
+}
+
+/// Output load.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Load {
+    /// Load resistor (omit for none).
+    pub resistance: Option<Ohms>,
+    /// Constant-current sink at t = 0 (omit for none; `load_current` events move it).
+    pub current: Option<Amperes>,
+}
+
+/// How the core is reset while the switch is off; the choice names the template.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(rename_all = "kebab-case")]
+pub enum Reset {
+    /// Single switch; a reset winding and diode return the magnetising energy to the
+    /// input.
+    ResetWinding(ResetWinding),
+    /// Single switch; a diode, capacitor and resistor clamp the drain to the input.
+    RcdClamp(RcdClamp),
+    /// High- and low-side switches; two diodes clamp the winding to the input rail.
+    TwoSwitch(TwoSwitch),
+    /// An auxiliary switch and a capacitor clamp the drain, gated complementary to the
+    /// main switch.
+    ActiveClamp(ActiveClamp),
+}
+
+/// Reset (tertiary) winding.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ResetWinding {
+    /// Reset winding turns Nr.
+    pub turns: Ratio,
+    /// Reset winding leakage inductance (default 0).
+    pub leakage: Option<Henries>,
+    /// Reset winding resistance (default 0).
+    pub resistance: Option<Ohms>,
+    /// Reset diode.
+    pub diode: Diode,
+}
+
+/// Resistor–capacitor–diode clamp.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct RcdClamp {
+    /// Clamp diode.
+    pub diode: Diode,
+    /// Clamp resistor.
+    pub resistance: Ohms,
+    /// Clamp capacitor.
+    pub capacitor: Capacitor,
+    /// Clamp capacitor voltage at t = 0 (default 0).
+    pub initial_voltage: Option<Volts>,
+}
+
+/// Two-switch forward.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct TwoSwitch {
+    /// High-side switch, gated with the main switch.
+    pub high_side: Switch,
+    /// Each of the two clamp diodes.
+    pub clamp_diode: Diode,
+}
+
+/// Active clamp.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ActiveClamp {
+    /// Auxiliary switch.
+    pub aux_switch: Switch,
+    /// Clamp capacitor.
+    pub capacitor: Capacitor,
+    /// Clamp capacitor voltage at t = 0 (default 0).
+    pub initial_voltage: Option<Volts>,
+}
+
+/// Gate drive: a fixed duty, or the PWM controller.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum Drive {
+    /// Fixed frequency and duty.
+    OpenLoop(OpenLoop),
+    /// The behavioural voltage-mode PWM controller.
+    Controller(Box<Controller>),
+}
+
+/// Fixed-frequency, fixed-duty drive.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct OpenLoop {
+    /// Switching frequency.
+    pub frequency: Hertz,
+    /// Main-switch on-time over the period, 0 ≤ duty < 1.
+    pub duty: Ratio,
+    /// Dead time around the active-clamp switch (default 0).
+    pub dead_time: Option<Seconds>,
+}
+
+/// Voltage-mode PWM controller. The switch turns on at the clock; the ramp falls from
+/// peak to valley, and the pulse ends when it falls below the control voltage.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Controller {
+    /// Oscillator.
+    pub oscillator: Oscillator,
+    /// Output mode (default single_ended).
+    pub mode: Option<Mode>,
+    /// Most duty per output, over that output's own period.
+    pub max_duty: Ratio,
+    /// Duty-limit soft-start ramp time (default 0: none).
+    pub soft_start: Option<Seconds>,
+    /// Voltage regulation loop.
+    pub voltage_loop: VoltageLoop,
+    /// Current limit on the output inductor current (omit for none).
+    pub current_limit: Option<CurrentLimit>,
+    /// Leading-edge blanking after turn-on (default 0).
+    pub blanking: Option<Seconds>,
+    /// Minimum on-time once a pulse starts (default 0).
+    pub min_on_time: Option<Seconds>,
+    /// Delay from command to gate (default 0).
+    pub gate_delay: Option<Seconds>,
+    /// Input under-voltage lockout (omit for none).
+    pub lockout: Option<Lockout>,
+}
+
+/// Oscillator frequency and ramp levels.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Oscillator {
+    /// Clock frequency.
+    pub frequency: Hertz,
+    /// Ramp valley.
+    pub valley: Volts,
+    /// Ramp peak.
+    pub peak: Volts,
+}
+
+/// How the outputs follow the clock.
+#[derive(Clone, Copy, Debug, Deserialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum Mode {
+    /// One pulse per clock period on the main switch.
+    SingleEnded,
+    /// Outputs A and B alternate clock periods, each at half the clock frequency.
+    Alternating,
+}
+
+/// Voltage regulation loop: divider, reference and error amplifier.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct VoltageLoop {
+    /// Reference.
+    pub reference: Volts,
+    /// Reference soft-start ramp time (default 0: none).
+    pub reference_soft_start: Option<Seconds>,
+    /// Divider resistor from the output to the sense node.
+    pub divider_top: Ohms,
+    /// Divider resistor from the sense node to ground.
+    pub divider_bottom: Ohms,
+    /// Error amplifier.
+    pub amplifier: Amplifier,
+    /// Its compensation network.
+    pub compensation: Compensation,
+}
+
+/// Current limit on the output inductor current.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct CurrentLimit {
+    /// Sense gain, volts per ampere.
+    pub sense_gain: Ohms,
+    /// Limit threshold on the sensed voltage.
+    pub threshold: Volts,
+    /// Current amplifier.
+    pub amplifier: Amplifier,
+    /// Its compensation network.
+    pub compensation: Compensation,
+}
+
+/// Error amplifier as read from a data sheet.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Amplifier {
+    /// Open-loop DC gain, V/V.
+    pub dc_gain: Ratio,
+    /// Gain-bandwidth product.
+    pub gain_bandwidth: Hertz,
+    /// Lowest output.
+    pub output_low: Volts,
+    /// Highest output.
+    pub output_high: Volts,
+}
+
+/// Compensation network: component values of a type I, II or III network, or the
+/// integrator, zeros and poles to synthesise one.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum Compensation {
+    /// Integrator: R1 in, C1 in feedback.
+    Type1(Type1),
+    /// Integrator, one zero, one pole: R1 in; R2 + C1 in series in feedback, C2 across.
+    Type2(Type2),
+    /// Integrator, two zeros, two poles: type II feedback and R3 + C3 across R1.
+    Type3(Type3),
+    /// Integrator crossover with zero to two zeros and as many poles.
+    PolesZeros(PolesZeros),
+}
+
+/// Type I network values.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Type1 {
+    /// Input resistor.
+    pub r1: Ohms,
+    /// Feedback capacitor.
+    pub c1: Farads,
+}
+
+/// Type II network values.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Type2 {
+    /// Input resistor.
+    pub r1: Ohms,
+    /// Feedback resistor.
+    pub r2: Ohms,
+    /// Feedback series capacitor.
+    pub c1: Farads,
+    /// Feedback parallel capacitor.
+    pub c2: Farads,
+}
+
+/// Type III network values.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Type3 {
+    /// Input resistor.
+    pub r1: Ohms,
+    /// Feedback resistor.
+    pub r2: Ohms,
+    /// Input-branch resistor in series with C3.
+    pub r3: Ohms,
+    /// Feedback series capacitor.
+    pub c1: Farads,
+    /// Feedback parallel capacitor.
+    pub c2: Farads,
+    /// Input-branch capacitor.
+    pub c3: Farads,
+}
+
+/// A network given by its integrator, zeros and poles.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct PolesZeros {
+    /// Input resistor to realise the network with.
+    pub r1: Ohms,
+    /// Integrator unity-gain frequency.
+    pub integrator: Hertz,
+    /// Zero frequencies (none, one or two).
+    #[serde(default)]
+    pub zeros: Vec<Hertz>,
+    /// Pole frequencies besides the origin (as many as zeros).
+    #[serde(default)]
+    pub poles: Vec<Hertz>,
+}
+
+/// Input under-voltage lockout.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Lockout {
+    /// Input voltage at which switching starts.
+    pub start: Volts,
+    /// Input voltage below which switching stops (below `start`).
+    pub stop: Volts,
+}
+
+/// Time settings.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Analysis {
+    /// End of the run.
+    pub stop_time: Seconds,
+    /// Waveform output interval (switching instants are saved too).
+    pub sample_interval: Seconds,
+    /// Initial state (default "zero").
+    pub start: Option<Start>,
+}
+
+/// Initial state of the run.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum Start {
+    /// Every inductor current and capacitor voltage at zero: a cold start.
+    Zero,
+    /// The dynamic states in the simulator's state order, SI units.
+    States(Vec<f64>),
+}
+
+/// A change of operating point at a set time.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum Event {
+    /// The load current sink moves to a new value.
+    LoadCurrent(LoadCurrentStep),
+    /// The load resistor is replaced by a new value at once.
+    LoadResistance(LoadResistanceStep),
+    /// The input voltage moves to a new value.
+    Line(LineStep),
+    /// The controller reference moves to a new value.
+    Reference(ReferenceStep),
+}
+
+/// Load current change.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct LoadCurrentStep {
+    /// When it starts.
+    pub time: Seconds,
+    /// New sink current.
+    pub to: Amperes,
+    /// Slew rate (omit or 0 for an instant step).
+    pub slew: Option<AmperesPerSecond>,
+}
+
+/// Load resistance change.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct LoadResistanceStep {
+    /// When it happens.
+    pub time: Seconds,
+    /// New load resistance.
+    pub to: Ohms,
+}
+
+/// Input voltage change.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct LineStep {
+    /// When it starts.
+    pub time: Seconds,
+    /// New input voltage.
+    pub to: Volts,
+    /// Slew rate (omit or 0 for an instant step).
+    pub slew: Option<VoltsPerSecond>,
+}
+
+/// Reference change (controller drive only).
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ReferenceStep {
+    /// When it starts.
+    pub time: Seconds,
+    /// New reference voltage.
+    pub to: Volts,
+    /// Slew rate (omit or 0 for an instant step).
+    pub slew: Option<VoltsPerSecond>,
+}
+
+/// Specification limits; each omitted limit is not checked.
+#[derive(Debug, Default, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Limits {
+    /// Highest start-up overshoot, percent of the set point.
+    pub startup_overshoot_percent: Option<Ratio>,
+    /// Longest start-up time to 90 % of the set point.
+    pub startup_time: Option<Seconds>,
+    /// Largest deviation after a load or line step, percent of the set point.
+    pub step_deviation_percent: Option<Ratio>,
+    /// Longest recovery into the band after a step.
+    pub recovery_time: Option<Seconds>,
+    /// Recovery band, percent of the set point (default 1 %).
+    pub recovery_band_percent: Option<Ratio>,
+    /// Largest output ripple, peak to peak.
+    pub ripple: Option<Volts>,
+    /// Smallest reset margin, percent of the period.
+    pub reset_margin_percent: Option<Ratio>,
+    /// Smallest flux-density margin below Bsat, percent.
+    pub flux_margin_percent: Option<Ratio>,
+    /// Lowest power-stage efficiency over the final window, percent.
+    pub efficiency_percent: Option<Ratio>,
+}

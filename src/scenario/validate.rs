@@ -1,0 +1,542 @@
+//! Second stage of loading: raw scenario → the models' types, with defaults filled in
+//! and every range checked. Errors name the field by its path in the file.
+//!
+//! Ranges the models already check ([`ForwardDesign::validate`],
+//! [`ControllerSpec::validate`], [`OpenLoopGate::validate`]) are checked there and the
+//! field names mapped to scenario paths, so the rules live in one place; what the
+//! models leave to the caller is checked here.
+
+use stepflux_models::components::{
+    Capacitor, Diode, Inductor, InputFilter, InputSource, Load, Switch, Transformer,
+};
+use stepflux_models::controller::{
+    Amplifier, Compensation, ControllerSpec, CurrentLimit, Lockout, Oscillator, OutputMode,
+    VoltageLoop,
+};
+use stepflux_models::disturbance::Disturbance;
+use stepflux_models::gate::OpenLoopGate;
+use stepflux_models::template::{ForwardDesign, ResetScheme};
+use stepflux_models::ModelError;
+
+use super::error::ScenarioError;
+use super::raw;
+use crate::job::{Analysis, Drive, Limits, Start};
+
+/// Off-state resistance when a file leaves it out, ohms: a leakage figure of the order
+/// data sheets give for small power devices (common practice), and high enough against
+/// any load in the circuit to read as "off".
+pub const DEFAULT_R_OFF: f64 = 10e6;
+
+/// Longest scenario name, characters.
+const NAME_MAX: usize = 64;
+
+/// Where errors are reported: the file name as given.
+pub struct Ctx<'a> {
+    /// File name for messages.
+    pub file: &'a str,
+}
+
+impl Ctx<'_> {
+    /// An out-of-range error at `field`.
+    pub fn range(&self, field: &str, value: impl ToString, allowed: &str) -> ScenarioError {
+        ScenarioError::OutOfRange {
+            file: self.file.to_string(),
+            field: field.to_string(),
+            value: value.to_string(),
+            allowed: allowed.to_string(),
+        }
+    }
+
+    /// An infeasibility at `field`.
+    pub fn infeasible(&self, field: &str, message: String) -> ScenarioError {
+        ScenarioError::Infeasible {
+            file: self.file.to_string(),
+            field: field.to_string(),
+            message,
+        }
+    }
+
+    /// A model error met while building `field`; out-of-range values keep their own
+    /// field, mapped by `map`.
+    pub fn model(
+        &self,
+        field: &str,
+        error: ModelError,
+        map: &dyn Fn(&str) -> String,
+    ) -> ScenarioError {
+        match error {
+            ModelError::OutOfRange {
+                field: f,
+                value,
+                allowed,
+            } => self.range(&map(&f), value, &allowed),
+            error => ScenarioError::Model {
+                file: self.file.to_string(),
+                field: field.to_string(),
+                error,
+            },
+        }
+    }
+
+    fn check(
+        &self,
+        field: &str,
+        value: f64,
+        ok: bool,
+        allowed: &str,
+    ) -> Result<f64, ScenarioError> {
+        if ok && value.is_finite() {
+            Ok(value)
+        } else {
+            Err(self.range(field, value, allowed))
+        }
+    }
+
+    /// `value` if it is finite and > 0.
+    pub fn positive(&self, field: &str, value: f64) -> Result<f64, ScenarioError> {
+        self.check(field, value, value > 0.0, "a finite value > 0")
+    }
+
+    /// `value` if it is finite and ≥ 0.
+    pub fn non_negative(&self, field: &str, value: f64) -> Result<f64, ScenarioError> {
+        self.check(field, value, value >= 0.0, "a finite value ≥ 0")
+    }
+
+    /// `value` if it lies in [lo, hi].
+    pub fn within(&self, field: &str, value: f64, lo: f64, hi: f64) -> Result<f64, ScenarioError> {
+        self.check(
+            field,
+            value,
+            (lo..=hi).contains(&value),
+            &format!("{lo} to {hi}"),
+        )
+    }
+}
+
+/// The name, if it is a safe single path component.
+pub fn name(ctx: &Ctx, name: &str) -> Result<String, ScenarioError> {
+    let allowed = "letters, digits, '-', '_' and '.', not starting with '.', 1 to 64 \
+                   characters (it names the output folder)";
+    let safe = !name.is_empty()
+        && name.chars().count() <= NAME_MAX
+        && !name.starts_with('.')
+        && name
+            .chars()
+            .all(|c| c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.'));
+    if safe {
+        Ok(name.to_string())
+    } else {
+        Err(ctx.range("name", format!("{name:?}"), allowed))
+    }
+}
+
+fn or_zero<T: Copy>(v: Option<T>, si: fn(T) -> f64) -> f64 {
+    v.map_or(0.0, si)
+}
+
+fn diode(d: &raw::Diode) -> Diode {
+    Diode {
+        vf: d.vf.si(),
+        rd: d.rd.si(),
+        r_off: d.r_off.map_or(DEFAULT_R_OFF, |r| r.si()),
+        junction_capacitance: or_zero(d.junction_capacitance, |c| c.si()),
+        reverse_rating: d.reverse_rating.si(),
+    }
+}
+
+fn switch(s: &raw::Switch) -> Switch {
+    Switch {
+        r_on: s.r_on.si(),
+        r_off: s.r_off.map_or(DEFAULT_R_OFF, |r| r.si()),
+        output_capacitance: or_zero(s.output_capacitance, |c| c.si()),
+        body_diode: s.body_diode.as_ref().map(diode),
+        voltage_rating: s.voltage_rating.si(),
+    }
+}
+
+fn capacitor(c: &raw::Capacitor) -> Capacitor {
+    Capacitor {
+        capacitance: c.capacitance.si(),
+        esr: or_zero(c.esr, |r| r.si()),
+    }
+}
+
+/// Scenario path of a field the models name (`transformer.reset_turns`, `reset.diode.rd`,
+/// `switch.r_on`).
+fn design_path(model_field: &str, scheme: &str) -> String {
+    if model_field == "transformer.reset_turns" {
+        return "converter.reset.reset-winding.turns".into();
+    }
+    match model_field.strip_prefix("reset.") {
+        Some(rest) => format!("converter.reset.{scheme}.{rest}"),
+        None => format!("converter.{model_field}"),
+    }
+}
+
+/// The power stage, checked.
+pub fn design(ctx: &Ctx, c: &raw::Converter) -> Result<ForwardDesign, ScenarioError> {
+    let t = &c.transformer;
+    let mut transformer = Transformer {
+        primary_turns: t.primary_turns.si(),
+        secondary_turns: t.secondary_turns.si(),
+        reset_turns: 0.0,
+        magnetising_inductance: t.magnetising_inductance.si(),
+        primary_leakage: or_zero(t.primary_leakage, |v| v.si()),
+        secondary_leakage: or_zero(t.secondary_leakage, |v| v.si()),
+        reset_leakage: 0.0,
+        primary_resistance: or_zero(t.primary_resistance, |v| v.si()),
+        secondary_resistance: or_zero(t.secondary_resistance, |v| v.si()),
+        reset_resistance: 0.0,
+        core_area: t.core_area.si(),
+        saturation_flux_density: t.saturation_flux_density.si(),
+        saturated_inductance: t.saturated_inductance.map(|v| v.si()),
+    };
+    let (reset, scheme) = match &c.reset {
+        raw::Reset::ResetWinding(w) => {
+            transformer.reset_turns = w.turns.si();
+            transformer.reset_leakage = or_zero(w.leakage, |v| v.si());
+            transformer.reset_resistance = or_zero(w.resistance, |v| v.si());
+            let path = "converter.reset.reset-winding";
+            ctx.non_negative(&format!("{path}.leakage"), transformer.reset_leakage)?;
+            ctx.non_negative(&format!("{path}.resistance"), transformer.reset_resistance)?;
+            (
+                ResetScheme::ResetWinding {
+                    diode: diode(&w.diode),
+                },
+                "reset-winding",
+            )
+        }
+        raw::Reset::RcdClamp(r) => {
+            let v0 = or_zero(r.initial_voltage, |v| v.si());
+            ctx.non_negative("converter.reset.rcd-clamp.initial_voltage", v0)?;
+            ctx.non_negative(
+                "converter.reset.rcd-clamp.capacitor.esr",
+                or_zero(r.capacitor.esr, |v| v.si()),
+            )?;
+            let reset = ResetScheme::RcdClamp {
+                diode: diode(&r.diode),
+                resistance: r.resistance.si(),
+                capacitor: capacitor(&r.capacitor),
+                initial_voltage: v0,
+            };
+            (reset, "rcd-clamp")
+        }
+        raw::Reset::TwoSwitch(s) => {
+            let reset = ResetScheme::TwoSwitch {
+                high_side: switch(&s.high_side),
+                clamp_diode: diode(&s.clamp_diode),
+            };
+            (reset, "two-switch")
+        }
+        raw::Reset::ActiveClamp(a) => {
+            let v0 = or_zero(a.initial_voltage, |v| v.si());
+            ctx.non_negative("converter.reset.active-clamp.initial_voltage", v0)?;
+            ctx.non_negative(
+                "converter.reset.active-clamp.capacitor.esr",
+                or_zero(a.capacitor.esr, |v| v.si()),
+            )?;
+            let reset = ResetScheme::ActiveClamp {
+                aux_switch: switch(&a.aux_switch),
+                capacitor: capacitor(&a.capacitor),
+                initial_voltage: v0,
+            };
+            (reset, "active-clamp")
+        }
+    };
+    let design = ForwardDesign {
+        input: input(ctx, &c.input)?,
+        transformer,
+        switch: switch(&c.switch),
+        reset,
+        rectifier: diode(&c.rectifier),
+        freewheel: diode(&c.freewheel),
+        output_inductor: Inductor {
+            inductance: c.output_inductor.inductance.si(),
+            dcr: or_zero(c.output_inductor.dcr, |v| v.si()),
+            saturation_current: ctx.positive(
+                "converter.output_inductor.saturation_current",
+                c.output_inductor.saturation_current.si(),
+            )?,
+        },
+        output_capacitor: capacitor(&c.output_capacitor),
+        load: Load {
+            resistance: c.load.resistance.map(|v| v.si()),
+            current: c.load.current.map(|v| v.si()),
+        },
+    };
+    design
+        .validate()
+        .map_err(|e| ctx.model("converter", e, &|f| design_path(f, scheme)))?;
+    Ok(design)
+}
+
+fn input(ctx: &Ctx, i: &raw::Input) -> Result<InputSource, ScenarioError> {
+    let filter = match &i.filter {
+        Some(f) => Some(InputFilter {
+            inductance: ctx.positive("converter.input.filter.inductance", f.inductance.si())?,
+            resistance: ctx.non_negative(
+                "converter.input.filter.resistance",
+                or_zero(f.resistance, |v| v.si()),
+            )?,
+            capacitor: checked_capacitor(ctx, "converter.input.filter.capacitor", &f.capacitor)?,
+        }),
+        None => None,
+    };
+    let bulk = match &i.bulk {
+        Some(b) => Some(checked_capacitor(ctx, "converter.input.bulk", b)?),
+        None => None,
+    };
+    Ok(InputSource {
+        voltage: i.voltage.si(),
+        resistance: or_zero(i.resistance, |v| v.si()),
+        filter,
+        bulk,
+    })
+}
+
+fn checked_capacitor(
+    ctx: &Ctx,
+    path: &str,
+    c: &raw::Capacitor,
+) -> Result<Capacitor, ScenarioError> {
+    let c = capacitor(c);
+    ctx.positive(&format!("{path}.capacitance"), c.capacitance)?;
+    ctx.non_negative(&format!("{path}.esr"), c.esr)?;
+    Ok(c)
+}
+
+/// The drive, checked.
+pub fn drive(ctx: &Ctx, d: &raw::Drive) -> Result<Drive, ScenarioError> {
+    match d {
+        raw::Drive::OpenLoop(o) => {
+            let gate = OpenLoopGate {
+                frequency: o.frequency.si(),
+                duty: o.duty.si(),
+                dead_time: or_zero(o.dead_time, |v| v.si()),
+            };
+            gate.validate().map_err(|e| {
+                ctx.model("drive.open_loop", e, &|f| {
+                    format!("drive.open_loop.{}", f.trim_start_matches("gate."))
+                })
+            })?;
+            Ok(Drive::OpenLoop(gate))
+        }
+        raw::Drive::Controller(c) => controller(ctx, c).map(Drive::Controller),
+    }
+}
+
+fn controller(ctx: &Ctx, c: &raw::Controller) -> Result<ControllerSpec, ScenarioError> {
+    let base = "drive.controller";
+    let v = &c.voltage_loop;
+    let spec = ControllerSpec {
+        oscillator: Oscillator {
+            frequency: c.oscillator.frequency.si(),
+            valley: c.oscillator.valley.si(),
+            peak: c.oscillator.peak.si(),
+        },
+        mode: match c.mode {
+            None | Some(raw::Mode::SingleEnded) => OutputMode::SingleEnded,
+            Some(raw::Mode::Alternating) => OutputMode::Alternating,
+        },
+        max_duty: c.max_duty.si(),
+        soft_start: or_zero(c.soft_start, |v| v.si()),
+        voltage_loop: VoltageLoop {
+            reference: v.reference.si(),
+            reference_soft_start: or_zero(v.reference_soft_start, |v| v.si()),
+            divider_top: v.divider_top.si(),
+            divider_bottom: v.divider_bottom.si(),
+            amplifier: amplifier(&v.amplifier),
+            compensation: compensation(
+                ctx,
+                &format!("{base}.voltage_loop.compensation"),
+                &v.compensation,
+            )?,
+        },
+        current_limit: match &c.current_limit {
+            Some(l) => Some(CurrentLimit {
+                sense_gain: l.sense_gain.si(),
+                threshold: l.threshold.si(),
+                amplifier: amplifier(&l.amplifier),
+                compensation: compensation(
+                    ctx,
+                    &format!("{base}.current_limit.compensation"),
+                    &l.compensation,
+                )?,
+            }),
+            None => None,
+        },
+        blanking: or_zero(c.blanking, |v| v.si()),
+        min_on_time: or_zero(c.min_on_time, |v| v.si()),
+        gate_delay: or_zero(c.gate_delay, |v| v.si()),
+        lockout: c.lockout.as_ref().map(|l| Lockout {
+            start: l.start.si(),
+            stop: l.stop.si(),
+        }),
+    };
+    spec.validate()
+        .map_err(|e| ctx.model(base, e, &|f| format!("drive.{f}")))?;
+    Ok(spec)
+}
+
+fn amplifier(a: &raw::Amplifier) -> Amplifier {
+    Amplifier {
+        dc_gain: a.dc_gain.si(),
+        gain_bandwidth: a.gain_bandwidth.si(),
+        output_low: a.output_low.si(),
+        output_high: a.output_high.si(),
+    }
+}
+
+/// A compensation network with every value checked; poles and zeros are synthesised
+/// here so a shape the models cannot realise is reported at its path.
+fn compensation(
+    ctx: &Ctx,
+    path: &str,
+    c: &raw::Compensation,
+) -> Result<Compensation, ScenarioError> {
+    let pos = |field: &str, v: f64| ctx.positive(&format!("{path}.{field}"), v);
+    let network = match c {
+        raw::Compensation::Type1(n) => Compensation::TypeI {
+            r1: pos("type1.r1", n.r1.si())?,
+            c1: pos("type1.c1", n.c1.si())?,
+        },
+        raw::Compensation::Type2(n) => Compensation::TypeII {
+            r1: pos("type2.r1", n.r1.si())?,
+            r2: pos("type2.r2", n.r2.si())?,
+            c1: pos("type2.c1", n.c1.si())?,
+            c2: pos("type2.c2", n.c2.si())?,
+        },
+        raw::Compensation::Type3(n) => Compensation::TypeIII {
+            r1: pos("type3.r1", n.r1.si())?,
+            r2: pos("type3.r2", n.r2.si())?,
+            r3: pos("type3.r3", n.r3.si())?,
+            c1: pos("type3.c1", n.c1.si())?,
+            c2: pos("type3.c2", n.c2.si())?,
+            c3: pos("type3.c3", n.c3.si())?,
+        },
+        raw::Compensation::PolesZeros(n) => {
+            let hz =
+                |list: &[crate::units::Hertz], name: &str| -> Result<Vec<f64>, ScenarioError> {
+                    list.iter()
+                        .enumerate()
+                        .map(|(k, f)| pos(&format!("poles_zeros.{name}[{k}]"), f.si()))
+                        .collect()
+                };
+            Compensation::PolesZeros {
+                r1: pos("poles_zeros.r1", n.r1.si())?,
+                integrator_hz: pos("poles_zeros.integrator", n.integrator.si())?,
+                zeros_hz: hz(&n.zeros, "zeros")?,
+                poles_hz: hz(&n.poles, "poles")?,
+            }
+        }
+    };
+    network.components().map_err(|e| {
+        ctx.model(&format!("{path}.poles_zeros"), e, &|f| {
+            format!(
+                "{path}.poles_zeros.{}",
+                f.trim_start_matches("compensation.")
+            )
+        })
+    })?;
+    Ok(network)
+}
+
+/// The events, checked (in file order; the models sort them by time).
+pub fn events(
+    ctx: &Ctx,
+    list: &[raw::Event],
+    drive: &Drive,
+) -> Result<Vec<Disturbance>, ScenarioError> {
+    list.iter()
+        .enumerate()
+        .map(|(k, e)| {
+            let at = |kind: &str, field: &str| format!("events[{k}].{kind}.{field}");
+            let slew = |kind: &str, v: Option<f64>| ctx.non_negative(&at(kind, "slew"), v.unwrap_or(0.0));
+            let time = |kind: &str, t: f64| ctx.non_negative(&at(kind, "time"), t);
+            Ok(match e {
+                raw::Event::LoadCurrent(s) => Disturbance::LoadCurrent {
+                    time: time("load_current", s.time.si())?,
+                    to: ctx.non_negative(&at("load_current", "to"), s.to.si())?,
+                    slew: slew("load_current", s.slew.map(|v| v.si()))?,
+                },
+                raw::Event::LoadResistance(s) => Disturbance::LoadResistance {
+                    time: time("load_resistance", s.time.si())?,
+                    to: ctx.positive(&at("load_resistance", "to"), s.to.si())?,
+                },
+                raw::Event::Line(s) => Disturbance::Line {
+                    time: time("line", s.time.si())?,
+                    to: ctx.positive(&at("line", "to"), s.to.si())?,
+                    slew: slew("line", s.slew.map(|v| v.si()))?,
+                },
+                raw::Event::Reference(s) => {
+                    if !matches!(drive, Drive::Controller(_)) {
+                        return Err(ctx.infeasible(
+                            &format!("events[{k}].reference"),
+                            "a reference step needs the controller drive; open_loop has no reference".into(),
+                        ));
+                    }
+                    Disturbance::Reference {
+                        time: time("reference", s.time.si())?,
+                        to: ctx.positive(&at("reference", "to"), s.to.si())?,
+                        slew: slew("reference", s.slew.map(|v| v.si()))?,
+                    }
+                }
+            })
+        })
+        .collect()
+}
+
+/// Time settings, checked (the state count of `states` is checked once the circuit is
+/// built).
+pub fn analysis(ctx: &Ctx, a: &raw::Analysis) -> Result<Analysis, ScenarioError> {
+    let stop_time = ctx.positive("analysis.stop_time", a.stop_time.si())?;
+    let sample_interval = ctx.positive("analysis.sample_interval", a.sample_interval.si())?;
+    if sample_interval > stop_time {
+        return Err(ctx.range(
+            "analysis.sample_interval",
+            sample_interval,
+            &format!("at most stop_time = {stop_time} s"),
+        ));
+    }
+    let start = match &a.start {
+        None | Some(raw::Start::Zero) => Start::Zero,
+        Some(raw::Start::States(x)) => Start::States(x.clone()),
+    };
+    Ok(Analysis {
+        stop_time,
+        sample_interval,
+        start,
+    })
+}
+
+/// Limits, checked: percentages within their natural range, times and ripple positive.
+pub fn limits(ctx: &Ctx, l: &raw::Limits) -> Result<Limits, ScenarioError> {
+    let pct = |field: &str, v: Option<crate::units::Ratio>, hi: f64| {
+        v.map(|v| ctx.within(&format!("limits.{field}"), v.si(), 0.0, hi))
+            .transpose()
+    };
+    let pos = |field: &str, v: Option<f64>| {
+        v.map(|v| ctx.positive(&format!("limits.{field}"), v))
+            .transpose()
+    };
+    // Overshoot and deviation may exceed 100 % in a failing design; 1000 % only catches
+    // a value typed as a fraction's reciprocal or a stray exponent.
+    Ok(Limits {
+        startup_overshoot_percent: pct(
+            "startup_overshoot_percent",
+            l.startup_overshoot_percent,
+            1000.0,
+        )?,
+        startup_time: pos("startup_time", l.startup_time.map(|v| v.si()))?,
+        step_deviation_percent: pct("step_deviation_percent", l.step_deviation_percent, 1000.0)?,
+        recovery_time: pos("recovery_time", l.recovery_time.map(|v| v.si()))?,
+        recovery_band_percent: pos(
+            "recovery_band_percent",
+            l.recovery_band_percent.map(|v| v.si()),
+        )?,
+        ripple: pos("ripple", l.ripple.map(|v| v.si()))?,
+        reset_margin_percent: pct("reset_margin_percent", l.reset_margin_percent, 100.0)?,
+        flux_margin_percent: pct("flux_margin_percent", l.flux_margin_percent, 100.0)?,
+        efficiency_percent: pct("efficiency_percent", l.efficiency_percent, 100.0)?,
+    })
+}
