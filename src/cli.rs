@@ -42,6 +42,50 @@ pub enum Command {
         #[arg(long)]
         json: bool,
     },
+    /// Run one or more scenario files, in parallel, writing each run's outputs.
+    #[command(
+        after_help = "Example:\n  stepflux run scenarios/demo-startup.json scenarios/load-step.json --out results\n\n\
+        Writes DIR/<scenario name>/waveforms.h5, summary.json and plots/*.svg for each \
+        scenario. One bad or failing scenario does not stop the others; the exit code is \
+        the most severe outcome (3 simulation failed, 2 bad input, 1 a limit failed, 0 ok)."
+    )]
+    Run {
+        /// Scenario files (JSON; see `stepflux schema`).
+        #[arg(value_name = "SCENARIO", required = true)]
+        scenarios: Vec<PathBuf>,
+        /// Directory that receives one folder per scenario.
+        #[arg(long, value_name = "DIR", default_value = "out")]
+        out: PathBuf,
+        /// Scenarios run at once (0: one per core).
+        #[arg(long, value_name = "N", default_value_t = 0)]
+        jobs: usize,
+        /// No progress bars and no per-scenario report (errors still print).
+        #[arg(long)]
+        quiet: bool,
+        /// Print one JSON document with every summary instead of text.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Plot signals of a waveform file into an SVG file.
+    #[command(
+        after_help = "Example:\n  stepflux plot out/demo/waveforms.h5 --signal out.v --signal lout.i -o vout.svg\n\n\
+        One panel per signal against time; long signals keep every peak (min/max per \
+        pixel column). `--x cycles/start` with `--signal cycles/duty` plots the cycle table."
+    )]
+    Plot {
+        /// Waveform file written by `run` or `demo`.
+        #[arg(value_name = "FILE.h5")]
+        file: PathBuf,
+        /// Signal (dataset) names, e.g. out.v, drain.v, cycles/duty.
+        #[arg(long = "signal", value_name = "NAME")]
+        signals: Vec<String>,
+        /// Dataset for the horizontal axis.
+        #[arg(long, value_name = "NAME", default_value = "time")]
+        x: String,
+        /// SVG file to write.
+        #[arg(short = 'o', long = "output", value_name = "FILE.svg")]
+        output: PathBuf,
+    },
     /// Print the JSON Schema of the scenario file format.
     #[command(after_help = "Example:\n  stepflux schema > stepflux.schema.json\n\n\
         Point an editor at the schema (or put \"$schema\" in a scenario) for completion \

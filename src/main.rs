@@ -9,8 +9,10 @@ mod exit;
 mod job;
 mod measurements;
 mod pipeline;
+mod plot_cmd;
 mod print;
 mod report;
+mod run_cmd;
 mod scenario;
 mod units;
 mod writers;
@@ -39,6 +41,19 @@ fn run(cli: Cli) -> Result<(), Failure> {
     match cli.command {
         Command::Check { scenario, json } => check::check(&scenario, json),
         Command::Schema => check::schema(),
+        Command::Run {
+            scenarios,
+            out,
+            jobs,
+            quiet,
+            json,
+        } => run_cmd::run(&scenarios, &out, jobs, run_cmd::Reporting { quiet, json }),
+        Command::Plot {
+            file,
+            signals,
+            x,
+            output,
+        } => plot_cmd::plot(&file, &signals, &x, &output),
         Command::Demo { out } => {
             if out.exists() && !out.is_dir() {
                 return Err(anyhow::anyhow!(

@@ -1,0 +1,176 @@
+//! `stepflux run SCENARIO...`: load each scenario, run the valid ones in parallel, and
+//! report each — one bad or failing scenario never stops the others.
+//!
+//! Exit code: the most severe outcome over all scenarios, in the order simulation
+//! failed (3) > bad input (2) > a spec limit failed (1) > all good (0).
+
+use std::path::{Path, PathBuf};
+use std::time::Duration;
+
+use indicatif::{MultiProgress, ProgressBar, ProgressDrawTarget, ProgressStyle};
+use rayon::prelude::*;
+
+use crate::exit::{Exit, Failure};
+use crate::pipeline::{run_job, RunOutput};
+use crate::scenario;
+
+/// How a run command reports.
+#[derive(Clone, Copy, Debug, Default)]
+pub struct Reporting {
+    /// No progress bars, no per-scenario text (errors still go to stderr).
+    pub quiet: bool,
+    /// Print one JSON document on stdout instead of text.
+    pub json: bool,
+}
+
+/// Outcome of one scenario.
+enum Outcome {
+    Ran(Box<RunOutput>),
+    BadInput(String),
+    Failed(String),
+}
+
+impl Outcome {
+    fn exit(&self) -> Exit {
+        match self {
+            Outcome::Ran(o) if o.summary.passed => Exit::Ok,
+            Outcome::Ran(o) if o.summary.error.is_some() => Exit::SimulationFailed,
+            Outcome::Ran(_) => Exit::SpecFailed,
+            Outcome::BadInput(_) => Exit::BadInput,
+            Outcome::Failed(_) => Exit::SimulationFailed,
+        }
+    }
+}
+
+fn severity(e: Exit) -> u8 {
+    match e {
+        Exit::Ok => 0,
+        Exit::SpecFailed => 1,
+        Exit::BadInput => 2,
+        Exit::SimulationFailed => 3,
+    }
+}
+
+/// Runs every scenario with up to `jobs` in parallel (0: one per core).
+pub fn run(scenarios: &[PathBuf], out: &Path, jobs: usize, how: Reporting) -> Result<(), Failure> {
+    if out.exists() && !out.is_dir() {
+        return Err(Failure {
+            exit: Exit::BadInput,
+            error: anyhow::anyhow!(
+                "output location {} exists and is not a directory",
+                out.display()
+            ),
+        });
+    }
+    let bars = MultiProgress::with_draw_target(if how.quiet || how.json {
+        ProgressDrawTarget::hidden()
+    } else {
+        ProgressDrawTarget::stderr()
+    });
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(jobs)
+        .build()
+        .map_err(|e| Failure {
+            exit: Exit::SimulationFailed,
+            error: anyhow::anyhow!("starting {jobs} worker threads: {e}"),
+        })?;
+    let outcomes: Vec<(PathBuf, Outcome)> = pool.install(|| {
+        scenarios
+            .par_iter()
+            .map(|path| (path.clone(), one(path, out, &bars)))
+            .collect()
+    });
+    report(&outcomes, how);
+    let worst = outcomes
+        .iter()
+        .map(|(_, o)| o.exit())
+        .max_by_key(|e| severity(*e))
+        .unwrap_or(Exit::Ok);
+    match worst {
+        Exit::Ok => Ok(()),
+        exit => Err(Failure {
+            exit,
+            error: anyhow::anyhow!(
+                "{} of {} scenarios did not pass",
+                count_bad(&outcomes),
+                outcomes.len()
+            ),
+        }),
+    }
+}
+
+fn count_bad(outcomes: &[(PathBuf, Outcome)]) -> usize {
+    outcomes
+        .iter()
+        .filter(|(_, o)| o.exit() != Exit::Ok)
+        .count()
+}
+
+/// Loads and runs one scenario; a panic inside the run is caught and reported as a
+/// failed simulation so the other scenarios go on.
+fn one(path: &Path, out: &Path, bars: &MultiProgress) -> Outcome {
+    let loaded = match scenario::load(path) {
+        Ok(l) => l,
+        Err(e) => return Outcome::BadInput(e.to_string()),
+    };
+    for w in &loaded.warnings {
+        let _ = bars.println(format!("warning: {}: {w}", path.display()));
+    }
+    let bar = bars.add(ProgressBar::new(1000));
+    bar.set_style(
+        ProgressStyle::with_template(
+            "{prefix:>20} [{bar:30}] {percent:>3}% {elapsed_precise} eta {eta}",
+        )
+        .unwrap_or_else(|_| ProgressStyle::default_bar())
+        .progress_chars("=> "),
+    );
+    bar.set_prefix(loaded.job.name.clone());
+    bar.enable_steady_tick(Duration::from_millis(500));
+    let progress = |f: f64| bar.set_position((1000.0 * f) as u64);
+    let result = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+        run_job(&loaded.job, out, &progress)
+    }));
+    bar.finish_and_clear();
+    match result {
+        Ok(Ok(output)) => Outcome::Ran(Box::new(output)),
+        Ok(Err(e)) => Outcome::Failed(format!("{e:#}")),
+        Err(panic) => Outcome::Failed(format!("internal error (panic): {}", panic_text(&panic))),
+    }
+}
+
+fn panic_text(panic: &Box<dyn std::any::Any + Send>) -> String {
+    panic
+        .downcast_ref::<&str>()
+        .map(|s| s.to_string())
+        .or_else(|| panic.downcast_ref::<String>().cloned())
+        .unwrap_or_else(|| "unknown".into())
+}
+
+fn report(outcomes: &[(PathBuf, Outcome)], how: Reporting) {
+    if how.json {
+        let doc: Vec<serde_json::Value> = outcomes
+            .iter()
+            .map(|(path, o)| {
+                let mut v = serde_json::json!({ "scenario_file": path.display().to_string(), "exit_code": o.exit().code() });
+                match o {
+                    Outcome::Ran(r) => {
+                        v["summary"] = serde_json::to_value(&r.summary).unwrap_or_default();
+                        v["output"] = serde_json::json!(r.dir.display().to_string());
+                    }
+                    Outcome::BadInput(e) | Outcome::Failed(e) => v["error"] = serde_json::json!(e),
+                }
+                v
+            })
+            .collect();
+        println!("{}", serde_json::to_string_pretty(&doc).unwrap_or_default());
+        return;
+    }
+    for (path, o) in outcomes {
+        match o {
+            Outcome::Ran(r) if !how.quiet => crate::print::run_summary(r),
+            Outcome::Ran(_) => {}
+            Outcome::BadInput(e) => eprintln!("error: {}: {e}", path.display()),
+            Outcome::Failed(e) => eprintln!("error: {}: simulation failed: {e}", path.display()),
+        }
+    }
+}
