@@ -147,5 +147,7 @@ pub fn demo_controller() -> ControllerSpec {
             start: 16.0,
             stop: 15.0,
         }),
+        aux_dead_time: 100e-9,
+        isolated: None,
     }
 }

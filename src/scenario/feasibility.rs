@@ -165,15 +165,15 @@ pub fn judge(ctx: &Ctx, job: &Job, f: &DesignFigures) -> Result<Vec<Warning>, Sc
         ),
         _ => {}
     }
-    if matches!(d.reset, ResetScheme::ActiveClamp { .. })
-        && matches!(job.drive, Drive::Controller(_))
-    {
-        return Err(ctx.infeasible(
-            "drive.controller",
-            "the controller does not gate an active clamp's auxiliary switch; drive this \
-             template with open_loop"
-                .into(),
-        ));
+    if let (ResetScheme::ActiveClamp { .. }, Drive::Controller(c)) = (&d.reset, &job.drive) {
+        if c.mode == stepflux_models::controller::OutputMode::Alternating {
+            return Err(ctx.infeasible(
+                "drive.controller.mode",
+                "an active clamp needs its auxiliary switch complementary to the main one; \
+                 use the single_ended mode (its auxiliary output is gated that way)"
+                    .into(),
+            ));
+        }
     }
     for (field, rating) in switch_ratings(d) {
         if f.drain_stress > rating {

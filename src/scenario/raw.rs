@@ -305,6 +305,28 @@ pub struct Controller {
     pub gate_delay: Option<Seconds>,
     /// Input under-voltage lockout (omit for none).
     pub lockout: Option<Lockout>,
+    /// Dead time around an active clamp's complementary switch (default 0).
+    pub aux_dead_time: Option<Seconds>,
+    /// Isolated feedback through an optocoupler (omit for direct feedback).
+    pub isolated: Option<Isolated>,
+}
+
+/// Optocoupler feedback: the voltage amplifier is the secondary-side shunt regulator;
+/// its output drives the LED through `led_resistor`; the transistor's current times
+/// `emitter_resistor` is the control voltage, with the coupler's pole.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Isolated {
+    /// LED series resistor.
+    pub led_resistor: Ohms,
+    /// LED forward threshold.
+    pub led_vf: Volts,
+    /// Current-transfer ratio (A/A).
+    pub ctr: Ratio,
+    /// Emitter resistor on the primary.
+    pub emitter_resistor: Ohms,
+    /// The coupler's pole.
+    pub pole: Hertz,
 }
 
 /// Oscillator frequency and ramp levels.

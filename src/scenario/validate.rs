@@ -10,8 +10,8 @@ use stepflux_models::components::{
     Capacitor, Diode, Inductor, InputFilter, InputSource, Load, Switch, Transformer,
 };
 use stepflux_models::controller::{
-    Amplifier, Compensation, ControllerSpec, CurrentLimit, Lockout, Oscillator, OutputMode,
-    VoltageLoop,
+    Amplifier, Compensation, ControllerSpec, CurrentLimit, IsolatedFeedback, Lockout, Oscillator,
+    OutputMode, VoltageLoop,
 };
 use stepflux_models::disturbance::Disturbance;
 use stepflux_models::gate::OpenLoopGate;
@@ -371,6 +371,14 @@ fn controller(ctx: &Ctx, c: &raw::Controller) -> Result<ControllerSpec, Scenario
         lockout: c.lockout.as_ref().map(|l| Lockout {
             start: l.start.si(),
             stop: l.stop.si(),
+        }),
+        aux_dead_time: or_zero(c.aux_dead_time, |v| v.si()),
+        isolated: c.isolated.as_ref().map(|i| IsolatedFeedback {
+            led_resistor: i.led_resistor.si(),
+            led_vf: i.led_vf.si(),
+            ctr: i.ctr.si(),
+            emitter_resistor: i.emitter_resistor.si(),
+            pole_hz: i.pole.si(),
         }),
     };
     spec.validate()

@@ -15,11 +15,13 @@
 //! lets the current-limit amplifier override the voltage amplifier by being higher.
 
 pub mod amplifier;
+pub mod isolated;
 pub mod modulator;
 
 use stepflux_engine::{DiodeParams, NodeId, Quantity, Signal, Waveform};
 
 pub use amplifier::{Amplifier, Compensation};
+pub use isolated::IsolatedFeedback;
 
 use crate::components::{non_negative, positive};
 use crate::error::ModelError;
@@ -115,6 +117,12 @@ pub struct ControllerSpec {
     pub gate_delay: f64,
     /// Optional input under-voltage lockout.
     pub lockout: Option<Lockout>,
+    /// Dead time around the complementary switch of an active clamp, seconds (the
+    /// auxiliary switch is on whenever the main one is off, less this on each side).
+    pub aux_dead_time: f64,
+    /// Optional isolated feedback: the voltage amplifier becomes the secondary-side
+    /// shunt regulator and drives the control voltage through an optocoupler.
+    pub isolated: Option<IsolatedFeedback>,
 }
 
 /// Where the controller's parts sit in the circuit.
@@ -164,6 +172,7 @@ impl ControllerSpec {
             ("controller.blanking", self.blanking),
             ("controller.min_on_time", self.min_on_time),
             ("controller.gate_delay", self.gate_delay),
+            ("controller.aux_dead_time", self.aux_dead_time),
             (
                 "controller.voltage_loop.reference_soft_start",
                 self.voltage_loop.reference_soft_start,
@@ -182,6 +191,9 @@ impl ControllerSpec {
             positive("controller.current_limit.threshold", c.threshold)?;
             c.amplifier.validate("controller.current_limit.amplifier")?;
             c.compensation.components()?;
+        }
+        if let Some(iso) = &self.isolated {
+            iso.validate()?;
         }
         if let Some(l) = &self.lockout {
             positive("controller.lockout.start", l.start)?;
@@ -226,6 +238,7 @@ impl ControllerSpec {
         let control = net.node("ctl.vc");
         net.circuit()
             .resistor("ctl.pulldown", control, NodeId::GROUND, OR_PULLDOWN)?;
+        let mut probes_iso = Vec::new();
         let ea = error_amplifier(
             &mut net,
             "ctl.ea",
@@ -234,7 +247,16 @@ impl ControllerSpec {
             &v.amplifier,
             &v.compensation,
         )?;
-        net.circuit().diode("ctl.or_v", ea, control, OR_DIODE)?;
+        let voltage_path = match &self.isolated {
+            Some(iso) => {
+                let (emitter, iso_probes) = iso.build(&mut net, ea)?;
+                probes_iso = iso_probes;
+                emitter
+            }
+            None => ea,
+        };
+        net.circuit()
+            .diode("ctl.or_v", voltage_path, control, OR_DIODE)?;
         let mut probes = vec![
             probe("ctl.vc", Signal::of(Quantity::NodeVoltage(control)), "V"),
             probe("ctl.ea.v", Signal::of(Quantity::NodeVoltage(ea)), "V"),
@@ -267,6 +289,7 @@ impl ControllerSpec {
                 "V",
             ));
         }
+        probes.extend(probes_iso);
         let mut with = conv.clone();
         with.probes.extend(probes);
         with.circuit = net.into_circuit();

@@ -33,6 +33,8 @@ pub struct ClosedLoop {
     /// When switching was last enabled by the lockout (None: locked out).
     enabled_at: Option<f64>,
     clock: u64,
+    /// Whether the complementary (auxiliary) switch is on.
+    complement_on: bool,
 }
 
 impl ClosedLoop {
@@ -74,6 +76,7 @@ impl ClosedLoop {
             parts,
             enabled_at,
             clock: 0,
+            complement_on: false,
         })
     }
 
@@ -157,6 +160,20 @@ impl ClosedLoop {
         per_output * ramp_up
     }
 
+    /// Whether the auxiliary switch runs complementary to the main one: single-ended
+    /// mode on a template that has one (the active clamp).
+    fn complementary(&self) -> bool {
+        self.spec.mode == OutputMode::SingleEnded && self.run.key.aux_switch.is_some()
+    }
+
+    fn set_complement(&mut self, on: bool) -> Result<(), ModelError> {
+        if self.complementary() && self.complement_on != on {
+            self.run.set_aux(on)?;
+            self.complement_on = on;
+        }
+        Ok(())
+    }
+
     fn set_output(&mut self, b_side: bool, on: bool) -> Result<(), ModelError> {
         if b_side {
             self.run.set_aux(on)
@@ -181,10 +198,20 @@ impl ClosedLoop {
             0.0
         };
         if limit <= 0.0 || self.control_voltage() >= self.spec.oscillator.peak {
+            if self.enabled_at.is_none() {
+                self.set_complement(false)?;
+            }
             self.run.advance(t_next, sink)?;
             return Ok(());
         }
         let delay = self.spec.gate_delay;
+        if self.complement_on {
+            // The complementary switch leaves a dead time before the main turn-on (no
+            // earlier than the clock itself).
+            self.run
+                .advance(t0 + delay - self.spec.aux_dead_time, sink)?;
+            self.set_complement(false)?;
+        }
         self.run.advance(t0 + delay, sink)?;
         self.set_output(b_side, true)?;
         let output_period = if self.spec.mode == OutputMode::Alternating {
@@ -202,6 +229,11 @@ impl ClosedLoop {
         self.set_output(b_side, false)?;
         if !b_side {
             self.run.set_cycle_duty((t_off - t0) / output_period);
+        }
+        if self.complementary() {
+            self.run
+                .advance(t_off + delay + self.spec.aux_dead_time, sink)?;
+            self.set_complement(true)?;
         }
         self.run.advance(t_next, sink)?;
         Ok(())
