@@ -20,7 +20,7 @@ use stepflux_models::ModelError;
 
 use crate::job::{Drive, Job, Start};
 use crate::measurements::Plan;
-use crate::report::{verdicts, Figure, Summary, CAUTION};
+use crate::report::{design_figures, verdicts, Figure, Summary, CAUTION};
 use crate::writers::{plots, waveforms::WaveformSink};
 
 /// Progress slices per run: often enough for a smooth bar, rare enough to cost nothing.
@@ -210,7 +210,7 @@ pub fn run_job(job: &Job, out_root: &Path, progress: &(dyn Fn(f64) + Sync)) -> R
         run_time_s: started.elapsed().as_secs_f64(),
         simulated_time_s: simulated,
         samples,
-        design: Vec::new(),
+        design: design_figures(job),
         passed: finished && plan.reset_passed() && verdicts.iter().all(|v| v.pass),
         measurements,
         verdicts,

@@ -157,3 +157,35 @@ pub fn verdicts(job: &Job, m: &[Figure]) -> Vec<Verdict> {
     );
     v
 }
+
+/// The paper design figures of a job (closed forms at its operating range), as
+/// summary figures.
+pub fn design_figures(job: &Job) -> Vec<Figure> {
+    let f = stepflux_models::figures::DesignFigures::compute(
+        &job.design,
+        &crate::scenario::design_point(job),
+    );
+    let mut out = vec![
+        ("turns_ratio.secondary", Some(f.secondary_ratio), "1"),
+        ("turns_ratio.reset", f.reset_ratio, "1"),
+        ("output_voltage", Some(f.output_voltage), "V"),
+        ("load_current", Some(f.load_current), "A"),
+        ("duty.nominal", Some(f.nominal_duty), "1"),
+        ("duty.low_line_needed", f.low_line_duty_needed, "1"),
+        ("duty.reset_limit", f.reset_limit_duty, "1"),
+        ("magnetising_peak", Some(f.magnetising_peak), "A"),
+        ("flux_peak", Some(f.flux_peak), "T"),
+        ("inductor_ripple", Some(f.inductor_ripple), "A"),
+        ("output_ripple", Some(f.output_ripple), "V"),
+        ("clamp_voltage", f.clamp_voltage, "V"),
+        ("drain_stress", Some(f.drain_stress), "V"),
+    ];
+    out.retain(|(_, v, _)| v.is_some());
+    out.into_iter()
+        .map(|(name, value, unit)| Figure {
+            name: format!("design.{name}"),
+            value: value.filter(|v| v.is_finite()),
+            unit: unit.into(),
+        })
+        .collect()
+}
