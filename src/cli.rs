@@ -4,6 +4,8 @@ use std::path::PathBuf;
 
 use clap::{Parser, Subcommand};
 
+use crate::batch::{Shard, Waveforms};
+
 #[derive(Debug, Parser)]
 #[command(
     name = "stepflux",
@@ -89,6 +91,61 @@ pub enum Command {
     /// Print the JSON Schema of the scenario file format.
     #[command(after_help = "Example:\n  stepflux schema > stepflux.schema.json\n\n\
         Point an editor at the schema (or put \"$schema\" in a scenario) for completion \
-        and early checks; `stepflux check` remains the authority.")]
-    Schema,
+        and early checks; `stepflux check` remains the authority.\n\n\
+        `stepflux schema --study` prints the schema of the study file of `stepflux batch`.")]
+    Schema {
+        /// The study file format instead of the scenario format.
+        #[arg(long)]
+        study: bool,
+    },
+    /// Run a study: corners, sweeps and Monte Carlo samples of a scenario, in parallel.
+    #[command(
+        after_help = "Example:\n  stepflux batch scenarios/study_corners.json --jobs 8 --out runs\n  \
+        stepflux batch study.json --shard 3/10 --out shard3   (one task of a job array)\n  \
+        stepflux batch study.json --resume --out runs         (after an interruption)\n\n\
+        Writes DIR/<study>/cases/<id>.json as each case ends, then results.csv, \
+        results.json and worst.json. Shard I/N runs the cases whose 0-based index k has \
+        k mod N = I-1. Exits 0 when every case passed, 1 when a case failed a limit, 3 \
+        when a case errored (3 wins), 2 when the study is invalid."
+    )]
+    Batch {
+        /// Study file (JSON; see `stepflux schema --study`).
+        #[arg(value_name = "STUDY")]
+        study: PathBuf,
+        /// Cases run at once (0: one per core).
+        #[arg(long, value_name = "N", default_value_t = 0)]
+        jobs: usize,
+        /// Directory that receives the `<study>/` results folder.
+        #[arg(long, value_name = "DIR", default_value = "out")]
+        out: PathBuf,
+        /// Skip cases whose result file exists from an earlier run of the same study.
+        #[arg(long)]
+        resume: bool,
+        /// Run only shard I of N (cases with index mod N = I-1).
+        #[arg(long, value_name = "I/N")]
+        shard: Option<Shard>,
+        /// Which cases keep their waveform folder.
+        #[arg(long, value_enum, default_value_t = Waveforms::Failed)]
+        waveforms: Waveforms,
+        /// Print the cases (id and parameter values in SI units) as CSV and run nothing.
+        #[arg(long)]
+        list: bool,
+        /// No progress bar and no tally (errors still print).
+        #[arg(long)]
+        quiet: bool,
+    },
+    /// Join the results of batch shards into the tables of the whole study.
+    #[command(
+        after_help = "Example:\n  stepflux merge shard1 shard2 shard3 --out runs\n\n\
+        Each DIR is a batch --out folder (or the study folder inside it). Exits like \
+        batch; a case found in no folder counts as errored."
+    )]
+    Merge {
+        /// Shard output folders.
+        #[arg(value_name = "DIR", required = true)]
+        dirs: Vec<PathBuf>,
+        /// Directory that receives the merged `<study>/` folder.
+        #[arg(long, value_name = "DIR", default_value = "merged")]
+        out: PathBuf,
+    },
 }

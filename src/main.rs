@@ -2,6 +2,7 @@
 //! command, and turns failures into a documented exit code plus the full
 //! error context chain on stderr.
 
+mod batch;
 mod check;
 mod cli;
 mod demo;
@@ -40,7 +41,28 @@ fn main() -> ExitCode {
 fn run(cli: Cli) -> Result<(), Failure> {
     match cli.command {
         Command::Check { scenario, json } => check::check(&scenario, json),
-        Command::Schema => check::schema(),
+        Command::Schema { study: false } => check::schema(),
+        Command::Schema { study: true } => batch::print_schema(),
+        Command::Batch {
+            study,
+            jobs,
+            out,
+            resume,
+            shard,
+            waveforms,
+            list,
+            quiet,
+        } => batch::batch(&batch::BatchArgs {
+            study,
+            jobs,
+            out,
+            resume,
+            shard,
+            waveforms,
+            list,
+            quiet,
+        }),
+        Command::Merge { dirs, out } => batch::merge(&dirs, &out),
         Command::Run {
             scenarios,
             out,

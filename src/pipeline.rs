@@ -137,7 +137,8 @@ impl Driver {
 /// hands samples and cycle records to two different sinks; both sides share the file
 /// and the tracker through cells (calls never nest, so a borrow never overlaps).
 struct Shared<'a> {
-    file: RefCell<&'a mut WaveformSink>,
+    /// None when the run writes no files ([`RunSettings::waveforms`] off).
+    file: RefCell<Option<&'a mut WaveformSink>>,
     measure: RefCell<&'a mut Plan>,
 }
 
@@ -147,7 +148,10 @@ struct Cycles<'s, 'a>(&'s Shared<'a>);
 impl Sink for Samples<'_, '_> {
     fn sample(&mut self, time: f64, values: &[f64], at_event: bool) -> Result<(), String> {
         self.0.measure.borrow_mut().sample(time, values, at_event);
-        self.0.file.borrow_mut().sample(time, values, at_event)
+        match self.0.file.borrow_mut().as_mut() {
+            Some(file) => file.sample(time, values, at_event),
+            None => Ok(()),
+        }
     }
 
     fn topology_change(
@@ -156,26 +160,48 @@ impl Sink for Samples<'_, '_> {
         before: Topology,
         after: Topology,
     ) -> Result<(), String> {
-        self.0
-            .file
-            .borrow_mut()
-            .topology_change(time, before, after)
+        match self.0.file.borrow_mut().as_mut() {
+            Some(file) => file.topology_change(time, before, after),
+            None => Ok(()),
+        }
     }
 }
 
 impl CycleSink for Cycles<'_, '_> {
     fn cycle(&mut self, record: &CycleRecord) {
         self.0.measure.borrow_mut().cycle(record);
-        self.0.file.borrow_mut().cycle(record);
+        if let Some(file) = self.0.file.borrow_mut().as_mut() {
+            file.cycle(record);
+        }
     }
+}
+
+/// What a run writes besides its measurements.
+#[derive(Clone, Copy, Debug)]
+pub struct RunSettings {
+    /// Write the run's folder (waveforms, summary, plots). When false nothing is
+    /// written and only the returned summary remains, as a batch of many runs wants.
+    pub waveforms: bool,
 }
 
 /// Runs a job into `out_root/<job name>/`, calling `progress` with the fraction done.
 pub fn run_job(job: &Job, out_root: &Path, progress: &(dyn Fn(f64) + Sync)) -> Result<RunOutput> {
+    run_job_with(job, out_root, progress, RunSettings { waveforms: true })
+}
+
+/// [`run_job`] with explicit [`RunSettings`].
+pub fn run_job_with(
+    job: &Job,
+    out_root: &Path,
+    progress: &(dyn Fn(f64) + Sync),
+    settings: RunSettings,
+) -> Result<RunOutput> {
     let started = Instant::now();
     let dir = out_root.join(&job.name);
-    std::fs::create_dir_all(dir.join("plots"))
-        .with_context(|| format!("creating {}", dir.display()))?;
+    if settings.waveforms {
+        std::fs::create_dir_all(dir.join("plots"))
+            .with_context(|| format!("creating {}", dir.display()))?;
+    }
     let (mut driver, losses) = Driver::new(job)
         .map_err(|e| anyhow::anyhow!(e))
         .context("building the converter")?;
@@ -188,18 +214,27 @@ pub fn run_job(job: &Job, out_root: &Path, progress: &(dyn Fn(f64) + Sync)) -> R
     let save = saved_indices(job, &probes);
     let h5_path = dir.join("waveforms.h5");
     let switchable = switchable_names(driver.run_ref());
-    let mut file = WaveformSink::create(&h5_path, &probes, &save, &switchable, &job.source_text)?;
+    let mut file = match settings.waveforms {
+        true => Some(WaveformSink::create(
+            &h5_path,
+            &probes,
+            &save,
+            &switchable,
+            &job.source_text,
+        )?),
+        false => None,
+    };
     let mut plan =
         Plan::new(job, driver.run_ref().probes(), Some(losses)).map_err(|e| anyhow::anyhow!(e))?;
     let outcome = {
         let shared = Shared {
-            file: RefCell::new(&mut file),
+            file: RefCell::new(file.as_mut()),
             measure: RefCell::new(&mut plan),
         };
         simulate(job, &mut driver, &shared, progress)
     };
-    let samples = file.samples();
-    let file_result = file.finish();
+    let samples = file.as_ref().map_or(0, |f| f.samples());
+    let file_result = file.map_or(Ok(()), |f| f.finish());
     let simulated = driver.run_ref().sim.time();
     let measurements: Vec<Figure> = plan.figures().into_iter().map(Figure::from).collect();
     let verdicts = verdicts(job, &measurements);
@@ -222,6 +257,14 @@ pub fn run_job(job: &Job, out_root: &Path, progress: &(dyn Fn(f64) + Sync)) -> R
     }
     if let Err(e) = &file_result {
         summary.error.get_or_insert_with(|| format!("{e:#}"));
+    }
+    if !settings.waveforms {
+        outcome?;
+        return Ok(RunOutput {
+            dir,
+            summary,
+            plots: Vec::new(),
+        });
     }
     let summary_path = dir.join("summary.json");
     std::fs::write(&summary_path, serde_json::to_string_pretty(&summary)?)

@@ -1,0 +1,304 @@
+//! `stepflux batch` and `stepflux merge`: a study — corners, sweeps and Monte Carlo
+//! samples of one base scenario — run in parallel, resumable, shardable.
+//!
+//! Output of `stepflux batch study.json --out DIR`, under `DIR/<study>/`:
+//! - `cases/<id>.json`, one per case, written as soon as it ends (see [`record`]);
+//! - `study.json` (name, plan fingerprint, case count, parameters) for `merge`;
+//! - `results.csv`, `results.json`, `worst.json` (see [`table`]);
+//! - `waveforms/<study>-<id>/` per `--waveforms`: each case runs with its waveforms and
+//!   the folder of a passing case is deleted under `failed` (the default).
+//!
+//! `--shard I/N` runs the cases whose 0-based index k has k mod N = I − 1: round robin,
+//! so each shard gets a share of every corner and similar run time. Its tables cover
+//! its own cases; `merge` joins shard folders into the tables of the whole study.
+//!
+//! Exit status: 3 if any case errored (or, for merge, is missing), else 1 if any case
+//! failed a limit, else 0.
+
+mod cases;
+mod path;
+mod record;
+mod runner;
+mod study;
+mod table;
+mod value;
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use anyhow::{anyhow, bail, Context, Result};
+
+use crate::exit::{Exit, ExitWith, Failure};
+use cases::Case;
+use record::{CaseRecord, Status};
+use runner::Layout;
+pub use runner::Waveforms;
+use table::StudyMeta;
+
+/// A slice of a study: shard `index` (1-based) of `count`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Shard {
+    /// 1-based shard number.
+    pub index: usize,
+    /// Number of shards.
+    pub count: usize,
+}
+
+impl std::str::FromStr for Shard {
+    type Err = String;
+
+    fn from_str(s: &str) -> Result<Self, String> {
+        let bad = || format!("{s:?} is not I/N with 1 <= I <= N, e.g. 2/8");
+        let (i, n) = s.split_once('/').ok_or_else(bad)?;
+        let (index, count) = (
+            i.trim().parse::<usize>().map_err(|_| bad())?,
+            n.trim().parse::<usize>().map_err(|_| bad())?,
+        );
+        if index == 0 || index > count {
+            return Err(bad());
+        }
+        Ok(Shard { index, count })
+    }
+}
+
+impl Shard {
+    fn contains(self, case_index: usize) -> bool {
+        case_index % self.count == self.index - 1
+    }
+}
+
+/// Options of `stepflux batch`.
+#[derive(Clone, Debug)]
+pub struct BatchArgs {
+    /// The study file.
+    pub study: PathBuf,
+    /// Cases run at once (0: one per core).
+    pub jobs: usize,
+    /// Output root.
+    pub out: PathBuf,
+    /// Reuse finished cases.
+    pub resume: bool,
+    /// Run only this slice.
+    pub shard: Option<Shard>,
+    /// Waveform policy.
+    pub waveforms: Waveforms,
+    /// Print the case plan as CSV and run nothing.
+    pub list: bool,
+    /// No progress bar and no tally.
+    pub quiet: bool,
+}
+
+/// `stepflux batch`.
+pub fn batch(args: &BatchArgs) -> Result<(), Failure> {
+    let study = study::load(&args.study)
+        .context("study is not valid")
+        .exit_with(Exit::BadInput)?;
+    let plan = cases::plan(&study)
+        .context("expanding the study")
+        .exit_with(Exit::BadInput)?;
+    let slice: Vec<Case> = plan
+        .iter()
+        .filter(|c| args.shard.is_none_or(|s| s.contains(c.index)))
+        .cloned()
+        .collect();
+    if args.list {
+        print_plan(&study, &slice);
+        return Ok(());
+    }
+    let meta = meta(&study, &plan);
+    let layout = Layout {
+        dir: args.out.join(&study.name),
+    };
+    let records = run(&study, &slice, &layout, &meta, args).exit_with(Exit::SimulationFailed)?;
+    outcome(&layout.dir, &records, &[], args.quiet)
+}
+
+fn meta(study: &study::Study, plan: &[Case]) -> StudyMeta {
+    StudyMeta {
+        study: study.name.clone(),
+        description: study.description.clone(),
+        plan: cases::plan_fingerprint(study, plan),
+        cases: plan.len(),
+        parameters: study
+            .parameters
+            .iter()
+            .map(|p| (p.name.clone(), p.path_text.clone()))
+            .collect(),
+    }
+}
+
+fn run(
+    study: &study::Study,
+    slice: &[Case],
+    layout: &Layout,
+    meta: &StudyMeta,
+    args: &BatchArgs,
+) -> Result<Vec<CaseRecord>> {
+    if args.out.exists() && !args.out.is_dir() {
+        bail!("output location {} is not a directory", args.out.display());
+    }
+    std::fs::create_dir_all(&layout.dir)
+        .with_context(|| format!("creating {}", layout.dir.display()))?;
+    record::write_json(&layout.dir.join("study.json"), meta)?;
+    let settings = runner::Settings {
+        jobs: match args.jobs {
+            0 => default_jobs(),
+            n => n,
+        },
+        waveforms: args.waveforms,
+        resume: args.resume,
+        quiet: args.quiet,
+    };
+    let reused = runner::run_cases(study, slice, layout, settings)?;
+    if reused > 0 && !args.quiet {
+        eprintln!("{reused} case(s) reused from earlier results");
+    }
+    let ids: Vec<String> = slice.iter().map(|c| c.id.clone()).collect();
+    let (records, missing) = collect(std::slice::from_ref(&layout.dir), &ids)?;
+    if let Some(id) = missing.first() {
+        bail!("the result file of case {id} is missing or unreadable after the run");
+    }
+    table::write_tables(&layout.dir, meta, &records, &[])?;
+    Ok(records)
+}
+
+fn default_jobs() -> usize {
+    std::thread::available_parallelism().map_or(1, |n| n.get())
+}
+
+/// The plan as CSV on stdout: id, then each parameter in SI units.
+fn print_plan(study: &study::Study, slice: &[Case]) {
+    use std::io::Write;
+    let mut out = std::io::stdout().lock();
+    let names: Vec<&str> = study.parameters.iter().map(|p| p.name.as_str()).collect();
+    let _ = writeln!(out, "id,{}", names.join(","));
+    for c in slice {
+        let values: Vec<String> = c.values.iter().map(|x| x.to_string()).collect();
+        let _ = writeln!(out, "{},{}", c.id, values.join(","));
+    }
+}
+
+/// Reads the result files of `ids` from the first of `dirs` holding each; returns the
+/// records sorted by index and the ids found nowhere.
+fn collect(dirs: &[PathBuf], ids: &[String]) -> Result<(Vec<CaseRecord>, Vec<String>)> {
+    let mut records = Vec::new();
+    let mut missing = Vec::new();
+    for id in ids {
+        let found = dirs
+            .iter()
+            .find_map(|d| CaseRecord::read(&Layout { dir: d.clone() }.case_file(id)));
+        match found {
+            Some(r) => records.push(r),
+            None => missing.push(id.clone()),
+        }
+    }
+    records.sort_by_key(|r| r.index);
+    Ok((records, missing))
+}
+
+/// Prints the tally and turns it into the exit status.
+fn outcome(
+    dir: &Path,
+    records: &[CaseRecord],
+    missing: &[String],
+    quiet: bool,
+) -> Result<(), Failure> {
+    let c = table::counts(records);
+    if !quiet {
+        print_tally(dir, records.len(), &c, missing.len());
+    }
+    let has = |s: Status| records.iter().any(|r| r.status == s);
+    if has(Status::Errored) || !missing.is_empty() {
+        Err(anyhow!(
+            "{} case(s) errored or missing",
+            c["errored"] + missing.len()
+        ))
+        .exit_with(Exit::SimulationFailed)
+    } else if has(Status::Failed) {
+        Err(anyhow!("{} case(s) failed a spec limit", c["failed"])).exit_with(Exit::SpecFailed)
+    } else {
+        Ok(())
+    }
+}
+
+/// `stepflux merge`: joins the case results of shard folders into the tables of the
+/// whole study under `out/<study>/`. Each folder is a batch `--out` folder or the
+/// study folder inside it.
+pub fn merge(dirs: &[PathBuf], out: &Path) -> Result<(), Failure> {
+    let (meta, study_dirs) = shard_folders(dirs).exit_with(Exit::BadInput)?;
+    let width = cases::id_width(meta.cases);
+    let ids: Vec<String> = (0..meta.cases).map(|k| cases::case_id(k, width)).collect();
+    let dir = out.join(&meta.study);
+    let records = (|| -> Result<_> {
+        let (records, missing) = collect(&study_dirs, &ids)?;
+        std::fs::create_dir_all(&dir).with_context(|| format!("creating {}", dir.display()))?;
+        record::write_json(&dir.join("study.json"), &meta)?;
+        table::write_tables(&dir, &meta, &records, &missing)?;
+        Ok((records, missing))
+    })()
+    .exit_with(Exit::SimulationFailed)?;
+    outcome(&dir, &records.0, &records.1, false)
+}
+
+fn print_tally(dir: &Path, n: usize, c: &BTreeMap<&str, usize>, missing: usize) {
+    let missing = match missing {
+        0 => String::new(),
+        m => format!(", {m} missing"),
+    };
+    println!(
+        "{n} cases: {} passed, {} failed a limit, {} errored{missing}",
+        c["passed"], c["failed"], c["errored"]
+    );
+    println!("  results: {}", dir.join("results.csv").display());
+    println!("  worst:   {}", dir.join("worst.json").display());
+}
+
+/// The study folders among `dirs`, all of one plan.
+fn shard_folders(dirs: &[PathBuf]) -> Result<(StudyMeta, Vec<PathBuf>)> {
+    let mut found: Vec<(StudyMeta, PathBuf)> = Vec::new();
+    for d in dirs {
+        found.extend(study_folders_in(d)?);
+    }
+    let Some((first, _)) = found.first().cloned() else {
+        bail!("no study folder (one holding study.json) in the folders given");
+    };
+    if let Some((other, p)) = found.iter().find(|(m, _)| *m != first) {
+        bail!(
+            "{} holds a different study or plan ('{}') from '{}'; merge only shards of one study",
+            p.display(),
+            other.study,
+            first.study
+        );
+    }
+    Ok((first, found.into_iter().map(|(_, p)| p).collect()))
+}
+
+fn study_folders_in(dir: &Path) -> Result<Vec<(StudyMeta, PathBuf)>> {
+    let read = |d: &Path| -> Result<StudyMeta> {
+        let p = d.join("study.json");
+        let text =
+            std::fs::read_to_string(&p).with_context(|| format!("reading {}", p.display()))?;
+        serde_json::from_str(&text)
+            .with_context(|| format!("{} is not a study record", p.display()))
+    };
+    if dir.join("study.json").is_file() {
+        return Ok(vec![(read(dir)?, dir.to_path_buf())]);
+    }
+    let entries = std::fs::read_dir(dir).with_context(|| format!("reading {}", dir.display()))?;
+    let mut subs: Vec<PathBuf> = entries
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|p| p.join("study.json").is_file())
+        .collect();
+    subs.sort();
+    subs.into_iter().map(|p| Ok((read(&p)?, p))).collect()
+}
+
+/// `stepflux schema --study`: prints the JSON Schema of the study file.
+pub fn print_schema() -> Result<(), Failure> {
+    let schema = schemars::schema_for!(study::StudyFile);
+    let text = serde_json::to_string_pretty(&schema)
+        .context("formatting the schema")
+        .exit_with(Exit::SimulationFailed)?;
+    println!("{text}");
+    Ok(())
+}

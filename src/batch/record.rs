@@ -1,0 +1,177 @@
+//! One case's result file, `cases/<id>.json`: its parameters, measurements, verdicts
+//! and error, plus the run time (kept out of the result tables, which must not depend
+//! on the clock). Files are written whole to a temporary name and renamed, so a file
+//! that exists is complete.
+
+use std::collections::BTreeMap;
+use std::path::Path;
+
+use anyhow::{Context, Result};
+use serde::{Deserialize, Serialize};
+
+use crate::report::Summary;
+
+/// How a case ended.
+#[derive(Clone, Copy, Debug, Deserialize, Serialize, PartialEq, Eq, PartialOrd, Ord)]
+#[serde(rename_all = "snake_case")]
+pub enum Status {
+    /// Ran, and every limit held.
+    Passed,
+    /// Ran, and a limit failed.
+    Failed,
+    /// Could not run or did not finish: invalid scenario, simulation failure, panic.
+    Errored,
+}
+
+impl Status {
+    /// As written in the tables.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Status::Passed => "passed",
+            Status::Failed => "failed",
+            Status::Errored => "errored",
+        }
+    }
+}
+
+/// One measurement.
+#[derive(Clone, Debug, Deserialize, Serialize, PartialEq)]
+pub struct Measurement {
+    /// Name, as in the run summary.
+    pub name: String,
+    /// Value in `unit`.
+    pub value: f64,
+    /// Unit symbol.
+    pub unit: String,
+}
+
+/// One limit check.
+#[derive(Clone, Debug, Deserialize, Serialize, PartialEq)]
+pub struct Check {
+    /// Limit name.
+    pub limit: String,
+    /// Measured value (None: could not be measured, which fails).
+    pub value: Option<f64>,
+    /// Limit value.
+    pub bound: f64,
+    /// `max` or `min`.
+    pub kind: String,
+    /// Whether it held.
+    pub pass: bool,
+}
+
+/// Contents of a case file.
+#[derive(Clone, Debug, Deserialize, Serialize, PartialEq)]
+pub struct CaseRecord {
+    /// Case id.
+    pub id: String,
+    /// 0-based index in the study.
+    pub index: usize,
+    /// Scenario name the case ran under.
+    pub name: String,
+    /// Fingerprint of the case's scenario text; a resumed run reuses the file only if
+    /// it matches.
+    pub fingerprint: String,
+    /// Parameter values, SI units.
+    pub parameters: BTreeMap<String, f64>,
+    /// Outcome.
+    pub status: Status,
+    /// Measurements (none when errored).
+    pub measurements: Vec<Measurement>,
+    /// Limit checks.
+    pub verdicts: Vec<Check>,
+    /// Why it errored.
+    pub error: Option<String>,
+    /// Wall-clock seconds; excluded from the result tables.
+    pub run_time_s: f64,
+}
+
+impl CaseRecord {
+    /// A record without results yet.
+    pub fn new(
+        id: &str,
+        index: usize,
+        name: String,
+        fingerprint: String,
+        parameters: BTreeMap<String, f64>,
+    ) -> Self {
+        CaseRecord {
+            id: id.to_string(),
+            index,
+            name,
+            fingerprint,
+            parameters,
+            status: Status::Errored,
+            measurements: Vec::new(),
+            verdicts: Vec::new(),
+            error: None,
+            run_time_s: 0.0,
+        }
+    }
+
+    /// Fills in a finished run.
+    pub fn set_summary(&mut self, s: &Summary) {
+        // A figure that could not be measured (non-finite) is left out of the tables.
+        self.measurements = s
+            .measurements
+            .iter()
+            .filter_map(|f| {
+                f.value.map(|value| Measurement {
+                    name: f.name.clone(),
+                    value,
+                    unit: f.unit.clone(),
+                })
+            })
+            .collect();
+        self.verdicts = s
+            .verdicts
+            .iter()
+            .map(|v| Check {
+                limit: v.limit.clone(),
+                value: v.value,
+                bound: v.bound,
+                kind: v.kind.to_string(),
+                pass: v.pass,
+            })
+            .collect();
+        self.error = s.error.clone();
+        // `passed` also holds the run's own core-reset check, which has no limit entry.
+        self.status = match (&s.error, s.passed) {
+            (Some(_), _) => Status::Errored,
+            (None, true) => Status::Passed,
+            (None, false) => Status::Failed,
+        };
+    }
+
+    /// Marks the case errored.
+    pub fn set_error(&mut self, message: String) {
+        self.status = Status::Errored;
+        self.error = Some(message);
+    }
+
+    /// Reads a case file; `None` if it is missing or unreadable (it will be rerun).
+    pub fn read(path: &Path) -> Option<CaseRecord> {
+        let text = std::fs::read_to_string(path).ok()?;
+        serde_json::from_str(&text).ok()
+    }
+}
+
+/// Writes `bytes` to `path` through a temporary file in the same folder and a rename,
+/// so readers (and a resumed run) never see a partial file.
+pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    // The pid keeps two processes (shards sharing a folder) off each other's temp file.
+    let tmp = path.with_file_name(format!(".{name}.{}.tmp", std::process::id()));
+    std::fs::write(&tmp, bytes).with_context(|| format!("writing {}", tmp.display()))?;
+    std::fs::rename(&tmp, path).with_context(|| format!("renaming to {}", path.display()))
+}
+
+/// Writes a value as pretty JSON, atomically.
+pub fn write_json<T: Serialize>(path: &Path, value: &T) -> Result<()> {
+    let mut text = serde_json::to_string_pretty(value).context("formatting JSON")?;
+    text.push('\n');
+    write_atomic(path, text.as_bytes())
+}

@@ -1,0 +1,236 @@
+//! Runs a study's cases on a local thread pool, writing each result file as soon as
+//! its case ends. A case that errors — invalid scenario, simulation failure, even a
+//! panic — is recorded as errored and the others go on.
+
+use std::any::Any;
+use std::panic::{catch_unwind, AssertUnwindSafe};
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicUsize, Ordering};
+use std::sync::Mutex;
+use std::time::Instant;
+
+use anyhow::{anyhow, Context, Result};
+use indicatif::{ProgressBar, ProgressStyle};
+use rayon::prelude::*;
+
+use super::cases::{fingerprint, scenario_text, Case};
+use super::record::{write_json, CaseRecord, Status};
+use super::study::Study;
+use crate::pipeline::{run_job_with, RunSettings};
+use crate::report::Summary;
+use crate::scenario;
+
+/// Which cases keep their waveform folder.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
+pub enum Waveforms {
+    /// None: cases run without writing waveforms (fastest).
+    None,
+    /// Cases that failed a limit or errored; passing cases' folders are deleted.
+    Failed,
+    /// Every case.
+    All,
+}
+
+/// How to run.
+#[derive(Clone, Copy, Debug)]
+pub struct Settings {
+    /// Worker threads.
+    pub jobs: usize,
+    /// Waveform policy.
+    pub waveforms: Waveforms,
+    /// Reuse existing result files whose fingerprint matches.
+    pub resume: bool,
+    /// No progress bar.
+    pub quiet: bool,
+}
+
+/// Where a study's outputs go: `<out>/<study>/`.
+#[derive(Clone, Debug)]
+pub struct Layout {
+    /// The study folder.
+    pub dir: PathBuf,
+}
+
+impl Layout {
+    /// Folder of the case result files.
+    pub fn cases(&self) -> PathBuf {
+        self.dir.join("cases")
+    }
+
+    /// Result file of a case.
+    pub fn case_file(&self, id: &str) -> PathBuf {
+        self.cases().join(format!("{id}.json"))
+    }
+
+    /// Parent of the per-case waveform folders.
+    pub fn waveforms(&self) -> PathBuf {
+        self.dir.join("waveforms")
+    }
+}
+
+/// Counts of how the cases went.
+#[derive(Debug, Default)]
+struct Tally {
+    passed: AtomicUsize,
+    failed: AtomicUsize,
+    errored: AtomicUsize,
+}
+
+impl Tally {
+    fn add(&self, status: Status) {
+        let n = match status {
+            Status::Passed => &self.passed,
+            Status::Failed => &self.failed,
+            Status::Errored => &self.errored,
+        };
+        n.fetch_add(1, Ordering::Relaxed);
+    }
+
+    fn message(&self) -> String {
+        format!(
+            "passed {} · failed limits {} · errored {}",
+            self.passed.load(Ordering::Relaxed),
+            self.failed.load(Ordering::Relaxed),
+            self.errored.load(Ordering::Relaxed)
+        )
+    }
+}
+
+/// Runs `cases` (skipping those already done when resuming); returns how many were
+/// reused from earlier result files.
+pub fn run_cases(study: &Study, cases: &[Case], layout: &Layout, s: Settings) -> Result<usize> {
+    std::fs::create_dir_all(layout.cases())
+        .with_context(|| format!("creating {}", layout.cases().display()))?;
+    let prepared: Vec<(&Case, Result<String, String>)> = cases
+        .iter()
+        .map(|c| (c, scenario_text(study, c).map_err(|e| format!("{e:#}"))))
+        .collect();
+    let tally = Tally::default();
+    let todo: Vec<_> = prepared
+        .iter()
+        .filter(|(c, text)| !(s.resume && reusable(layout, c, text, &tally)))
+        .collect();
+    let reused = cases.len() - todo.len();
+    let bar = match s.quiet {
+        true => ProgressBar::hidden(),
+        false => progress_bar(cases.len(), reused, &tally),
+    };
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(s.jobs.max(1))
+        .build()
+        .context("starting the worker threads")?;
+    let write_error: Mutex<Option<anyhow::Error>> = Mutex::new(None);
+    pool.install(|| {
+        todo.par_iter().for_each(|(case, text)| {
+            let record = run_case(study, case, text, layout, s.waveforms);
+            tally.add(record.status);
+            if let Err(e) = write_json(&layout.case_file(&case.id), &record) {
+                if let Ok(mut slot) = write_error.lock() {
+                    slot.get_or_insert(e);
+                }
+            }
+            bar.set_message(tally.message());
+            bar.inc(1);
+        })
+    });
+    bar.finish_and_clear();
+    match write_error.into_inner().ok().flatten() {
+        Some(e) => Err(e.context("writing a case result")),
+        None => Ok(reused),
+    }
+}
+
+/// An earlier result of exactly this case exists.
+fn reusable(layout: &Layout, case: &Case, text: &Result<String, String>, tally: &Tally) -> bool {
+    let Some(old) = CaseRecord::read(&layout.case_file(&case.id)) else {
+        return false;
+    };
+    let same = old.fingerprint == case_fingerprint(text);
+    if same {
+        tally.add(old.status);
+    }
+    same
+}
+
+fn case_fingerprint(text: &Result<String, String>) -> String {
+    match text {
+        Ok(t) => fingerprint(t.as_bytes()),
+        Err(e) => fingerprint(e.as_bytes()),
+    }
+}
+
+fn progress_bar(total: usize, done: usize, tally: &Tally) -> ProgressBar {
+    // Drawn on stderr, and hidden by indicatif when stderr is not a terminal.
+    let bar = ProgressBar::new(total as u64);
+    let style = ProgressStyle::with_template(
+        "{elapsed_precise} [{bar:30}] {pos}/{len} cases, ETA {eta} · {msg}",
+    )
+    .map(|s| s.progress_chars("=> "))
+    .unwrap_or_else(|_| ProgressStyle::default_bar());
+    bar.set_style(style);
+    bar.set_position(done as u64);
+    bar.set_message(tally.message());
+    bar
+}
+
+/// One case, start to end; never panics past this point.
+fn run_case(
+    study: &Study,
+    case: &Case,
+    text: &Result<String, String>,
+    layout: &Layout,
+    waveforms: Waveforms,
+) -> CaseRecord {
+    let started = Instant::now();
+    let parameters = study
+        .parameters
+        .iter()
+        .zip(&case.values)
+        .map(|(p, &x)| (p.name.clone(), x))
+        .collect();
+    let name = format!("{}-{}", study.name, case.id);
+    let mut record = CaseRecord::new(
+        &case.id,
+        case.index,
+        name,
+        case_fingerprint(text),
+        parameters,
+    );
+    match text {
+        Err(e) => record.set_error(e.clone()),
+        Ok(text) => {
+            let label = format!("{} case {}", study.file, case.id);
+            let run = catch_unwind(AssertUnwindSafe(|| {
+                simulate(text, &label, &layout.waveforms(), waveforms)
+            }));
+            match run {
+                Ok(Ok(summary)) => record.set_summary(&summary),
+                Ok(Err(e)) => record.set_error(format!("{e:#}")),
+                Err(panic) => record.set_error(format!("panic: {}", panic_text(&*panic))),
+            }
+        }
+    }
+    record.run_time_s = started.elapsed().as_secs_f64();
+    record
+}
+
+fn simulate(text: &str, label: &str, waveform_root: &Path, policy: Waveforms) -> Result<Summary> {
+    let loaded = scenario::load_str(text, label).map_err(|e| anyhow!("{e}"))?;
+    let settings = RunSettings {
+        waveforms: policy != Waveforms::None,
+    };
+    let output = run_job_with(&loaded.job, waveform_root, &|_| {}, settings)?;
+    if policy == Waveforms::Failed && output.summary.passed {
+        std::fs::remove_dir_all(&output.dir)
+            .with_context(|| format!("removing {}", output.dir.display()))?;
+    }
+    Ok(output.summary)
+}
+
+fn panic_text(panic: &(dyn Any + Send)) -> String {
+    panic
+        .downcast_ref::<&str>()
+        .map(|s| s.to_string())
+        .or_else(|| panic.downcast_ref::<String>().cloned())
+        .unwrap_or_else(|| "(no message)".into())
+}

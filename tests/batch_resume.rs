@@ -1,0 +1,100 @@
+//! A batch that is interrupted and resumed, or run on any number of threads, gives the
+//! same tables as one uninterrupted run. Specification: issue 6 (determinism and
+//! resumability); comparisons are byte for byte, since the tables hold no clock values.
+
+mod batch_common;
+
+use batch_common::*;
+
+#[test]
+fn thread_count_does_not_change_the_tables() {
+    let root = scratch("batch_threads");
+    let study = write_study(&root, &quick_study("threads"));
+    let one = batch(&study, &root.join("one"), &["--jobs", "1"]);
+    let two = batch(&study, &root.join("two"), &["--jobs", "2"]);
+    assert_eq!(code(&one, &[0, 1]), code(&two, &[0, 1]));
+    let a = tables(&root.join("one/threads"));
+    assert_eq!(a, tables(&root.join("two/threads")));
+    // Every case ran and is in the table, in id order.
+    let r = results(&root.join("one/threads"));
+    let ids: Vec<&str> = r["cases"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c["id"].as_str().unwrap())
+        .collect();
+    let expected: Vec<String> = (1..=12).map(|k| format!("c{k:04}")).collect();
+    assert_eq!(ids, expected);
+    assert!(!a[0].contains("time_s"), "no run time in results.csv");
+}
+
+#[test]
+fn a_shard_then_a_resumed_whole_equals_an_uninterrupted_run() {
+    let root = scratch("batch_resume");
+    let study = write_study(&root, &quick_study("resume"));
+    let full = batch(&study, &root.join("full"), &["--jobs", "2"]);
+    let full_code = code(&full, &[0, 1]);
+    let expected = tables(&root.join("full/resume"));
+
+    // "Interrupted" after the first of three shards.
+    let part = root.join("part");
+    code(
+        &batch(&study, &part, &["--jobs", "1", "--shard", "1/3"]),
+        &[0, 1],
+    );
+    let cases = part.join("resume/cases");
+    let first_shard: Vec<(String, Vec<u8>)> = ["c0001", "c0004", "c0007", "c0010"]
+        .iter()
+        .map(|id| {
+            let p = cases.join(format!("{id}.json"));
+            (id.to_string(), std::fs::read(&p).unwrap())
+        })
+        .collect();
+    assert_eq!(std::fs::read_dir(&cases).unwrap().count(), 4);
+
+    let resumed = batch(&study, &part, &["--jobs", "2", "--resume"]);
+    assert_eq!(code(&resumed, &[0, 1]), full_code);
+    assert_eq!(tables(&part.join("resume")), expected);
+    // The finished cases were reused, not rerun: their files (run time included) are
+    // untouched.
+    for (id, bytes) in &first_shard {
+        assert_eq!(
+            &std::fs::read(cases.join(format!("{id}.json"))).unwrap(),
+            bytes,
+            "{id}"
+        );
+    }
+
+    // A kill mid-run leaves some cases without a file, perhaps a stray temporary file,
+    // and never a partial result file; a damaged file is rerun like a missing one.
+    for id in ["c0002", "c0005", "c0011"] {
+        std::fs::remove_file(cases.join(format!("{id}.json"))).unwrap();
+    }
+    std::fs::write(cases.join(".c0002.json.99999.tmp"), "{\"id\": \"c00").unwrap();
+    std::fs::write(cases.join("c0008.json"), "{\"id\": \"c00").unwrap();
+    let again = batch(&study, &part, &["--jobs", "2", "--resume"]);
+    assert_eq!(code(&again, &[0, 1]), full_code);
+    assert_eq!(tables(&part.join("resume")), expected);
+}
+
+#[test]
+fn resume_reruns_cases_whose_scenario_changed() {
+    let root = scratch("batch_resume_changed");
+    let mut s = quick_study("changed");
+    let study = write_study(&root, &s);
+    let out = root.join("out");
+    code(&batch(&study, &out, &["--jobs", "2"]), &[0, 1]);
+    // A tighter ripple limit changes every case's scenario, so nothing may be reused.
+    s["limits"]["ripple"] = serde_json::json!("1 mV");
+    let study = write_study(&root, &s);
+    let again = batch(&study, &out, &["--jobs", "2", "--resume"]);
+    assert_eq!(
+        code(&again, &[1]),
+        1,
+        "every case now fails the ripple limit"
+    );
+    let r = results(&out.join("changed"));
+    assert_eq!(r["counts"]["failed"], 12);
+    let stderr = String::from_utf8_lossy(&again.stderr);
+    assert!(!stderr.contains("reused"), "{stderr}");
+}
