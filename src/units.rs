@@ -51,8 +51,9 @@ pub enum Unit {
     Ratio,
 }
 
-/// Every unit, for matching a wrong symbol to what it measures.
-const ALL: [Unit; 13] = [
+/// Every unit: for matching a wrong symbol to what it measures, and for reading a
+/// value in whatever unit it carries.
+pub const ALL: [Unit; 13] = [
     Unit::Farad,
     Unit::Henry,
     Unit::Volt,

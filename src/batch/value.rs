@@ -8,23 +8,6 @@ use serde_json::Value;
 
 use crate::units::{self, Unit};
 
-/// Every unit the scenario format knows; a study value may be in any of them.
-const UNITS: [Unit; 13] = [
-    Unit::Farad,
-    Unit::Henry,
-    Unit::Volt,
-    Unit::Ampere,
-    Unit::Second,
-    Unit::Hertz,
-    Unit::Ohm,
-    Unit::Tesla,
-    Unit::SquareMetre,
-    Unit::Watt,
-    Unit::AmperePerSecond,
-    Unit::VoltPerSecond,
-    Unit::Ratio,
-];
-
 /// A number in SI units, or a string such as "220 uF", "4k7", "18 V".
 #[derive(Clone, Debug, Deserialize, JsonSchema, PartialEq)]
 #[serde(untagged)]
@@ -64,7 +47,7 @@ impl StudyValue {
 
 /// Reads `text` in whichever unit it carries.
 fn parse_any(text: &str) -> Result<f64> {
-    UNITS
+    units::ALL
         .iter()
         .find_map(|&u| units::parse(text, u).ok())
         .ok_or_else(|| anyhow!("{text:?} is not a number with an optional SI prefix and unit"))
@@ -72,7 +55,7 @@ fn parse_any(text: &str) -> Result<f64> {
 
 /// The units a string can be read in ("220u" fits all, "220 uF" only farads).
 fn units_of(text: &str) -> impl Iterator<Item = Unit> + '_ {
-    UNITS
+    units::ALL
         .into_iter()
         .filter(move |&u| units::parse(text, u).is_ok())
 }
