@@ -88,6 +88,12 @@ pub trait Sink {
         let _ = (time, before, after);
         Ok(())
     }
+
+    /// Whether the sink wants anything at all; when false the stepper skips it, and
+    /// the probe values it would have been sent are not computed. The default is true.
+    fn listens(&self) -> bool {
+        true
+    }
 }
 
 /// A sink that drops everything, for runs that only want measurements.
@@ -96,5 +102,9 @@ pub struct NullSink;
 impl Sink for NullSink {
     fn sample(&mut self, _: f64, _: &[f64], _: bool) -> Result<(), String> {
         Ok(())
+    }
+
+    fn listens(&self) -> bool {
+        false
     }
 }

@@ -2,10 +2,12 @@
 //!
 //! Time is an integer count of ticks of one quantum q, chosen no longer than the event
 //! resolution. For each topology the propagators Φ_p = exp(M · 2^p q), p = 0..=P, are
-//! computed once (scaling-and-squaring Padé, Higham 2005, as implemented by nalgebra).
-//! Any step of n ticks is then the product of the Φ_p of n's set bits: stepping and
-//! event bisection cost matrix–vector products only, never a new exponential
-//! (the bit-walk of the "published methods" note: bisection on the cached halvings).
+//! computed once (scaling-and-squaring Padé, Higham 2005, as implemented by nalgebra),
+//! and from their products a table of steps of d·R^j ticks (R = 2^bits, 0 < d < R).
+//! Any step of n ticks is then the product of the entries of n's nonzero digits:
+//! stepping and event bisection cost matrix–vector products only, never a new
+//! exponential (the bit-walk of the "published methods" note — bisection on the
+//! cached halvings — searched one radix-R digit at a time).
 //!
 //! Quadratic meters (energies) use Van Loan's block exponential: with
 //! C = [[-Mᵀ, Q], [0, M]] h, exp(C) = [[·, G], [0, F]] and ∫₀ʰ Φ(s)ᵀ Q Φ(s) ds = Fᵀ G
@@ -15,6 +17,9 @@
 use nalgebra::{DMatrix, RowDVector};
 
 use crate::error::EngineError;
+
+mod table;
+pub use table::Ladder;
 
 /// Integer time: ticks of [`TimeGrid::quantum`].
 pub type Tick = u64;
@@ -76,40 +81,17 @@ impl TimeGrid {
     }
 }
 
-/// The cached propagators of one topology.
-pub struct Ladder {
-    /// Φ_p for p = 0..=P.
-    pub phi: Vec<DMatrix<f64>>,
-    /// Highest rung used for a plain step in this topology.
-    pub top: u32,
-    /// W_{m,p} per meter m and rung p.
-    pub meters: Vec<Vec<DMatrix<f64>>>,
-}
-
 /// Fraction of the period of the fastest lightly damped oscillation that one step may
 /// span, so a threshold crossed and re-crossed within a step is not missed. Eight
 /// samples per period is common practice for resolving a sinusoid's extremes.
 const STEPS_PER_OSCILLATION: f64 = 8.0;
-
-impl Ladder {
-    /// Builds the ladder of state matrix `m` (augmented, nz × nz) whose first `nx`
-    /// states are the dynamic ones, with quadratic forms `q` for meters.
-    pub fn build(m: &DMatrix<f64>, nx: usize, grid: &TimeGrid, q: &[DMatrix<f64>]) -> Ladder {
-        let phi: Vec<DMatrix<f64>> = (0..=grid.levels)
-            .map(|p| (m * grid.rung(p)).exp())
-            .collect();
-        let meters = q.iter().map(|qm| meter_rungs(m, qm, &phi, grid)).collect();
-        let top = oscillation_limit(m, nx, grid);
-        Ladder { phi, top, meters }
-    }
-}
 
 /// W_p for every rung. Van Loan's block contains exp(−Mᵀh), which overflows once a
 /// stiff topology has |λ|·h beyond ~700 (a 1 MΩ off-state across 20 µH on a
 /// microsecond rung), so it is used only on a step short enough that ‖M‖₁·h ≤ 1; longer
 /// steps come from splitting the integral at the midpoint,
 /// W(2h) = W(h) + Φ(h)ᵀ W(h) Φ(h), which only multiplies by the propagators.
-fn meter_rungs(
+pub(crate) fn meter_rungs(
     m: &DMatrix<f64>,
     q: &DMatrix<f64>,
     phi: &[DMatrix<f64>],
@@ -151,7 +133,7 @@ fn van_loan(m: &DMatrix<f64>, q: &DMatrix<f64>, h: f64) -> DMatrix<f64> {
 
 /// Highest rung not longer than 1/8 of the period of the fastest oscillatory mode that
 /// decays by less than e^-π per period (|Re λ| < |Im λ| / 2).
-fn oscillation_limit(m: &DMatrix<f64>, nx: usize, grid: &TimeGrid) -> u32 {
+pub(crate) fn oscillation_limit(m: &DMatrix<f64>, nx: usize, grid: &TimeGrid) -> u32 {
     if nx == 0 {
         return grid.levels;
     }

@@ -21,8 +21,10 @@
 //! step is not missed. After each event the diodes are settled by the exact path's own
 //! rule (the shared settling function).
 //!
-//! Meters, sinks and allocation-free stepping are not offered: this is a reference,
-//! not a production stepper (the integrator allocates on every stage).
+//! Meters, fixed-interval samples and allocation-free stepping are not offered: this is
+//! a reference, not a production stepper (the integrator allocates on every stage).
+//! Sinks passed through [`crate::Stepper::step_to`] hear every topology change and get
+//! one flagged sample per event, gate or source change.
 
 use std::collections::VecDeque;
 use std::sync::Arc;
@@ -33,12 +35,13 @@ use ode_solvers::{Dop853, OutputType};
 
 use crate::circuit::{Circuit, ElementId, ElementKind};
 use crate::error::EngineError;
-use crate::event::{Direction, EventFn, EventSlot, StepOutcome, Stop, MAX_ARMED};
+use crate::event::{Direction, EventFn, EventSlot, NullSink, Sink, StepOutcome, Stop, MAX_ARMED};
 use crate::ladder::TimeGrid;
 use crate::sim::{initial_state, initial_topology, settle_diodes, source_waveform, StormGuard};
 use crate::system::{Observation, System, TopologyData};
 use crate::topology::Topology;
 
+mod stepper;
 #[cfg(test)]
 mod tests;
 
@@ -60,6 +63,9 @@ pub struct ReferenceOptions {
     pub storm: StormGuard,
     /// Most topologies kept in the cache.
     pub cache_limit: usize,
+    /// Whether the integrator's stiffness test may stop a run (an explicit method on a
+    /// stiff topology crawls at its stability limit; off, it crawls to the end).
+    pub stop_when_stiff: bool,
 }
 
 impl ReferenceOptions {
@@ -78,6 +84,7 @@ impl ReferenceOptions {
                 window: period / 100.0,
             },
             cache_limit: 256,
+            stop_when_stiff: true,
         }
     }
 
@@ -120,6 +127,12 @@ pub struct ReferenceRun {
     /// Event values at the previous and present accepted step, for the watcher.
     watch_prev: Vec<f64>,
     watch_now: Vec<f64>,
+    /// A flagged sample is due (the state or topology changed outside integration).
+    pending_flagged: bool,
+    /// Topology last reported to a sink.
+    reported: Topology,
+    /// Probe values handed to a sink.
+    values: Vec<f64>,
 }
 
 /// End of one integrated span: time and state reached and, when an event function
@@ -152,6 +165,7 @@ impl ReferenceRun {
             .map(|s| source_waveform(&system.circuit, *s).segment(0.0).until)
             .collect();
         let n_events = system.diode_count() + MAX_ARMED;
+        let n_probes = system.observation.probes.len();
         let mut run = ReferenceRun {
             system,
             options,
@@ -165,6 +179,9 @@ impl ReferenceRun {
             flipped: Vec::new(),
             watch_prev: vec![0.0; n_events],
             watch_now: vec![0.0; n_events],
+            pending_flagged: false,
+            reported: Topology::default(),
+            values: vec![0.0; n_probes],
         };
         run.settle()?;
         Ok(run)
@@ -283,18 +300,28 @@ impl ReferenceRun {
     /// Integrates towards `until` seconds and stops at the first event (diode or
     /// armed) or at `until`. Never returns [`StepOutcome::Internal`].
     pub fn step_to(&mut self, until: f64) -> Result<StepOutcome, EngineError> {
+        self.step_with(until, &mut NullSink)
+    }
+
+    /// As [`ReferenceRun::step_to`], telling `sink` of topology changes and sending it
+    /// a flagged sample after each event, gate or source change.
+    fn step_with(&mut self, until: f64, sink: &mut dyn Sink) -> Result<StepOutcome, EngineError> {
+        self.flush(sink)?;
         while self.time < until {
             let next_break = (self.breaks.iter().flatten()).fold(f64::INFINITY, |a, &b| a.min(b));
             let target = until.min(next_break);
             let span = self.integrate(self.time, &self.z.clone(), target, true)?;
             if let Some((t_lo, z_lo)) = span.fired_from {
-                return self.locate(t_lo, z_lo, span.t, span.z);
+                let outcome = self.locate(t_lo, z_lo, span.t, span.z)?;
+                self.flush(sink)?;
+                return Ok(outcome);
             }
             (self.time, self.z) = (target, span.z);
             if target == next_break {
                 self.apply_breakpoints()?;
             }
         }
+        self.flush(sink)?;
         Ok(StepOutcome::StopTime)
     }
 
@@ -391,7 +418,8 @@ impl ReferenceRun {
             o.max_step.min(span),
             0.0, // initial step: chosen by the integrator
             o.max_steps,
-            1000, // stiffness test every 1000 steps
+            // Stiffness test every 1000 steps (Hairer's default), or never.
+            if o.stop_when_stiff { 1000 } else { u32::MAX },
             OutputType::Sparse,
         );
         let result = solver.integrate();
@@ -434,6 +462,7 @@ impl ReferenceRun {
     }
 
     fn settle(&mut self) -> Result<(), EngineError> {
+        self.pending_flagged = true;
         settle_diodes(
             &mut self.system,
             &mut self.topo,
@@ -441,6 +470,7 @@ impl ReferenceRun {
             self.time,
             &mut self.visited,
             &mut self.flipped,
+            &mut self.watch_now,
         )
     }
 

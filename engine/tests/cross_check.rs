@@ -281,7 +281,7 @@ fn normalised_differences(a: &Trace, b: &Trace) -> Vec<f64> {
 #[test]
 fn two_stage_buck_paths_agree() {
     // Exact path with the options a caller gets by default: events located to the
-    // first tick after the crossing, one tick q = 2^-20 · T/16 ≈ 0.6 ps here.
+    // first tick after the crossing, one tick q = 2^-22 · T/4 ≈ 0.6 ps here.
     let options = SimOptions::for_period(PERIOD);
     let (c, obs, switch, source) = two_stage_buck();
     let mut sim = Simulation::new(c, obs, options).unwrap();

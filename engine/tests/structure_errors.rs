@@ -262,7 +262,7 @@ fn a_diode_in_a_fast_integrator_loop_chatters_and_trips_the_storm_guard() {
     // circuit up to vf/r_off, so a loop that is stable in both states settles in one
     // of them. The conducting state here has the positive eigenvalue k/(R + r_on)
     // = 1e10 s⁻¹, so max_step is cut to 10 ns (e^{100} stays finite; with the default
-    // T/16 the propagator overflows and the engine reports NonFinite instead).
+    // T/4 the propagator overflows and the engine reports NonFinite instead).
     //
     // Closed form of one cycle (each phase is linear, x' = λ x − k i_ref):
     //   blocking, λ_b = k/(R + r_off), from vf to x_b:

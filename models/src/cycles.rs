@@ -4,7 +4,7 @@
 //! closes a [`CycleRecord`] at the next turn-on. Records go to a [`CycleSink`] so a long
 //! run need not keep them.
 
-use stepflux_engine::{ElementId, Simulation, Topology};
+use stepflux_engine::{ElementId, Stepper, Topology};
 
 /// What one switching period did to the core and the switch.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -70,8 +70,8 @@ pub struct WatchPoints {
 
 impl WatchPoints {
     /// Bits of the given reset diodes in the simulation's topology.
-    pub fn new(
-        sim: &Simulation,
+    pub fn new<S: Stepper>(
+        sim: &S,
         mag_current: usize,
         drain: usize,
         flux: usize,
@@ -116,7 +116,13 @@ impl CycleWatch {
     }
 
     /// Closes the previous cycle (if any) and opens one at a turn-on.
-    pub fn turn_on(&mut self, sim: &Simulation, period: f64, duty: f64, sink: &mut dyn CycleSink) {
+    pub fn turn_on<S: Stepper>(
+        &mut self,
+        sim: &S,
+        period: f64,
+        duty: f64,
+        sink: &mut dyn CycleSink,
+    ) {
         self.close(sim, sink);
         let i = sim.probe(self.points.mag_current);
         self.open = Some(CycleRecord {
@@ -144,7 +150,7 @@ impl CycleWatch {
     }
 
     /// Updates extremes and the reset state after an engine step.
-    pub fn observe(&mut self, sim: &Simulation) {
+    pub fn observe<S: Stepper>(&mut self, sim: &S) {
         let Some(rec) = self.open.as_mut() else {
             return;
         };
@@ -162,7 +168,7 @@ impl CycleWatch {
     }
 
     /// Closes the open cycle at the present instant (the next turn-on or the run's end).
-    pub fn close(&mut self, _sim: &Simulation, sink: &mut dyn CycleSink) {
+    pub fn close<S: Stepper>(&mut self, _sim: &S, sink: &mut dyn CycleSink) {
         if let Some(mut rec) = self.open.take() {
             // The state last observed, not the present one: at a turn-on the gate has
             // already switched and the diodes have settled, which ends any reset.

@@ -3,7 +3,7 @@
 
 use stepflux_engine::{
     Direction, ElementId, EventFn, EventSlot, Meter, Observation, Quantity, Signal, SimOptions,
-    Simulation, Sink, StepOutcome, Stop,
+    Simulation, Sink, StepOutcome, Stepper, Stop,
 };
 
 use crate::cycles::{CycleSink, CycleWatch, WatchPoints};
@@ -42,10 +42,10 @@ pub enum Action {
     },
 }
 
-/// A converter being simulated.
-pub struct ConverterRun {
+/// A converter being simulated, on the exact path unless another [`Stepper`] is named.
+pub struct ConverterRun<S = Simulation> {
     /// The engine simulation.
-    pub sim: Simulation,
+    pub sim: S,
     /// Elements of interest.
     pub key: KeyElements,
     probes: Vec<Probe>,
@@ -60,7 +60,7 @@ fn required(conv: &Converter, name: &str) -> Result<usize, ModelError> {
         .ok_or_else(|| ModelError::Infeasible(format!("template has no '{name}' probe")))
 }
 
-impl ConverterRun {
+impl ConverterRun<Simulation> {
     /// Prepares a run of `conv`. Extra event signals (for a controller) follow the
     /// magnetising current, which is event signal 0.
     pub fn new(
@@ -79,6 +79,18 @@ impl ConverterRun {
         extra_events: Vec<Signal>,
         meters: Vec<Meter>,
     ) -> Result<Self, ModelError> {
+        Self::with_stepper(conv, options, extra_events, meters)
+    }
+}
+
+impl<S: Stepper> ConverterRun<S> {
+    /// As [`ConverterRun::with_meters`], on the stepper `S` built with `options`.
+    pub fn with_stepper(
+        conv: &Converter,
+        options: S::Options,
+        extra_events: Vec<Signal>,
+        meters: Vec<Meter>,
+    ) -> Result<Self, ModelError> {
         let mut event_signals = vec![Signal::of(Quantity::Current(conv.key.magnetising))];
         event_signals.extend(extra_events);
         let observation = Observation {
@@ -90,7 +102,7 @@ impl ConverterRun {
             event_signals,
             meters,
         };
-        let sim = Simulation::new(conv.circuit.clone(), observation, options)?;
+        let sim = S::build(conv.circuit.clone(), observation, options)?;
         let points = WatchPoints::new(
             &sim,
             required(conv, "mag.i")?,
@@ -113,6 +125,20 @@ impl ConverterRun {
         };
         run.arm_knee()?;
         Ok(run)
+    }
+
+    /// Continues from where `other` (a run of the same converter, on any stepper)
+    /// stands: its time, state, topology, open cycle record, saturation-knee state and
+    /// pending actions.
+    pub fn continue_from<T: Stepper>(&mut self, other: &ConverterRun<T>) -> Result<(), ModelError> {
+        self.sim.take_over(&other.sim.handover())?;
+        self.watch = other.watch.clone();
+        self.schedule = other.schedule.clone();
+        if let (Some(knee), Some(theirs)) = (self.knee.as_mut(), other.knee.as_ref()) {
+            knee.positive_closed = theirs.positive_closed;
+            knee.negative_closed = theirs.negative_closed;
+        }
+        self.arm_knee()
     }
 
     /// The probes, in sample order.

@@ -41,11 +41,30 @@ fn settling_reports_only_its_own_flips() {
     let mut topo = system.topology(initial_topology(&system)).unwrap();
     let z = initial_state(&system);
     let (mut visited, mut flipped) = (Vec::new(), vec![s, s]);
-    settle_diodes(&mut system, &mut topo, &z, 0.0, &mut visited, &mut flipped).unwrap();
+    let mut g = vec![0.0; system.diode_count()];
+    settle_diodes(
+        &mut system,
+        &mut topo,
+        &z,
+        0.0,
+        &mut visited,
+        &mut flipped,
+        &mut g,
+    )
+    .unwrap();
     assert_eq!(flipped, vec![d]);
     let bit = system.layout().bit_of[d.index()].unwrap();
     assert!(topo.topology.is_on(bit));
     // Already consistent: nothing flips, and nothing stale remains.
-    settle_diodes(&mut system, &mut topo, &z, 0.0, &mut visited, &mut flipped).unwrap();
+    settle_diodes(
+        &mut system,
+        &mut topo,
+        &z,
+        0.0,
+        &mut visited,
+        &mut flipped,
+        &mut g,
+    )
+    .unwrap();
     assert!(flipped.is_empty());
 }

@@ -12,7 +12,7 @@ use crate::ladder::Tick;
 use crate::system::{System, TopologyData};
 use crate::topology::Topology;
 
-use super::{source_waveform, Simulation};
+use super::{source_waveform, step, Simulation};
 
 impl Simulation {
     /// Brings the diodes to a consistent state at the present instant (see
@@ -27,30 +27,39 @@ impl Simulation {
             time,
             &mut self.visited,
             &mut self.flipped,
-        )
-    }
-
-    /// Adds each meter's exact integral over a step of rung `p` starting at z.
-    pub(super) fn accumulate(&mut self, topo: &TopologyData, p: u32) {
-        for (acc, w) in self.meters.iter_mut().zip(&topo.ladder.meters) {
-            w[p as usize].mul_to(&self.z, &mut self.w_z);
-            *acc += self.z.dot(&self.w_z);
+            &mut self.raw,
+        )?;
+        // The diode rows were just evaluated at this state: only the event signals'
+        // rows are missing for the cached event values.
+        let nd = self.system.diode_count();
+        for r in nd..self.raw.len() {
+            self.raw[r] = self.topo.value(r, &self.z);
         }
+        let armed = &self.armed[..self.armed_len];
+        step::all_events(&self.raw, armed, nd, time, &mut self.g_lo);
+        self.g_lo_at = Some((self.tick, self.generation));
+        Ok(())
     }
 
     /// Sends the probes' present values to the sink.
     pub(super) fn emit(&mut self, sink: &mut dyn Sink, at_event: bool) -> Result<(), EngineError> {
+        let time = self.time();
+        let now = self.topo.topology;
+        let listens = sink.listens();
+        if at_event && now != self.reported {
+            if listens {
+                sink.topology_change(time, self.reported, now)
+                    .map_err(|message| EngineError::Sink { time, message })?;
+            }
+            self.reported = now;
+        }
+        if !listens {
+            return Ok(());
+        }
         let first = self.system.diode_count() + self.system.observation.event_signals.len();
         let n = self.system.observation.probes.len();
         for k in 0..n {
             self.values[k] = self.topo.value(first + k, &self.z);
-        }
-        let time = self.time();
-        let now = self.topo.topology;
-        if at_event && now != self.reported {
-            sink.topology_change(time, self.reported, now)
-                .map_err(|message| EngineError::Sink { time, message })?;
-            self.reported = now;
         }
         sink.sample(time, &self.values[..n], at_event)
             .map_err(|message| EngineError::Sink { time, message })
@@ -72,8 +81,16 @@ impl Simulation {
             self.breaks[k] = seg.until;
         }
         self.refresh_next_break();
+        self.sources_changed();
         self.pending_flagged = true;
         self.settle()
+    }
+
+    /// The sources' values or slopes changed outside a step.
+    pub(super) fn sources_changed(&mut self) {
+        let l = &self.system.layout;
+        let slopes = l.nx() + 1 + l.sources.len();
+        self.sources.changed(&self.z.as_slice()[slopes..]);
     }
 
     pub(super) fn refresh_next_break(&mut self) {
@@ -88,7 +105,7 @@ impl Simulation {
     }
 
     pub(super) fn check_finite(&self) -> Result<(), EngineError> {
-        if self.z.iter().all(|v| v.is_finite()) {
+        if crate::kernel::all_finite(self.z.as_slice()) {
             Ok(())
         } else {
             Err(EngineError::NonFinite {
@@ -128,8 +145,9 @@ impl Simulation {
 /// diode's switching function is positive, flip the most violated one (the first in
 /// layout order on a tie). States (inductor currents, capacitor voltages) do not jump,
 /// so only the resistive solution changes. A topology seen twice means no consistent
-/// state exists. `flipped` receives the diodes flipped, in order. Shared by the exact
-/// path and the reference path ([`crate::reference`]) so both follow the same rule.
+/// state exists. `flipped` receives the diodes flipped, in order, and `g[..nd]` the
+/// switching functions in the settled topology. Shared by the exact path and the
+/// reference path ([`crate::reference`]) so both follow the same rule.
 pub(crate) fn settle_diodes(
     system: &mut System,
     topo: &mut Arc<TopologyData>,
@@ -137,6 +155,7 @@ pub(crate) fn settle_diodes(
     time: f64,
     visited: &mut Vec<Topology>,
     flipped: &mut Vec<ElementId>,
+    g: &mut [f64],
 ) -> Result<(), EngineError> {
     visited.clear();
     flipped.clear();
@@ -145,10 +164,10 @@ pub(crate) fn settle_diodes(
     let limit = 4 * nd + 8;
     loop {
         let mut worst: Option<(usize, f64)> = None;
-        for r in 0..nd {
-            let g = topo.value(r, z);
-            if g > 0.0 && worst.is_none_or(|(_, w)| g > w) {
-                worst = Some((r, g));
+        for (r, gr) in g[..nd].iter_mut().enumerate() {
+            *gr = topo.value(r, z);
+            if *gr > 0.0 && worst.is_none_or(|(_, w)| *gr > w) {
+                worst = Some((r, *gr));
             }
         }
         let Some((r, _)) = worst else { return Ok(()) };
@@ -161,6 +180,9 @@ pub(crate) fn settle_diodes(
             return match search_consistent(system, visited[0], flipped, z)? {
                 Some(found) => {
                     *topo = system.topology(found)?;
+                    for (r, gr) in g[..nd].iter_mut().enumerate() {
+                        *gr = topo.value(r, z);
+                    }
                     Ok(())
                 }
                 None => Err(inconsistent(system, visited, flipped, next, time)),

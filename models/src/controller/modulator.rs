@@ -9,7 +9,9 @@
 //! plus the gate delay. Nothing can turn the switch on again before the next clock: that
 //! is the latch.
 
-use stepflux_engine::{Direction, EventFn, Meter, Signal, SimOptions, Sink, Stop};
+use stepflux_engine::{
+    Direction, EventFn, Meter, Signal, SimOptions, Simulation, Sink, Stepper, Stop,
+};
 
 use super::{ControllerParts, ControllerSpec, OutputMode};
 use crate::cycles::CycleSink;
@@ -21,10 +23,11 @@ use crate::template::{Converter, ForwardDesign};
 /// Event-signal index of the control voltage in the run (0 is the magnetising current).
 const CONTROL_SIGNAL: usize = 1;
 
-/// A converter under closed-loop control.
-pub struct ClosedLoop {
+/// A converter under closed-loop control, on the exact path unless another [`Stepper`]
+/// is named.
+pub struct ClosedLoop<S = Simulation> {
     /// The converter run.
-    pub run: ConverterRun,
+    pub run: ConverterRun<S>,
     /// The controller.
     pub spec: ControllerSpec,
     /// The converter with the controller's parts, as simulated.
@@ -37,7 +40,7 @@ pub struct ClosedLoop {
     complement_on: bool,
 }
 
-impl ClosedLoop {
+impl ClosedLoop<Simulation> {
     /// Builds the power stage, attaches the controller and prepares the disturbances.
     pub fn new(
         design: &ForwardDesign,
@@ -57,12 +60,30 @@ impl ClosedLoop {
         options: SimOptions,
         meters: impl FnOnce(&Converter) -> Result<Vec<Meter>, ModelError>,
     ) -> Result<Self, ModelError> {
+        Self::with_stepper(design, spec, disturbances, options, meters)
+    }
+
+    /// Simulation options suited to this controller's clock.
+    pub fn default_options(spec: &ControllerSpec) -> SimOptions {
+        SimOptions::for_period(spec.clock_period())
+    }
+}
+
+impl<S: Stepper> ClosedLoop<S> {
+    /// As [`ClosedLoop::with_meters`], on the stepper `S` built with `options`.
+    pub fn with_stepper(
+        design: &ForwardDesign,
+        spec: &ControllerSpec,
+        disturbances: &[Disturbance],
+        options: S::Options,
+        meters: impl FnOnce(&Converter) -> Result<Vec<Meter>, ModelError>,
+    ) -> Result<Self, ModelError> {
         let conv = design.build()?;
         let (with_ctl, parts) = spec.attach(&conv)?;
         let (converter, actions) = prepare(&with_ctl, disturbances, Some(parts.reference))?;
         let control = Signal::of(stepflux_engine::Quantity::NodeVoltage(parts.control));
         let meters = meters(&converter)?;
-        let mut run = ConverterRun::with_meters(&converter, options, vec![control], meters)?;
+        let mut run = ConverterRun::with_stepper(&converter, options, vec![control], meters)?;
         run.schedule(actions);
         let enabled_at = if spec.lockout.is_some() {
             None
@@ -80,9 +101,15 @@ impl ClosedLoop {
         })
     }
 
-    /// Simulation options suited to this controller's clock.
-    pub fn default_options(spec: &ControllerSpec) -> SimOptions {
-        SimOptions::for_period(spec.clock_period())
+    /// Continues from where `other` (the same design, controller and disturbances, on
+    /// any stepper) stands, at a clock edge: the converter run and the controller's
+    /// sequential state.
+    pub fn continue_from<T: Stepper>(&mut self, other: &ClosedLoop<T>) -> Result<(), ModelError> {
+        self.run.continue_from(&other.run)?;
+        self.enabled_at = other.enabled_at;
+        self.clock = other.clock;
+        self.complement_on = other.complement_on;
+        Ok(())
     }
 
     /// Where the controller sits in the circuit.

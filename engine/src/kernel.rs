@@ -1,0 +1,222 @@
+//! Dense kernels of the stepping loop on plain slices. The matrices are small (nz is
+//! tens), so what matters is that the loops vectorise and carry no bounds checks or
+//! strides; nalgebra's general kernels do neither for dynamically sized storage.
+
+/// y = the first `y.len()` rows of A·x, for A stored column-major with leading
+/// dimension `lda` (rows per column) and `x.len()` columns. Columns are added in order,
+/// so the result does not depend on the vector width. Rows go in blocks of 8
+/// and 4 held in registers across all columns, so y is written once.
+#[inline]
+pub(crate) fn matvec_rows(a: &[f64], lda: usize, x: &[f64], y: &mut [f64]) {
+    y.fill(0.0);
+    accumulate(a, lda, x, y);
+}
+
+/// y = b + the first `y.len()` rows of A·x (A as in [`matvec_rows`]): b first, then
+/// the columns in order.
+#[inline]
+pub(crate) fn matvec_add(a: &[f64], lda: usize, x: &[f64], b: &[f64], y: &mut [f64]) {
+    y.copy_from_slice(b);
+    accumulate(a, lda, x, y);
+}
+
+/// y += the first `y.len()` rows of A·x, in blocks of 8 and 4 rows held in registers
+/// across all columns, so y is read and written once. On x86-64 processors with AVX
+/// the same loops are compiled four lanes wide; each row still adds its products one
+/// column after another, with separate multiply and add (no fused multiply–add), so the
+/// result is the same bit for bit on every x86-64 processor.
+#[inline]
+fn accumulate(a: &[f64], lda: usize, x: &[f64], y: &mut [f64]) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx") {
+        // SAFETY: the processor has just been found to support AVX, the only
+        // requirement of `accumulate_avx`.
+        unsafe { accumulate_avx(a, lda, x, y) };
+        return;
+    }
+    accumulate_any(a, lda, x, y);
+}
+
+/// [`accumulate`] compiled for AVX.
+///
+/// # Safety
+/// The processor must support AVX.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx")]
+unsafe fn accumulate_avx(a: &[f64], lda: usize, x: &[f64], y: &mut [f64]) {
+    accumulate_any(a, lda, x, y);
+}
+
+/// The loops of [`accumulate`], for whatever instruction set the caller has.
+#[inline(always)]
+fn accumulate_any(a: &[f64], lda: usize, x: &[f64], y: &mut [f64]) {
+    let n = y.len();
+    debug_assert!(n <= lda && a.len() >= lda * x.len());
+    let mut r = 0;
+    while r + 8 <= n {
+        let init: [f64; 8] = y[r..r + 8].try_into().expect("eight rows");
+        y[r..r + 8].copy_from_slice(&block(a, lda, r, x, init));
+        r += 8;
+    }
+    if r + 4 <= n {
+        let init: [f64; 4] = y[r..r + 4].try_into().expect("four rows");
+        y[r..r + 4].copy_from_slice(&block(a, lda, r, x, init));
+        r += 4;
+    }
+    for (i, yi) in y.iter_mut().enumerate().skip(r) {
+        for (column, &xj) in a.chunks_exact(lda).zip(x) {
+            *yi += column[i] * xj;
+        }
+    }
+}
+
+/// s += z·zᵀ for s column-major, z.len() × z.len() (four lanes wide with AVX, as
+/// [`accumulate`]).
+#[inline]
+pub(crate) fn add_outer(z: &[f64], s: &mut [f64]) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx") {
+        // SAFETY: the processor has just been found to support AVX, the only
+        // requirement of `add_outer_avx`.
+        unsafe { add_outer_avx(z, s) };
+        return;
+    }
+    add_outer_any(z, s);
+}
+
+/// [`add_outer`] compiled for AVX.
+///
+/// # Safety
+/// The processor must support AVX.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx")]
+unsafe fn add_outer_avx(z: &[f64], s: &mut [f64]) {
+    add_outer_any(z, s);
+}
+
+#[inline(always)]
+fn add_outer_any(z: &[f64], s: &mut [f64]) {
+    for (column, &zj) in s.chunks_exact_mut(z.len()).zip(z) {
+        for (sij, &zi) in column.iter_mut().zip(z) {
+            *sij += zi * zj;
+        }
+    }
+}
+
+/// Rows r..r+B of A·x added to `acc`, columns in order.
+#[inline(always)]
+fn block<const B: usize>(a: &[f64], lda: usize, r: usize, x: &[f64], init: [f64; B]) -> [f64; B] {
+    let mut acc = init;
+    for (column, &xj) in a.chunks_exact(lda).zip(x) {
+        let rows: &[f64; B] = column[r..r + B].try_into().expect("block within column");
+        for (acc_i, &a_i) in acc.iter_mut().zip(rows) {
+            *acc_i += a_i * xj;
+        }
+    }
+    acc
+}
+
+/// Σ_k a[k·stride]·x[k]: a row of a column-major matrix (starting at `a[0]`) times x.
+#[inline]
+pub(crate) fn strided_dot(a: &[f64], stride: usize, x: &[f64]) -> f64 {
+    let mut acc = [0.0f64; 2];
+    let pairs = x.chunks_exact(2);
+    let rest = pairs.remainder();
+    let mut k = 0;
+    for pair in pairs {
+        acc[0] += a[k] * pair[0];
+        acc[1] += a[k + stride] * pair[1];
+        k += 2 * stride;
+    }
+    let mut sum = acc[0] + acc[1];
+    if let Some(&last) = rest.first() {
+        sum += a[k] * last;
+    }
+    sum
+}
+
+/// a·b over the shorter of the two, in four interleaved partial sums.
+#[inline]
+pub(crate) fn dot(a: &[f64], b: &[f64]) -> f64 {
+    let (ca, cb) = (a.chunks_exact(4), b.chunks_exact(4));
+    let (ra, rb) = (ca.remainder(), cb.remainder());
+    let mut acc = [0.0f64; 4];
+    for (x, y) in ca.zip(cb) {
+        acc[0] += x[0] * y[0];
+        acc[1] += x[1] * y[1];
+        acc[2] += x[2] * y[2];
+        acc[3] += x[3] * y[3];
+    }
+    let mut sum = (acc[0] + acc[2]) + (acc[1] + acc[3]);
+    for (x, y) in ra.iter().zip(rb) {
+        sum += x * y;
+    }
+    sum
+}
+
+/// Whether every entry is finite (0·v is 0 for a finite v, NaN for ±∞ and NaN; the
+/// partial sums vectorise where a short-circuiting test would not).
+#[inline]
+pub(crate) fn all_finite(x: &[f64]) -> bool {
+    let chunks = x.chunks_exact(4);
+    let rest = chunks.remainder();
+    let mut acc = [0.0f64; 4];
+    for c in chunks {
+        for (a, &v) in acc.iter_mut().zip(c) {
+            *a += v * 0.0;
+        }
+    }
+    let tail: f64 = rest.iter().map(|&v| v * 0.0).sum();
+    (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail == 0.0
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn kernels_agree_with_nalgebra() {
+        // Products of small integers are exact in f64, so any summation order must give
+        // exactly nalgebra's result.
+        let (r, c) = (7, 5);
+        let a = nalgebra::DMatrix::from_fn(r, c, |i, j| (i as f64) - 2.0 * (j as f64) + 1.0);
+        let x = nalgebra::DVector::from_fn(c, |i, _| (i as f64) * 3.0 - 4.0);
+        let mut y = vec![0.0; r];
+        matvec_rows(a.as_slice(), r, x.as_slice(), &mut y);
+        assert_eq!(y.as_slice(), (&a * &x).as_slice());
+        let b = nalgebra::DVector::from_fn(c, |i, _| 1.0 - i as f64);
+        assert_eq!(dot(x.as_slice(), b.as_slice()), x.dot(&b));
+        for rows in [3, 4, 7] {
+            let mut top = vec![0.0; rows];
+            matvec_rows(a.as_slice(), r, x.as_slice(), &mut top);
+            assert_eq!(top.as_slice(), (&a * &x).rows(0, rows).as_slice());
+        }
+        let tall = nalgebra::DMatrix::from_fn(13, c, |i, j| (i * j) as f64 - 5.0);
+        let mut y = vec![0.0; 13];
+        matvec_rows(tall.as_slice(), 13, x.as_slice(), &mut y);
+        assert_eq!(y.as_slice(), (&tall * &x).as_slice());
+        let b: Vec<f64> = (0..13).map(|i| i as f64 * 0.5).collect();
+        let mut with_b = vec![0.0; 13];
+        matvec_add(tall.as_slice(), 13, x.as_slice(), &b, &mut with_b);
+        for i in 0..13 {
+            assert_eq!(with_b[i], y[i] + b[i]);
+        }
+        for i in 0..r {
+            let row = strided_dot(&a.as_slice()[i..], r, x.as_slice());
+            assert_eq!(row, a.row(i).transpose().dot(&x));
+        }
+        let mut outer = vec![1.0; 4];
+        add_outer(&[1.0, -2.0], &mut outer);
+        assert_eq!(outer, vec![2.0, -1.0, -1.0, 5.0]);
+        let mut v = vec![1.0, -2.0, 3.0, 1e300, 5.0, 6.0, 7.0];
+        assert!(all_finite(&v));
+        for bad in [f64::INFINITY, f64::NEG_INFINITY, f64::NAN] {
+            for k in [0, 6] {
+                let keep = v[k];
+                v[k] = bad;
+                assert!(!all_finite(&v));
+                v[k] = keep;
+            }
+        }
+    }
+}

@@ -1,0 +1,283 @@
+//! The stepping loop: plain steps on the step table, and event location by a search
+//! one radix digit at a time. Allocates nothing.
+
+use std::sync::Arc;
+
+use nalgebra::DVector;
+
+use crate::error::EngineError;
+use crate::event::{Direction, Sink, StepOutcome};
+use crate::ladder::{Ladder, Tick};
+use crate::system::TopologyData;
+use crate::topology::Topology;
+
+use super::sources::SourceParts;
+use super::spans::Spans;
+use super::{Armed, Simulation};
+
+impl Simulation {
+    /// One internal step towards tick `stop`: a table step, an event, or the stop time.
+    pub(super) fn step(
+        &mut self,
+        stop: Tick,
+        sink: &mut dyn Sink,
+    ) -> Result<StepOutcome, EngineError> {
+        if self.pending_flagged {
+            self.pending_flagged = false;
+            self.emit(sink, true)?;
+        }
+        if self.tick >= stop {
+            return Ok(StepOutcome::StopTime);
+        }
+        let target = stop.min(self.next_sample_after()).min(self.next_break);
+        let nd = self.system.diode_count();
+        let armed = &self.armed[..self.armed_len];
+        if self.g_lo_at != Some((self.tick, self.generation)) {
+            let (topo, z) = (&*self.topo, &self.z);
+            for (r, v) in self.raw.iter_mut().enumerate() {
+                *v = topo.value(r, z);
+            }
+            all_events(&self.raw, armed, nd, self.time(), &mut self.g_lo);
+        }
+        let (topology, ladder) = (self.topo.topology, &self.topo.ladder);
+        let (n, ev) = (nd + armed.len(), ladder.nx..ladder.u_row());
+        let span = target - self.tick;
+        let mut len = 0;
+        // A recurring span in one product; if an event fires within it, the span is
+        // stepped digit by digit instead so the event is located as usual.
+        if span <= 1 << ladder.top && self.meters.is_empty() && Spans::worth_it(ladder, span) {
+            if let Some((stacked, id)) = self.spans.get(topology, span, ladder) {
+                let z = self.z.as_slice();
+                let b = self
+                    .sources
+                    .get(topology, id, ladder, stacked, &z[ladder.nx..]);
+                ladder.step(stacked, z, b, &mut self.ext);
+                let t_hi = self.system.grid.time(self.tick + span);
+                all_events(&self.ext[ev.clone()], armed, nd, t_hi, &mut self.g_hi);
+                if crossed(&self.g_lo[..n], &self.g_hi[..n]) == 0 {
+                    len = span;
+                }
+            }
+        }
+        if len == 0 {
+            let (j, d) = ladder.longest_within(span.min(1 << ladder.top));
+            let entry = ladder.index(j, d);
+            len = ladder.ticks(j, d);
+            table_step(
+                ladder,
+                topology,
+                entry,
+                &mut self.sources,
+                &self.z,
+                &mut self.ext,
+            );
+            let t_hi = self.system.grid.time(self.tick + len);
+            all_events(&self.ext[ev], armed, nd, t_hi, &mut self.g_hi);
+            let candidates = crossed(&self.g_lo[..n], &self.g_hi[..n]);
+            if candidates != 0 {
+                let topo = Arc::clone(&self.topo);
+                return self.locate(&topo, j, d, candidates, sink);
+            }
+            self.meters.add(&self.topo, entry, self.z.as_slice());
+        }
+        ladder.state_from(&self.ext, self.z.as_mut_slice());
+        self.sources.stepped();
+        std::mem::swap(&mut self.g_lo, &mut self.g_hi);
+        self.tick += len;
+        self.g_lo_at = Some((self.tick, self.generation));
+        self.check_finite()?;
+        self.on_grid_point(sink)?;
+        Ok(if self.tick == stop {
+            StepOutcome::StopTime
+        } else {
+            StepOutcome::Internal
+        })
+    }
+
+    /// An event fired within a step of entry (j0, d0): search down to the first tick at
+    /// which some event function has crossed, one digit at a time from digit j0. Each
+    /// digit is a binary search over its value with the event rows carried ahead by the
+    /// entries (dot products only), then at most one move of the state. The located
+    /// tick is within one quantum of the crossing.
+    fn locate(
+        &mut self,
+        topo: &Arc<TopologyData>,
+        j0: u32,
+        d0: u64,
+        candidates: u128,
+        sink: &mut dyn Sink,
+    ) -> Result<StepOutcome, EngineError> {
+        // Only the functions that crossed over the whole step can cross first, so only
+        // they are evaluated on the way down; each is ≤ 0 at the bracket's left end.
+        let nd = self.system.diode_count();
+        let ladder = &topo.ladder;
+        let armed = &self.armed[..self.armed_len];
+        for j in (0..=j0).rev() {
+            let (mut lo, mut hi) = (0, if j == j0 { d0 } else { 1 << ladder.bits });
+            while hi - lo > 1 {
+                let mid = (lo + hi) / 2;
+                let entry = ladder.index(j, mid);
+                let t_mid = self.system.grid.time(self.tick + ladder.ticks(j, mid));
+                let z = self.z.as_slice();
+                let rows = |r| ladder.event_ahead(entry, r, z);
+                event_values(rows, armed, nd, t_mid, &mut self.g_mid, candidates);
+                if positive(&self.g_mid, candidates) != 0 {
+                    hi = mid;
+                } else {
+                    lo = mid;
+                }
+            }
+            if lo > 0 {
+                // Crossing beyond lo·R^j: move there (the only product of this digit).
+                let entry = ladder.index(j, lo);
+                self.meters.add(&self.topo, entry, self.z.as_slice());
+                let topology = topo.topology;
+                table_step(
+                    ladder,
+                    topology,
+                    entry,
+                    &mut self.sources,
+                    &self.z,
+                    &mut self.ext,
+                );
+                ladder.state_from(&self.ext, self.z.as_mut_slice());
+                self.sources.stepped();
+                self.tick += ladder.ticks(j, lo);
+            }
+        }
+        let entry = ladder.index(0, 1);
+        let topology = topo.topology;
+        table_step(
+            ladder,
+            topology,
+            entry,
+            &mut self.sources,
+            &self.z,
+            &mut self.ext,
+        );
+        let t_hi = self.system.grid.time(self.tick + 1);
+        let raw = &self.ext[ladder.nx..];
+        let rows = |r: usize| raw[r];
+        event_values(rows, armed, nd, t_hi, &mut self.g_hi, candidates);
+        self.meters.add(topo, entry, self.z.as_slice());
+        ladder.state_from(&self.ext, self.z.as_mut_slice());
+        self.sources.stepped();
+        self.tick += 1;
+        self.check_finite()?;
+        let armed = (positive(&self.g_hi, candidates) >> nd) as u64;
+        self.flipped.clear();
+        self.settle()?;
+        let diode = self.flipped.first().copied();
+        self.storm
+            .record(self.tick)
+            .map_err(|count| self.storm_error(count))?;
+        self.on_grid_point(sink)?;
+        self.emit(sink, true)?;
+        Ok(StepOutcome::Event {
+            time: self.time(),
+            armed,
+            diode,
+        })
+    }
+}
+
+/// Event function values at time `t` into `g`, for the functions whose bit is set in
+/// `which`, from `rows(r)`, the value of event row r (diode rows first, then event
+/// signals): diode r is bit r, armed slot k is bit nd + k, sign-adjusted so every
+/// function fires rising through zero; an empty slot is −∞ so it never fires.
+#[inline]
+fn event_values(
+    rows: impl Fn(usize) -> f64,
+    armed: &[Option<Armed>],
+    nd: usize,
+    t: f64,
+    g: &mut [f64],
+    which: u128,
+) {
+    let mut rest = which;
+    while rest != 0 {
+        let i = rest.trailing_zeros() as usize;
+        rest &= rest - 1;
+        g[i] = if i < nd {
+            rows(i)
+        } else {
+            match &armed[i - nd] {
+                Some(a) => armed_value(a, rows(a.row), t),
+                None => f64::NEG_INFINITY,
+            }
+        };
+    }
+}
+
+/// Every event function at time `t` into `g` from the raw event-row values (diode rows,
+/// then event signals), as [`event_values`] with every bit set.
+#[inline]
+pub(super) fn all_events(raw: &[f64], armed: &[Option<Armed>], nd: usize, t: f64, g: &mut [f64]) {
+    g[..nd].copy_from_slice(&raw[..nd]);
+    for (gk, slot) in g[nd..].iter_mut().zip(armed) {
+        *gk = match slot {
+            Some(a) => armed_value(a, raw[a.row], t),
+            None => f64::NEG_INFINITY,
+        };
+    }
+}
+
+/// An armed event's function at time `t` from its signal's value `raw`, signed so it
+/// fires rising through zero.
+#[inline]
+pub(super) fn armed_value(a: &Armed, raw: f64, t: f64) -> f64 {
+    let v = raw + a.f.offset + a.f.rate * (t - a.f.t_ref);
+    if a.f.direction == Direction::Rising {
+        v
+    } else {
+        -v
+    }
+}
+
+/// Bits of the functions that went from ≤ 0 in `lo` to > 0 in `hi`.
+#[inline]
+fn crossed(lo: &[f64], hi: &[f64]) -> u128 {
+    // Most steps cross nothing: a plain scan first, the mask only when needed.
+    let up = |(&a, &b): (&f64, &f64)| a <= 0.0 && b > 0.0;
+    if !lo.iter().zip(hi).any(up) {
+        return 0;
+    }
+    let mut out = 0u128;
+    for (i, pair) in lo.iter().zip(hi).enumerate() {
+        if up(pair) {
+            out |= 1 << i;
+        }
+    }
+    out
+}
+
+/// One step of table entry `entry` from z into `out` ([`Ladder::step`]), with the
+/// sources' part kept in `sources`.
+#[inline]
+fn table_step(
+    ladder: &Ladder,
+    topology: Topology,
+    entry: usize,
+    sources: &mut SourceParts,
+    z: &DVector<f64>,
+    out: &mut [f64],
+) {
+    let stacked = &ladder.steps[entry];
+    let z = z.as_slice();
+    let b = sources.get(topology, entry, ladder, stacked, &z[ladder.nx..]);
+    ladder.step(stacked, z, b, out);
+}
+
+/// Bits (among `which`) of the functions above zero.
+fn positive(g: &[f64], which: u128) -> u128 {
+    let mut rest = which;
+    let mut out = 0;
+    while rest != 0 {
+        let i = rest.trailing_zeros() as usize;
+        rest &= rest - 1;
+        if g[i] > 0.0 {
+            out |= 1 << i;
+        }
+    }
+    out
+}

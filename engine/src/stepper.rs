@@ -1,0 +1,121 @@
+//! What a driver needs from an integration path, so the same converter and controller
+//! run on the exact path ([`crate::Simulation`]) or the Dop853 reference path
+//! ([`crate::reference::ReferenceRun`]) unchanged.
+
+use nalgebra::DVector;
+
+use crate::circuit::{Circuit, ElementId};
+use crate::error::EngineError;
+use crate::event::{EventFn, EventSlot, Sink, StepOutcome, Stop};
+use crate::system::{Observation, System};
+use crate::topology::Topology;
+
+/// Where a run stands, handed from one stepper to another of the same circuit (for
+/// example a settled exact run continued on the reference path).
+#[derive(Clone, Debug, PartialEq)]
+pub struct Handover {
+    /// Seconds.
+    pub time: f64,
+    /// Augmented state z = [x; 1; w; s] (see [`crate::Layout`]); source values and
+    /// slopes travel with it.
+    pub state: Vec<f64>,
+    /// Which switches and diodes conduct.
+    pub topology: Topology,
+}
+
+/// An integration path: the caller advances time, changes gates and sources between
+/// steps, arms events and reads probes.
+pub trait Stepper {
+    /// Options the path is built with.
+    type Options;
+
+    /// Checks the circuit, sets initial values and settles the diodes at t = 0.
+    fn build(
+        circuit: Circuit,
+        observation: Observation,
+        options: Self::Options,
+    ) -> Result<Self, EngineError>
+    where
+        Self: Sized;
+
+    /// Present time, seconds.
+    fn time(&self) -> f64;
+
+    /// The problem being simulated.
+    fn system(&self) -> &System;
+
+    /// Augmented state z = [x; 1; w; s] (see [`crate::Layout`]).
+    fn state(&self) -> &DVector<f64>;
+
+    /// Present topology.
+    fn topology(&self) -> Topology;
+
+    /// Present value of probe `k`, in the probe's own units.
+    fn probe(&self, k: usize) -> f64;
+
+    /// Present value of event signal `k` (without offset or rate).
+    fn event_signal(&self, k: usize) -> f64;
+
+    /// Integrals of the meters so far, in the order of the observation; empty on a path
+    /// that does not integrate meters.
+    fn meters(&self) -> Vec<f64>;
+
+    /// Turns a switch on or off now, then settles the diodes.
+    fn set_gate(&mut self, switch: ElementId, on: bool) -> Result<(), EngineError>;
+
+    /// Sets an independent source to `value` with `slope` per second from now on
+    /// (until its own waveform's next breakpoint), then settles the diodes.
+    fn set_source(&mut self, source: ElementId, value: f64, slope: f64) -> Result<(), EngineError>;
+
+    /// Replaces the dynamic states x (length nx) and settles the diodes.
+    fn set_states(&mut self, x: &[f64]) -> Result<(), EngineError>;
+
+    /// Arms an event; returns its slot.
+    fn arm(&mut self, f: EventFn) -> Result<EventSlot, EngineError>;
+
+    /// Disarms an event.
+    fn disarm(&mut self, slot: EventSlot);
+
+    /// One step towards `until` seconds: an internal step, an event, or the stop time.
+    fn step_to(&mut self, until: f64, sink: &mut dyn Sink) -> Result<StepOutcome, EngineError>;
+
+    /// Runs until `until` seconds or until an armed event crosses.
+    fn advance(&mut self, until: f64, sink: &mut dyn Sink) -> Result<Stop, EngineError> {
+        loop {
+            match self.step_to(until, sink)? {
+                StepOutcome::StopTime => return Ok(Stop::Reached),
+                StepOutcome::Event { time, armed, .. } if armed != 0 => {
+                    return Ok(Stop::Armed { time, mask: armed })
+                }
+                _ => {}
+            }
+        }
+    }
+
+    /// Where the run stands now.
+    fn handover(&self) -> Handover;
+
+    /// Continues from where another run of the same circuit stands: time, state and
+    /// topology are taken over, the diodes settled; armed events and meters stay as
+    /// they are.
+    fn take_over(&mut self, from: &Handover) -> Result<(), EngineError>;
+}
+
+/// Checks a handed-over state against a layout of `nz` entries.
+pub(crate) fn check_handover(from: &Handover, nz: usize) -> Result<(), EngineError> {
+    if from.state.len() != nz || from.state.iter().any(|v| !v.is_finite()) {
+        return Err(EngineError::BadOption {
+            what: "handed-over state length",
+            value: from.state.len() as f64,
+            allowed: "one finite value per entry of z",
+        });
+    }
+    if !(from.time.is_finite() && from.time >= 0.0) {
+        return Err(EngineError::BadOption {
+            what: "handed-over time",
+            value: from.time,
+            allowed: "a finite time, seconds, not negative",
+        });
+    }
+    Ok(())
+}
