@@ -1,0 +1,70 @@
+//! Cost per switching period of the exact path: the demo converter under its demo
+//! controller (`demo_design()`, `demo_controller()`; 16 entries in z), no waveform
+//! output (NullSink), no meters. The run is settled for 900 periods (6 ms, past both soft
+//! starts) before timing; each measured iteration then continues it by 2,000 periods, so
+//! the figure is the steady per-period cost: clock, gate delay, blanking, comparator
+//! event, turn-off, reset and rectifier events, plain steps in between.
+//!
+//! `cargo bench -p stepflux-models --bench closed_loop`
+
+use std::hint::black_box;
+use std::time::{Duration, Instant};
+
+use criterion::{criterion_group, criterion_main, Criterion, Throughput};
+use stepflux_engine::NullSink;
+use stepflux_models::controller::modulator::ClosedLoop;
+use stepflux_models::cycles::{CycleRecord, CycleSink};
+use stepflux_models::demo_design::{demo_controller, demo_design};
+
+const SETTLE_PERIODS: f64 = 900.0;
+const PERIODS: u64 = 2_000;
+
+/// Drops cycle records.
+struct NoCycles;
+
+impl CycleSink for NoCycles {
+    fn cycle(&mut self, _: &CycleRecord) {}
+}
+
+fn bench(c: &mut Criterion) {
+    let spec = demo_controller();
+    let period = spec.clock_period();
+    let options = ClosedLoop::default_options(&spec);
+    let mut cl = ClosedLoop::new(&demo_design(), &spec, &[], options).expect("demo builds");
+    let mut t = SETTLE_PERIODS * period;
+    cl.advance_to(t, &mut NullSink, &mut NoCycles)
+        .expect("demo settles");
+    let mut group = c.benchmark_group("closed_loop_demo");
+    group.sample_size(10);
+    group.warm_up_time(Duration::from_secs(1));
+    group.measurement_time(Duration::from_secs(5));
+    group.throughput(Throughput::Elements(PERIODS));
+    let (mut total, mut periods) = (Duration::ZERO, 0u64);
+    group.bench_function("2k_periods", |b| {
+        b.iter_custom(|iters| {
+            let start = Instant::now();
+            for _ in 0..iters {
+                t += PERIODS as f64 * period;
+                cl.advance_to(t, &mut NullSink, &mut NoCycles)
+                    .expect("demo runs");
+            }
+            let elapsed = start.elapsed();
+            black_box(cl.run.probe("out.v"));
+            total += elapsed;
+            periods += iters * PERIODS;
+            elapsed
+        })
+    });
+    group.finish();
+    if periods > 0 {
+        eprintln!(
+            "closed_loop_demo: {:.2} µs per switching period (mean over {periods} periods, \
+             out.v = {:.4} V)",
+            total.as_secs_f64() * 1e6 / periods as f64,
+            cl.run.probe("out.v").unwrap_or(f64::NAN)
+        );
+    }
+}
+
+criterion_group!(benches, bench);
+criterion_main!(benches);
