@@ -108,3 +108,28 @@ impl Sink for NullSink {
         false
     }
 }
+
+/// Checks an event before arming it among `n_signals` event signals and returns the
+/// first free slot of `slots` (shared by the exact and the reference path).
+pub(crate) fn free_slot<T>(
+    f: &EventFn,
+    n_signals: usize,
+    slots: &[Option<T>],
+) -> Result<usize, crate::EngineError> {
+    if f.signal >= n_signals || !(f.offset.is_finite() && f.rate.is_finite() && f.t_ref.is_finite())
+    {
+        return Err(crate::EngineError::BadOption {
+            what: "event signal index",
+            value: f.signal as f64,
+            allowed: "an index into the event signals, finite offset and rate",
+        });
+    }
+    slots
+        .iter()
+        .position(Option::is_none)
+        .ok_or(crate::EngineError::BadOption {
+            what: "armed events",
+            value: MAX_ARMED as f64,
+            allowed: "fewer armed at once",
+        })
+}

@@ -35,7 +35,9 @@ use ode_solvers::{Dop853, OutputType};
 
 use crate::circuit::{Circuit, ElementId, ElementKind};
 use crate::error::EngineError;
-use crate::event::{Direction, EventFn, EventSlot, NullSink, Sink, StepOutcome, Stop, MAX_ARMED};
+use crate::event::{
+    free_slot, Direction, EventFn, EventSlot, NullSink, Sink, StepOutcome, Stop, MAX_ARMED,
+};
 use crate::ladder::TimeGrid;
 use crate::sim::{initial_state, initial_topology, settle_diodes, source_waveform, StormGuard};
 use crate::system::{Observation, System, TopologyData};
@@ -258,21 +260,7 @@ impl ReferenceRun {
 
     /// Arms an event; returns its slot.
     pub fn arm(&mut self, f: EventFn) -> Result<EventSlot, EngineError> {
-        let n = self.system.observation.event_signals.len();
-        if f.signal >= n || !(f.offset.is_finite() && f.rate.is_finite() && f.t_ref.is_finite()) {
-            return Err(EngineError::BadOption {
-                what: "event signal index",
-                value: f.signal as f64,
-                allowed: "an index into the event signals, finite offset and rate",
-            });
-        }
-        let Some(slot) = self.armed.iter().position(Option::is_none) else {
-            return Err(EngineError::BadOption {
-                what: "armed events",
-                value: MAX_ARMED as f64,
-                allowed: "fewer armed at once",
-            });
-        };
+        let slot = free_slot(&f, self.system.observation.event_signals.len(), &self.armed)?;
         self.armed[slot] = Some(f);
         Ok(EventSlot(slot as u8))
     }

@@ -11,7 +11,7 @@ use nalgebra::DVector;
 
 use crate::circuit::{Circuit, ElementId, ElementKind};
 use crate::error::EngineError;
-use crate::event::{EventFn, EventSlot, Sink, StepOutcome, Stop, MAX_ARMED};
+use crate::event::{free_slot, EventFn, EventSlot, Sink, StepOutcome, Stop, MAX_ARMED};
 use crate::ladder::{Tick, TimeGrid};
 use crate::system::{Observation, System, TopologyData};
 use crate::topology::Topology;
@@ -314,21 +314,7 @@ impl Simulation {
 
     /// Arms an event; returns its slot.
     pub fn arm(&mut self, f: EventFn) -> Result<EventSlot, EngineError> {
-        let n = self.system.observation.event_signals.len();
-        if f.signal >= n || !(f.offset.is_finite() && f.rate.is_finite() && f.t_ref.is_finite()) {
-            return Err(EngineError::BadOption {
-                what: "event signal index",
-                value: f.signal as f64,
-                allowed: "an index into the event signals, finite offset and rate",
-            });
-        }
-        let Some(slot) = self.armed.iter().position(Option::is_none) else {
-            return Err(EngineError::BadOption {
-                what: "armed events",
-                value: MAX_ARMED as f64,
-                allowed: "fewer armed at once",
-            });
-        };
+        let slot = free_slot(&f, self.system.observation.event_signals.len(), &self.armed)?;
         let nd = self.system.diode_count();
         let armed = Armed {
             f,
