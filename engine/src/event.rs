@@ -94,6 +94,49 @@ pub trait Sink {
     fn listens(&self) -> bool {
         true
     }
+
+    /// One point of the exact solution (see [`TracePoint`]): the end of every step,
+    /// every switching instant and every extremum of a traced probe inside a step, in
+    /// time order. Unlike [`Sink::sample`], where these points fall depends only on the
+    /// circuit, never on the output sample interval. The default ignores it.
+    fn trace(&mut self, point: &TracePoint<'_>) -> Result<(), String> {
+        let _ = point;
+        Ok(())
+    }
+
+    /// Whether the sink wants [`Sink::trace`] points; when false none are computed.
+    /// The default is false.
+    fn traces(&self) -> bool {
+        false
+    }
+}
+
+/// Where a [`TracePoint`] falls.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum TraceKind {
+    /// The end of a step, before anything switches there.
+    Step,
+    /// Just after a switching instant, gate or source change (the new topology).
+    Event,
+    /// Inside a step, where traced probe `k`'s slope changes sign: its maximum or
+    /// minimum there, located to one tick.
+    Extremum(usize),
+}
+
+/// One point of the exact solution handed to [`Sink::trace`].
+#[derive(Clone, Copy, Debug)]
+pub struct TracePoint<'a> {
+    /// Seconds.
+    pub time: f64,
+    /// Every probe's value, in the order of [`crate::Observation::probes`].
+    pub values: &'a [f64],
+    /// Every probe's time derivative (per second) in the present topology; NaN for
+    /// probes that are not traced ([`crate::Simulation::trace_probes`]).
+    pub slopes: &'a [f64],
+    /// Where it falls.
+    pub kind: TraceKind,
+    /// The topology the values and slopes belong to.
+    pub topology: Topology,
 }
 
 /// A sink that drops everything, for runs that only want measurements.

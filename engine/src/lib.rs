@@ -49,7 +49,10 @@ pub use circuit::{
     Signal, SwitchParams, Winding,
 };
 pub use error::EngineError;
-pub use event::{Direction, EventFn, EventSlot, NullSink, Sink, StepOutcome, Stop, MAX_ARMED};
+pub use event::{
+    Direction, EventFn, EventSlot, NullSink, Sink, StepOutcome, Stop, TraceKind, TracePoint,
+    MAX_ARMED,
+};
 pub use ladder::{Tick, TimeGrid};
 pub use layout::{Layout, StateKind};
 pub use nodal::Nodal;

@@ -79,6 +79,14 @@ pub trait Stepper {
     /// One step towards `until` seconds: an internal step, an event, or the stop time.
     fn step_to(&mut self, until: f64, sink: &mut dyn Sink) -> Result<StepOutcome, EngineError>;
 
+    /// Chooses the probes whose slopes and in-step extrema the run traces to sinks
+    /// that want them ([`Sink::traces`]). A path that does not trace ignores it (the
+    /// default): its sinks then see samples only.
+    fn trace_probes(&mut self, probes: &[usize]) -> Result<(), EngineError> {
+        let _ = probes;
+        Ok(())
+    }
+
     /// Runs until `until` seconds or until an armed event crosses.
     fn advance(&mut self, until: f64, sink: &mut dyn Sink) -> Result<Stop, EngineError> {
         loop {

@@ -49,6 +49,9 @@ pub struct TopologyData {
     /// Rows over z, stored as columns so each is contiguous: diode switching
     /// functions (one per diode), then event signals, then probes.
     pub rows_t: DMatrix<f64>,
+    /// Time derivatives of the same rows in this topology, (row·M)ᵀ as columns: the
+    /// slope of a quantity is one more row over z, exact like the quantity itself.
+    pub slopes_t: DMatrix<f64>,
 }
 
 impl TopologyData {
@@ -56,6 +59,13 @@ impl TopologyData {
     #[inline]
     pub fn value(&self, r: usize, z: &nalgebra::DVector<f64>) -> f64 {
         column_dot(&self.rows_t, r, z)
+    }
+
+    /// Time derivative of row `r` at state `z`, per second.
+    #[inline]
+    pub fn slope(&self, r: usize, z: &[f64]) -> f64 {
+        let n = self.slopes_t.nrows();
+        kernel::dot(&self.slopes_t.as_slice()[r * n..(r + 1) * n], z)
     }
 
     /// Number of rows.
@@ -236,11 +246,13 @@ impl System {
                 topology: t.describe(&self.circuit, &self.layout),
             });
         }
+        let rows_t = rows.transpose();
         Ok(TopologyData {
             topology: t,
+            slopes_t: m.transpose() * &rows_t,
             m,
             ladder,
-            rows_t: rows.transpose(),
+            rows_t,
         })
     }
 

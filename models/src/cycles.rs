@@ -4,7 +4,7 @@
 //! closes a [`CycleRecord`] at the next turn-on. Records go to a [`CycleSink`] so a long
 //! run need not keep them.
 
-use stepflux_engine::{ElementId, Stepper, Topology};
+use stepflux_engine::{ElementId, Stepper, Topology, TracePoint};
 
 /// What one switching period did to the core and the switch.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -165,6 +165,33 @@ impl CycleWatch {
             rec.reset_end = None;
         }
         self.was_resetting = resetting;
+    }
+
+    /// Updates extremes and the reset state from a point of the exact solution: step
+    /// ends, switching instants and the probes' extrema inside steps, so the peaks
+    /// are the solution's own, whatever the output sample interval.
+    pub fn trace(&mut self, point: &TracePoint<'_>) {
+        let Some(rec) = self.open.as_mut() else {
+            return;
+        };
+        let p = &self.points;
+        let v = point.values;
+        rec.mag_current_peak = rec.mag_current_peak.max(v[p.mag_current]);
+        rec.drain_peak = rec.drain_peak.max(v[p.drain]);
+        rec.b_peak = rec.b_peak.max(v[p.flux].abs());
+        let resetting = p.resetting(point.topology);
+        if self.was_resetting && !resetting {
+            rec.reset_end = Some(point.time);
+        }
+        if resetting {
+            rec.reset_end = None;
+        }
+        self.was_resetting = resetting;
+    }
+
+    /// The probes the watch reads, for the run to trace.
+    pub fn probes(&self) -> [usize; 3] {
+        [self.points.mag_current, self.points.drain, self.points.flux]
     }
 
     /// Closes the open cycle at the present instant (the next turn-on or the run's end).

@@ -3,7 +3,7 @@
 
 use stepflux_engine::{
     Direction, ElementId, EventFn, EventSlot, Meter, Observation, Quantity, Signal, SimOptions,
-    Simulation, Sink, StepOutcome, Stepper, Stop,
+    Simulation, Sink, StepOutcome, Stepper, Stop, Topology, TracePoint,
 };
 
 use crate::cycles::{CycleSink, CycleWatch, WatchPoints};
@@ -102,7 +102,7 @@ impl<S: Stepper> ConverterRun<S> {
             event_signals,
             meters,
         };
-        let sim = S::build(conv.circuit.clone(), observation, options)?;
+        let mut sim = S::build(conv.circuit.clone(), observation, options)?;
         let points = WatchPoints::new(
             &sim,
             required(conv, "mag.i")?,
@@ -110,11 +110,13 @@ impl<S: Stepper> ConverterRun<S> {
             required(conv, "core.b")?,
             &conv.key.reset_diodes,
         );
+        let watch = CycleWatch::new(points);
+        sim.trace_probes(&watch.probes())?;
         let mut run = ConverterRun {
             sim,
             key: conv.key.clone(),
             probes: conv.probes.clone(),
-            watch: CycleWatch::new(points),
+            watch,
             knee: conv.key.saturation.map(|branch| Knee {
                 branch,
                 positive_closed: false,
@@ -226,9 +228,21 @@ impl<S: Stepper> ConverterRun<S> {
         Ok(())
     }
 
+    /// Also traces probes `extra` (by index) besides those the cycle watch reads, for
+    /// measurements that want the exact solution's extrema.
+    pub fn trace_also(&mut self, extra: &[usize]) -> Result<(), ModelError> {
+        let mut all = self.watch.probes().to_vec();
+        all.extend_from_slice(extra);
+        Ok(self.sim.trace_probes(&all)?)
+    }
+
     fn advance_plain(&mut self, t: f64, sink: &mut dyn Sink) -> Result<Stop, ModelError> {
         loop {
-            let outcome = self.sim.step_to(t, sink)?;
+            let mut watched = Watched {
+                inner: &mut *sink,
+                watch: &mut self.watch,
+            };
+            let outcome = self.sim.step_to(t, &mut watched)?;
             self.watch.observe(&self.sim);
             match outcome {
                 StepOutcome::StopTime => return Ok(Stop::Reached),
@@ -303,5 +317,44 @@ impl<S: Stepper> ConverterRun<S> {
             Some(self.sim.arm(event(i_k, neg))?),
         ];
         Ok(())
+    }
+}
+
+/// The run's sink seen through the cycle watch: trace points update the open cycle
+/// record, then everything goes on to the caller's sink unchanged.
+struct Watched<'a> {
+    inner: &'a mut dyn Sink,
+    watch: &'a mut CycleWatch,
+}
+
+impl Sink for Watched<'_> {
+    fn sample(&mut self, time: f64, values: &[f64], at_event: bool) -> Result<(), String> {
+        self.inner.sample(time, values, at_event)
+    }
+
+    fn topology_change(
+        &mut self,
+        time: f64,
+        before: Topology,
+        after: Topology,
+    ) -> Result<(), String> {
+        self.inner.topology_change(time, before, after)
+    }
+
+    fn listens(&self) -> bool {
+        self.inner.listens()
+    }
+
+    fn trace(&mut self, point: &TracePoint<'_>) -> Result<(), String> {
+        self.watch.trace(point);
+        if self.inner.traces() {
+            self.inner.trace(point)
+        } else {
+            Ok(())
+        }
+    }
+
+    fn traces(&self) -> bool {
+        true
     }
 }

@@ -109,6 +109,20 @@ pub struct Simulation {
     values: Vec<f64>,
     visited: Vec<Topology>,
     flipped: Vec<ElementId>,
+    /// Event functions' slopes at the present state and at a step's end.
+    d_lo: Vec<f64>,
+    d_hi: Vec<f64>,
+    /// Tick and state where the step being taken began: output samples and extrema
+    /// inside it are read off from here once it is done.
+    start_tick: Tick,
+    start_z: DVector<f64>,
+    /// Work space for reading inside a step: a state, the one it is read from, a
+    /// step's output and a sources' part.
+    peek_z: Vec<f64>,
+    peek_from: Vec<f64>,
+    peek_ext: Vec<f64>,
+    peek_b: Vec<f64>,
+    trace: trace::TraceState,
 }
 
 impl Simulation {
@@ -155,6 +169,7 @@ impl Simulation {
             .map(|s| source_waveform(&system.circuit, *s).segment(0.0).until)
             .collect();
         let n_meters = system.observation.meters.len();
+        let n_probes = system.observation.probes.len();
         let storm_ticks = grid.tick(options.storm.window).max(1);
         let mut sim = Simulation {
             system,
@@ -183,6 +198,15 @@ impl Simulation {
             values: vec![0.0; n_rows],
             visited: Vec::with_capacity(4 * MAX_ARMED),
             flipped: Vec::with_capacity(4 * MAX_ARMED),
+            d_lo: vec![0.0; n_events],
+            d_hi: vec![0.0; n_events],
+            start_tick: 0,
+            start_z: DVector::zeros(nz),
+            peek_z: vec![0.0; nz],
+            peek_from: vec![0.0; nz],
+            peek_ext: vec![0.0; ext_rows],
+            peek_b: vec![0.0; ext_rows],
+            trace: trace::TraceState::new(n_probes),
         };
         sim.refresh_next_break();
         sim.sources_changed();
@@ -326,6 +350,11 @@ impl Simulation {
             // The cached event values stay good: only the new slot's is missing.
             let raw = self.topo.value(armed.row, &self.z);
             self.g_lo[nd + slot] = step::armed_value(&armed, raw, self.time());
+            let slope = self.topo.slope(armed.row, self.z.as_slice()) + f.rate;
+            self.d_lo[nd + slot] = match f.direction {
+                crate::event::Direction::Rising => slope,
+                crate::event::Direction::Falling => -slope,
+            };
         } else {
             self.generation += 1;
         }
@@ -364,23 +393,16 @@ impl Simulation {
         self.step(stop, sink)
     }
 
-    fn next_sample_after(&mut self) -> Tick {
-        let Some(every) = self.sample_every else {
-            return Tick::MAX;
-        };
-        while self.next_sample <= self.tick {
-            self.next_sample += every;
-        }
-        self.next_sample
-    }
-
     /// Work due at the grid point just reached: source breakpoints, then samples.
     fn on_grid_point(&mut self, sink: &mut dyn Sink) -> Result<(), EngineError> {
         if self.tick == self.next_break {
             self.apply_breakpoints()?;
         }
-        if self.sample_every.is_some() && self.tick == self.next_sample {
-            self.emit(sink, false)?;
+        if let Some(every) = self.sample_every {
+            if self.tick == self.next_sample {
+                self.emit(sink, false)?;
+                self.next_sample += every;
+            }
         }
         Ok(())
     }
@@ -480,4 +502,5 @@ mod spans;
 mod step;
 mod stepper;
 mod support;
+mod trace;
 pub(crate) use support::settle_diodes;

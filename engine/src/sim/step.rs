@@ -29,22 +29,30 @@ impl Simulation {
         if self.tick >= stop {
             return Ok(StepOutcome::StopTime);
         }
-        let target = stop.min(self.next_sample_after()).min(self.next_break);
+        // Output samples never end a step: where steps fall depends on the circuit,
+        // its drive and the stop time alone (samples inside a step are read off it
+        // afterwards, see `trace.rs`).
+        let target = stop.min(self.next_break);
         let nd = self.system.diode_count();
-        let armed = &self.armed[..self.armed_len];
         if self.g_lo_at != Some((self.tick, self.generation)) {
+            let armed = &self.armed[..self.armed_len];
             let (topo, z) = (&*self.topo, &self.z);
             for (r, v) in self.raw.iter_mut().enumerate() {
                 *v = topo.value(r, z);
             }
             all_events(&self.raw, armed, nd, self.time(), &mut self.g_lo);
+            all_slopes(topo, z.as_slice(), armed, nd, &mut self.d_lo);
         }
-        let (topology, ladder) = (self.topo.topology, &self.topo.ladder);
-        let (n, ev) = (nd + armed.len(), ladder.nx..ladder.u_row());
+        self.start_tick = self.tick;
+        self.start_z.copy_from(&self.z);
+        let topo = Arc::clone(&self.topo);
+        let (topology, ladder) = (topo.topology, &topo.ladder);
+        let n = nd + self.armed_len;
+        let ev = ladder.nx..ladder.u_row();
         let span = target - self.tick;
         let mut len = 0;
-        // A recurring span in one product; if an event fires within it, the span is
-        // stepped digit by digit instead so the event is located as usual.
+        // A recurring span in one product; if an event fires or may hide within it,
+        // the span is stepped digit by digit instead so the event is located as usual.
         if span <= 1 << ladder.top && self.meters.is_empty() && Spans::worth_it(ladder, span) {
             if let Some((stacked, id)) = self.spans.get(topology, span, ladder) {
                 let z = self.z.as_slice();
@@ -52,46 +60,85 @@ impl Simulation {
                     .sources
                     .get(topology, id, ladder, stacked, &z[ladder.nx..]);
                 ladder.step(stacked, z, b, &mut self.ext);
+                let armed = &self.armed[..self.armed_len];
                 let t_hi = self.system.grid.time(self.tick + span);
                 all_events(&self.ext[ev.clone()], armed, nd, t_hi, &mut self.g_hi);
-                if crossed(&self.g_lo[..n], &self.g_hi[..n]) == 0 {
+                if crossed(&self.g_lo[..n], &self.g_hi[..n]) == 0
+                    && self.hidden(&topo, span, n).is_none()
+                {
                     len = span;
                 }
             }
         }
         if len == 0 {
-            let (j, d) = ladder.longest_within(span.min(1 << ladder.top));
-            let entry = ladder.index(j, d);
-            len = ladder.ticks(j, d);
-            table_step(
-                ladder,
-                topology,
-                entry,
-                &mut self.sources,
-                &self.z,
-                &mut self.ext,
-            );
-            let t_hi = self.system.grid.time(self.tick + len);
-            all_events(&self.ext[ev], armed, nd, t_hi, &mut self.g_hi);
-            let candidates = crossed(&self.g_lo[..n], &self.g_hi[..n]);
-            if candidates != 0 {
-                let topo = Arc::clone(&self.topo);
-                return self.locate(&topo, j, d, candidates, sink);
+            let mut limit = span.min(1 << ladder.top);
+            loop {
+                let (j, d) = ladder.longest_within(limit);
+                let entry = ladder.index(j, d);
+                len = ladder.ticks(j, d);
+                table_step(
+                    ladder,
+                    topology,
+                    entry,
+                    &mut self.sources,
+                    &self.z,
+                    &mut self.ext,
+                );
+                let armed = &self.armed[..self.armed_len];
+                let t_hi = self.system.grid.time(self.tick + len);
+                all_events(&self.ext[ev.clone()], armed, nd, t_hi, &mut self.g_hi);
+                let candidates = crossed(&self.g_lo[..n], &self.g_hi[..n]);
+                if candidates != 0 {
+                    return self.locate(&topo, j, d, candidates, sink);
+                }
+                match self.hidden(&topo, len, n) {
+                    Some(shorter) if len > 1 => limit = shorter.clamp(1, len - 1),
+                    _ => break,
+                }
             }
-            self.meters.add(&self.topo, entry, self.z.as_slice());
+            let (j, d) = ladder.longest_within(len);
+            self.meters
+                .add(&self.topo, ladder.index(j, d), self.z.as_slice());
         }
         ladder.state_from(&self.ext, self.z.as_mut_slice());
         self.sources.stepped();
         std::mem::swap(&mut self.g_lo, &mut self.g_hi);
+        std::mem::swap(&mut self.d_lo, &mut self.d_hi);
         self.tick += len;
         self.g_lo_at = Some((self.tick, self.generation));
         self.check_finite()?;
+        self.read_stretch(&topo, sink)?;
         self.on_grid_point(sink)?;
         Ok(if self.tick == stop {
             StepOutcome::StopTime
         } else {
             StepOutcome::Internal
         })
+    }
+
+    /// Whether an event function that is ≤ 0 at both ends of the step just computed
+    /// (`self.ext`, `len` ticks) may have crossed zero and come back inside it; if so,
+    /// a shorter step to try instead. Fills `d_hi` with every function's slope at the
+    /// step's end. See [`hidden_crossing`] for the test and why it suffices.
+    fn hidden(&mut self, topo: &TopologyData, len: Tick, n: usize) -> Option<Tick> {
+        let ladder = &topo.ladder;
+        ladder.state_from(&self.ext, &mut self.peek_z);
+        let nd = self.system.diode_count();
+        let armed = &self.armed[..self.armed_len];
+        all_slopes(topo, &self.peek_z, armed, nd, &mut self.d_hi);
+        let q = self.system.grid.quantum;
+        let h = len as f64 * q;
+        let mut shortest: Option<f64> = None;
+        for i in 0..n {
+            let (g0, gh) = (self.g_lo[i], self.g_hi[i]);
+            if !(g0 <= 0.0 && gh <= 0.0 && g0.is_finite()) {
+                continue;
+            }
+            if let Some(t) = hidden_crossing(g0, self.d_lo[i], gh, self.d_hi[i], h) {
+                shortest = Some(shortest.map_or(t, |s: f64| s.min(t)));
+            }
+        }
+        shortest.map(|t| (t / q).floor() as Tick)
     }
 
     /// An event fired within a step of entry (j0, d0): search down to the first tick at
@@ -164,6 +211,7 @@ impl Simulation {
         self.sources.stepped();
         self.tick += 1;
         self.check_finite()?;
+        self.read_stretch(topo, sink)?;
         let armed = (positive(&self.g_hi, candidates) >> nd) as u64;
         self.flipped.clear();
         self.settle()?;
@@ -266,6 +314,72 @@ fn table_step(
     let z = z.as_slice();
     let b = sources.get(topology, entry, ladder, stacked, &z[ladder.nx..]);
     ladder.step(stacked, z, b, out);
+}
+
+/// Every event function's time derivative at state `z` into `d`, in the order and
+/// signs of [`all_events`] (an empty slot gets 0).
+#[inline]
+pub(super) fn all_slopes(
+    topo: &TopologyData,
+    z: &[f64],
+    armed: &[Option<Armed>],
+    nd: usize,
+    d: &mut [f64],
+) {
+    for (r, dr) in d[..nd].iter_mut().enumerate() {
+        *dr = topo.slope(r, z);
+    }
+    for (dk, slot) in d[nd..].iter_mut().zip(armed) {
+        *dk = match slot {
+            Some(a) => {
+                let v = topo.slope(a.row, z) + a.f.rate;
+                if a.f.direction == Direction::Rising {
+                    v
+                } else {
+                    -v
+                }
+            }
+            None => 0.0,
+        };
+    }
+}
+
+/// The crossing-and-return test for one event function over a step of `h` seconds
+/// with g(0) = `g0` ≤ 0, g(h) = `gh` ≤ 0 and slopes `d0`, `dh` at the ends: a time
+/// (seconds from the step's start) to shorten the step to when the function may
+/// have risen above zero inside, else `None`.
+///
+/// A function that crosses and returns has a maximum above zero inside the step.
+/// - Rising at the start and falling at the end (one maximum inside): where g is
+///   concave the two end tangents lie above it, so its maximum is at most their
+///   value where they meet, t*. That bound ≤ 0 proves no crossing; otherwise the
+///   step is cut at t*, next to the maximum.
+/// - Rising at the start and still rising at the end, but the start tangent reaches
+///   zero inside (a fast transient that rose, fell back and rises slowly again, as
+///   after a diode opens into off-state resistances): cut where the tangent reaches
+///   zero. A convex rise never gets here (its tangent lies below it).
+/// - Falling at both... or falling only at the end while the end tangent, traced
+///   back, lies above zero: halve.
+///
+/// Each cut is strictly shorter, so a step that keeps being cut ends at one tick,
+/// the time resolution, and is then taken. Two maxima inside one step are not
+/// excluded by this test; the step cap at 1/8 of the fastest lightly damped
+/// oscillation keeps ringing to at most one extremum per step.
+fn hidden_crossing(g0: f64, d0: f64, gh: f64, dh: f64, h: f64) -> Option<f64> {
+    if d0 > 0.0 && g0 + d0 * h > 0.0 {
+        if dh < 0.0 {
+            let t = (gh - g0 - dh * h) / (d0 - dh);
+            if !(t > 0.0 && t < h) {
+                return Some(0.5 * h);
+            }
+            return (g0 + d0 * t > 0.0).then_some(t);
+        }
+        return Some(-g0 / d0);
+    }
+    if dh < 0.0 && d0 <= 0.0 && gh - dh * h > 0.0 {
+        return Some(0.5 * h);
+    }
+    None
 }
 
 /// Bits (among `which`) of the functions above zero.

@@ -116,6 +116,10 @@ impl Stepper for Simulation {
     }
 
     #[inline]
+    fn trace_probes(&mut self, probes: &[usize]) -> Result<(), EngineError> {
+        Simulation::trace_probes(self, probes)
+    }
+
     fn step_to(&mut self, until: f64, sink: &mut dyn Sink) -> Result<StepOutcome, EngineError> {
         Simulation::step_to(self, until, sink)
     }

@@ -7,7 +7,7 @@ use nalgebra::DVector;
 
 use crate::circuit::ElementId;
 use crate::error::EngineError;
-use crate::event::Sink;
+use crate::event::{Sink, TraceKind};
 use crate::ladder::Tick;
 use crate::system::{System, TopologyData};
 use crate::topology::Topology;
@@ -37,6 +37,7 @@ impl Simulation {
         }
         let armed = &self.armed[..self.armed_len];
         step::all_events(&self.raw, armed, nd, time, &mut self.g_lo);
+        step::all_slopes(&self.topo, self.z.as_slice(), armed, nd, &mut self.d_lo);
         self.g_lo_at = Some((self.tick, self.generation));
         Ok(())
     }
@@ -54,7 +55,11 @@ impl Simulation {
             self.reported = now;
         }
         if !listens {
-            return Ok(());
+            return if at_event {
+                self.trace_here(sink, TraceKind::Event)
+            } else {
+                Ok(())
+            };
         }
         let first = self.system.diode_count() + self.system.observation.event_signals.len();
         let n = self.system.observation.probes.len();
@@ -62,7 +67,11 @@ impl Simulation {
             self.values[k] = self.topo.value(first + k, &self.z);
         }
         sink.sample(time, &self.values[..n], at_event)
-            .map_err(|message| EngineError::Sink { time, message })
+            .map_err(|message| EngineError::Sink { time, message })?;
+        if at_event {
+            self.trace_here(sink, TraceKind::Event)?;
+        }
+        Ok(())
     }
 
     /// Moves every source whose breakpoint is now onto its next segment.
