@@ -8,7 +8,7 @@
 //!   first disturbance, or before the end;
 //! - the core-reset check over every cycle of the run.
 
-use stepflux_engine::Simulation;
+use stepflux_engine::{Simulation, TracePoint, Turning};
 use stepflux_models::cycles::CycleRecord;
 use stepflux_models::disturbance::Disturbance;
 use stepflux_models::measure::{
@@ -163,11 +163,29 @@ impl Plan {
         v
     }
 
-    /// One sample.
-    pub fn sample(&mut self, time: f64, values: &[f64], at_event: bool) {
+    /// One point of the exact solution; measurements are fed these, never output
+    /// samples, so no figure depends on the sample interval.
+    pub fn trace(&mut self, point: &TracePoint<'_>) {
         for m in self.parts() {
-            m.sample(time, values, at_event);
+            m.trace(point);
         }
+    }
+
+    /// Probes whose extrema the measurements read, for the run to trace.
+    pub fn traced_probes(&self, probes: &[Probe]) -> Vec<(usize, Turning)> {
+        let mut out: Vec<(usize, Turning)> = self
+            .reset
+            .probes()
+            .into_iter()
+            .map(|k| (k, Turning::Both))
+            .collect();
+        out.extend(
+            ["out.v", "lout.i"]
+                .iter()
+                .filter_map(|n| probes.iter().position(|p| p.name == *n))
+                .map(|k| (k, Turning::Both)),
+        );
+        out
     }
 
     /// One cycle record.

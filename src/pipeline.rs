@@ -8,7 +8,7 @@ use std::path::{Path, PathBuf};
 use std::time::Instant;
 
 use anyhow::{Context, Result};
-use stepflux_engine::{SimOptions, Sink, Topology};
+use stepflux_engine::{SimOptions, Sink, Topology, TracePoint};
 use stepflux_models::controller::modulator::ClosedLoop;
 use stepflux_models::cycles::{CycleRecord, CycleSink};
 use stepflux_models::disturbance;
@@ -147,11 +147,23 @@ struct Cycles<'s, 'a>(&'s Shared<'a>);
 
 impl Sink for Samples<'_, '_> {
     fn sample(&mut self, time: f64, values: &[f64], at_event: bool) -> Result<(), String> {
-        self.0.measure.borrow_mut().sample(time, values, at_event);
         match self.0.file.borrow_mut().as_mut() {
             Some(file) => file.sample(time, values, at_event),
             None => Ok(()),
         }
+    }
+
+    fn listens(&self) -> bool {
+        self.0.file.borrow().is_some()
+    }
+
+    fn trace(&mut self, point: &TracePoint<'_>) -> Result<(), String> {
+        self.0.measure.borrow_mut().trace(point);
+        Ok(())
+    }
+
+    fn traces(&self) -> bool {
+        true
     }
 
     fn topology_change(
@@ -226,6 +238,11 @@ pub fn run_job_with(
     };
     let mut plan =
         Plan::new(job, driver.run_ref().probes(), Some(losses)).map_err(|e| anyhow::anyhow!(e))?;
+    let traced = plan.traced_probes(driver.run_ref().probes());
+    driver
+        .run_mut()
+        .trace_also(&traced)
+        .map_err(|e| anyhow::anyhow!(e))?;
     let outcome = {
         let shared = Shared {
             file: RefCell::new(file.as_mut()),

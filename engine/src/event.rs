@@ -111,6 +111,17 @@ pub trait Sink {
     }
 }
 
+/// Which turning points of a traced probe the trace locates inside steps.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Turning {
+    /// Maxima only (a peak stress).
+    Maxima,
+    /// Minima only.
+    Minima,
+    /// Both (a ripple, a magnitude).
+    Both,
+}
+
 /// Where a [`TracePoint`] falls.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum TraceKind {
@@ -128,10 +139,11 @@ pub enum TraceKind {
 pub struct TracePoint<'a> {
     /// Seconds.
     pub time: f64,
-    /// Every probe's value, in the order of [`crate::Observation::probes`].
+    /// Traced probes' values ([`crate::Simulation::trace_probes`]), indexed in the
+    /// order of [`crate::Observation::probes`]; NaN for probes not traced.
     pub values: &'a [f64],
-    /// Every probe's time derivative (per second) in the present topology; NaN for
-    /// probes that are not traced ([`crate::Simulation::trace_probes`]).
+    /// Traced probes' time derivatives (per second) in the present topology; NaN for
+    /// probes not traced.
     pub slopes: &'a [f64],
     /// Where it falls.
     pub kind: TraceKind,

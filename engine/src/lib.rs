@@ -51,7 +51,7 @@ pub use circuit::{
 pub use error::EngineError;
 pub use event::{
     Direction, EventFn, EventSlot, NullSink, Sink, StepOutcome, Stop, TraceKind, TracePoint,
-    MAX_ARMED,
+    Turning, MAX_ARMED,
 };
 pub use ladder::{Tick, TimeGrid};
 pub use layout::{Layout, StateKind};

@@ -6,7 +6,7 @@ use nalgebra::DVector;
 
 use crate::circuit::{Circuit, ElementId};
 use crate::error::EngineError;
-use crate::event::{EventFn, EventSlot, Sink, StepOutcome, Stop};
+use crate::event::{EventFn, EventSlot, Sink, StepOutcome, Stop, Turning};
 use crate::system::{Observation, System};
 use crate::topology::Topology;
 
@@ -82,7 +82,7 @@ pub trait Stepper {
     /// Chooses the probes whose slopes and in-step extrema the run traces to sinks
     /// that want them ([`Sink::traces`]). A path that does not trace ignores it (the
     /// default): its sinks then see samples only.
-    fn trace_probes(&mut self, probes: &[usize]) -> Result<(), EngineError> {
+    fn trace_probes(&mut self, probes: &[(usize, Turning)]) -> Result<(), EngineError> {
         let _ = probes;
         Ok(())
     }

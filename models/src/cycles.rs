@@ -4,7 +4,7 @@
 //! closes a [`CycleRecord`] at the next turn-on. Records go to a [`CycleSink`] so a long
 //! run need not keep them.
 
-use stepflux_engine::{ElementId, Stepper, Topology, TracePoint};
+use stepflux_engine::{ElementId, Stepper, Topology, TracePoint, Turning};
 
 /// What one switching period did to the core and the switch.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -189,9 +189,15 @@ impl CycleWatch {
         self.was_resetting = resetting;
     }
 
-    /// The probes the watch reads, for the run to trace.
-    pub fn probes(&self) -> [usize; 3] {
-        [self.points.mag_current, self.points.drain, self.points.flux]
+    /// The probes the watch reads and the turning points it wants, for the run to
+    /// trace: peaks of the magnetising current and drain voltage, |B| both ways.
+    pub fn probes(&self) -> [(usize, Turning); 3] {
+        let p = &self.points;
+        [
+            (p.mag_current, Turning::Maxima),
+            (p.drain, Turning::Maxima),
+            (p.flux, Turning::Both),
+        ]
     }
 
     /// Closes the open cycle at the present instant (the next turn-on or the run's end).

@@ -3,7 +3,7 @@
 
 use stepflux_engine::{
     Direction, ElementId, EventFn, EventSlot, Meter, Observation, Quantity, Signal, SimOptions,
-    Simulation, Sink, StepOutcome, Stepper, Stop, Topology, TracePoint,
+    Simulation, Sink, StepOutcome, Stepper, Stop, Topology, TracePoint, Turning,
 };
 
 use crate::cycles::{CycleSink, CycleWatch, WatchPoints};
@@ -230,7 +230,7 @@ impl<S: Stepper> ConverterRun<S> {
 
     /// Also traces probes `extra` (by index) besides those the cycle watch reads, for
     /// measurements that want the exact solution's extrema.
-    pub fn trace_also(&mut self, extra: &[usize]) -> Result<(), ModelError> {
+    pub fn trace_also(&mut self, extra: &[(usize, Turning)]) -> Result<(), ModelError> {
         let mut all = self.watch.probes().to_vec();
         all.extend_from_slice(extra);
         Ok(self.sim.trace_probes(&all)?)

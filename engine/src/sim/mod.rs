@@ -123,6 +123,8 @@ pub struct Simulation {
     peek_ext: Vec<f64>,
     peek_b: Vec<f64>,
     trace: trace::TraceState,
+    /// Longest next step, ticks: short after a switching instant, growing after.
+    ramp: Tick,
 }
 
 impl Simulation {
@@ -207,6 +209,7 @@ impl Simulation {
             peek_ext: vec![0.0; ext_rows],
             peek_b: vec![0.0; ext_rows],
             trace: trace::TraceState::new(n_probes),
+            ramp: step::RAMP_START,
         };
         sim.refresh_next_break();
         sim.sources_changed();

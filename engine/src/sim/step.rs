@@ -71,7 +71,7 @@ impl Simulation {
             }
         }
         if len == 0 {
-            let mut limit = span.min(1 << ladder.top);
+            let mut limit = span.min(1 << ladder.top).min(self.ramp);
             loop {
                 let (j, d) = ladder.longest_within(limit);
                 let entry = ladder.index(j, d);
@@ -99,6 +99,7 @@ impl Simulation {
             let (j, d) = ladder.longest_within(len);
             self.meters
                 .add(&self.topo, ladder.index(j, d), self.z.as_slice());
+            self.ramp = self.ramp.saturating_mul(RAMP_GROWTH);
         }
         ladder.state_from(&self.ext, self.z.as_mut_slice());
         self.sources.stepped();
@@ -228,6 +229,17 @@ impl Simulation {
         })
     }
 }
+
+/// First step after a switching instant, ticks, and the factor each following step
+/// may grow by. A switching instant excites every mode of the new topology; steps
+/// growing geometrically from a few ticks look at the event functions once per
+/// factor of 16 in time, so transients on different time scales (a sub-picosecond
+/// one on an off-state resistance, a nanosecond one on an output capacitance, the
+/// microsecond ones of the power stage) fall in different steps, and the slope test
+/// of [`hidden_crossing`] sees each with at most one turn in a step. Costs about
+/// five more steps per switching instant.
+pub(super) const RAMP_START: Tick = 16;
+const RAMP_GROWTH: Tick = 16;
 
 /// Event function values at time `t` into `g`, for the functions whose bit is set in
 /// `which`, from `rows(r)`, the value of event row r (diode rows first, then event

@@ -4,7 +4,7 @@ use nalgebra::DVector;
 
 use crate::circuit::{Circuit, ElementId};
 use crate::error::EngineError;
-use crate::event::{EventFn, EventSlot, Sink, StepOutcome, Stop};
+use crate::event::{EventFn, EventSlot, Sink, StepOutcome, Stop, Turning};
 use crate::stepper::{check_handover, Handover, Stepper};
 use crate::system::{Observation, System};
 use crate::topology::Topology;
@@ -116,7 +116,7 @@ impl Stepper for Simulation {
     }
 
     #[inline]
-    fn trace_probes(&mut self, probes: &[usize]) -> Result<(), EngineError> {
+    fn trace_probes(&mut self, probes: &[(usize, Turning)]) -> Result<(), EngineError> {
         Simulation::trace_probes(self, probes)
     }
 

@@ -39,6 +39,7 @@ impl Simulation {
         step::all_events(&self.raw, armed, nd, time, &mut self.g_lo);
         step::all_slopes(&self.topo, self.z.as_slice(), armed, nd, &mut self.d_lo);
         self.g_lo_at = Some((self.tick, self.generation));
+        self.ramp = step::RAMP_START;
         Ok(())
     }
 

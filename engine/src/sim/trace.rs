@@ -1,6 +1,6 @@
 //! Reading inside a step once it is taken: output samples on the fixed interval, and
 //! the trace of the exact solution (every step end and switching instant, plus each
-//! traced probe's extrema inside a step).
+//! traced probe's extrema inside a step). Trace points carry the traced probes only.
 //!
 //! Steps end where the circuit, its drive and the stop time say, never at an output
 //! sample: a sample inside a step is the state at the step's start carried ahead to the
@@ -15,7 +15,7 @@
 //! nearest tick. The value there is within ½·|v''|·(one tick)² of the true extremum.
 
 use crate::error::EngineError;
-use crate::event::{Sink, TraceKind, TracePoint};
+use crate::event::{Sink, TraceKind, TracePoint, Turning};
 use crate::kernel;
 use crate::ladder::{Ladder, Tick};
 use crate::system::TopologyData;
@@ -29,8 +29,8 @@ const EXTREMUM_BRACKET_SHIFT: u32 = 10;
 /// What the trace keeps between points. Sized when the simulation is built (or when
 /// the traced probes are chosen), so tracing allocates nothing while stepping.
 pub(super) struct TraceState {
-    /// Whether probe k is traced (slopes and extrema).
-    traced: Vec<bool>,
+    /// Whether probe k is traced, and which of its turning points are located.
+    traced: Vec<Option<Turning>>,
     values: Vec<f64>,
     slopes: Vec<f64>,
     /// Slopes at the last point, and where it was: an extremum is looked for only
@@ -45,7 +45,7 @@ pub(super) struct TraceState {
 impl TraceState {
     pub(super) fn new(n_probes: usize) -> Self {
         TraceState {
-            traced: vec![false; n_probes],
+            traced: vec![None; n_probes],
             values: vec![0.0; n_probes],
             slopes: vec![f64::NAN; n_probes],
             prev_slopes: vec![f64::NAN; n_probes],
@@ -60,9 +60,10 @@ impl Simulation {
     /// Chooses the probes (indices into the observation's probes) whose slopes and
     /// extrema inside steps the trace reports to sinks that want it
     /// ([`Sink::traces`]). Every probe's value is in every trace point regardless.
-    pub fn trace_probes(&mut self, probes: &[usize]) -> Result<(), EngineError> {
+    /// A probe named twice gets the union of its turning points.
+    pub fn trace_probes(&mut self, probes: &[(usize, Turning)]) -> Result<(), EngineError> {
         let n = self.system.observation.probes.len();
-        if let Some(&bad) = probes.iter().find(|&&k| k >= n) {
+        if let Some(&(bad, _)) = probes.iter().find(|&&(k, _)| k >= n) {
             return Err(EngineError::BadOption {
                 what: "traced probe index",
                 value: bad as f64,
@@ -70,9 +71,12 @@ impl Simulation {
             });
         }
         let t = &mut self.trace;
-        t.traced.iter_mut().for_each(|b| *b = false);
-        for &k in probes {
-            t.traced[k] = true;
+        t.traced.iter_mut().for_each(|b| *b = None);
+        for &(k, turning) in probes {
+            t.traced[k] = Some(match t.traced[k] {
+                Some(had) if had != turning => Turning::Both,
+                _ => turning,
+            });
         }
         t.states = vec![0.0; n * self.z.len()];
         t.prev_at = None;
@@ -155,12 +159,17 @@ impl Simulation {
         self.trace.found.clear();
         if self.trace.prev_at == Some((self.start_tick, topo.topology)) {
             for k in 0..n {
-                if !self.trace.traced[k] {
+                let Some(turning) = self.trace.traced[k] else {
                     continue;
-                }
+                };
                 let s0 = self.trace.prev_slopes[k];
                 let s1 = topo.slope(first + k, self.z.as_slice());
-                if (s0 > 0.0 && s1 < 0.0) || (s0 < 0.0 && s1 > 0.0) {
+                let wanted = match turning {
+                    Turning::Maxima => s0 > 0.0 && s1 < 0.0,
+                    Turning::Minima => s0 < 0.0 && s1 > 0.0,
+                    Turning::Both => (s0 > 0.0 && s1 < 0.0) || (s0 < 0.0 && s1 > 0.0),
+                };
+                if wanted {
                     self.find_extremum(topo, k, s0, s1);
                 }
             }
@@ -292,12 +301,10 @@ impl Simulation {
 /// Every probe's value and each traced probe's slope at state `z` in `topo`.
 fn fill_point(topo: &TopologyData, first: usize, z: &[f64], t: &mut TraceState) {
     let points = t.values.iter_mut().zip(t.slopes.iter_mut());
-    for (k, ((v, s), &traced)) in points.zip(&t.traced).enumerate() {
-        *v = row_value(topo, first + k, z);
-        *s = if traced {
-            topo.slope(first + k, z)
-        } else {
-            f64::NAN
+    for (k, ((v, s), traced)) in points.zip(&t.traced).enumerate() {
+        (*v, *s) = match traced {
+            Some(_) => (row_value(topo, first + k, z), topo.slope(first + k, z)),
+            None => (f64::NAN, f64::NAN),
         };
     }
 }

@@ -10,10 +10,12 @@
 //!
 //! Every result reduces to a list of [`Figure`]s, each with its name and unit.
 //!
-//! Sample-based extremes (peaks, dips, ripple) are taken at the samples the engine
-//! emits: every `sample_interval` plus one at each event, gate or source change. The
-//! switching instants, where converter waveforms turn, are therefore always seen;
-//! ringing between events is seen only as finely as the sample interval.
+//! Fed from a run, measurements see the trace of the exact solution
+//! ([`stepflux_engine::TracePoint`]): every step end and switching instant, and each
+//! traced probe's maxima and minima inside a step. Where those points fall depends
+//! on the circuit alone, so no figure depends on the output sample interval, and
+//! peaks, dips and ripple are the solution's own. Averages integrate the cubic
+//! through each pair of points and their slopes ([`window`]).
 
 mod coss;
 mod efficiency;
@@ -33,6 +35,8 @@ pub use ripple::{Ripple, RippleResult};
 pub use startup::{StartUp, StartUpResult};
 pub use step::{StepResponse, StepResult, StepSettings};
 pub use tee::{CycleTee, SampleTee, Tee};
+
+use stepflux_engine::{TraceKind, TracePoint};
 
 use crate::cycles::CycleRecord;
 use crate::error::ModelError;
@@ -71,6 +75,11 @@ pub trait Measurement {
     /// One sample: time in seconds, probe values in probe order, and whether it was
     /// taken at an event.
     fn sample(&mut self, _time: f64, _values: &[f64], _at_event: bool) {}
+    /// One point of the exact solution (step ends, switching instants, extrema of
+    /// traced probes). The default takes it as a sample.
+    fn trace(&mut self, point: &TracePoint<'_>) {
+        self.sample(point.time, point.values, point.kind == TraceKind::Event);
+    }
     /// One closed cycle record.
     fn cycle(&mut self, _record: &CycleRecord) {}
     /// The figures so far.

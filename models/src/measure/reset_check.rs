@@ -253,6 +253,13 @@ impl ResetCheck {
     }
 }
 
+impl ResetCheck {
+    /// Probes whose extremes the check reads (stress voltages), for the run to trace.
+    pub fn probes(&self) -> Vec<usize> {
+        self.watches.iter().flatten().map(|w| w.column).collect()
+    }
+}
+
 impl Measurement for ResetCheck {
     fn sample(&mut self, _time: f64, values: &[f64], _at_event: bool) {
         for (w, peak) in self.watches.iter().zip(&mut self.peaks) {

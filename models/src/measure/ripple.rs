@@ -1,6 +1,8 @@
 //! Ripple: peak-to-peak and mean of one probe over a window (normally a steady-state
 //! stretch of whole switching periods).
 
+use stepflux_engine::TracePoint;
+
 use super::window::{WindowExtremes, WindowMean};
 use super::{probe_index, Figure, Measurement};
 use crate::error::ModelError;
@@ -65,6 +67,14 @@ impl Measurement for Ripple {
         if let Some(&v) = values.get(self.column) {
             self.mean.add(time, v);
             self.extremes.add(time, v);
+        }
+    }
+
+    fn trace(&mut self, point: &TracePoint<'_>) {
+        if let Some(&v) = point.values.get(self.column) {
+            let slope = point.slopes.get(self.column).copied().unwrap_or(f64::NAN);
+            self.mean.add_with_slope(point.time, v, slope);
+            self.extremes.add(point.time, v);
         }
     }
 

@@ -1,6 +1,8 @@
 //! Response to a load or line step: undershoot and overshoot, recovery into a band,
 //! steady-state error, and how far the duty moved.
 
+use stepflux_engine::TracePoint;
+
 use super::window::{CycleRange, WindowExtremes, WindowMean};
 use super::{percent, probe_index, Figure, Measurement};
 use crate::cycles::CycleRecord;
@@ -155,6 +157,21 @@ impl Measurement for StepResponse {
         }
         self.extremes.add(time, v);
         self.final_mean.add(time, v);
+        self.track_band(time, v);
+        self.last = Some((time, v));
+    }
+
+    fn trace(&mut self, point: &TracePoint<'_>) {
+        let (time, values) = (point.time, point.values);
+        let Some(&v) = values.get(self.column) else {
+            return;
+        };
+        if time < self.settings.step_time || time > self.settings.until {
+            return;
+        }
+        let slope = point.slopes.get(self.column).copied().unwrap_or(f64::NAN);
+        self.extremes.add(time, v);
+        self.final_mean.add_with_slope(time, v, slope);
         self.track_band(time, v);
         self.last = Some((time, v));
     }

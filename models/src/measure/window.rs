@@ -6,14 +6,18 @@ fn lerp(t0: f64, v0: f64, t1: f64, v1: f64, t: f64) -> f64 {
     v0 + (v1 - v0) * (t - t0) / (t1 - t0)
 }
 
-/// Time average over `[from, to]` by the trapezoidal rule between samples, the window
-/// edges interpolated. Its error is second order in the sample spacing, and nothing
-/// where the quantity is piecewise linear between samples.
+/// Time average over `[from, to]`. Between two points with known slopes the quantity
+/// is taken as the cubic Hermite interpolant of the two values and slopes, integrated
+/// by two-point Gauss–Legendre (exact for cubics), so points of the exact solution
+/// (step ends, switching instants, extrema) give the average to the order of the
+/// cubic's error; between samples without slopes it is the trapezoidal rule, second
+/// order in the sample spacing. The window's edges cut a segment where they fall.
 #[derive(Clone, Debug)]
 pub(crate) struct WindowMean {
     from: f64,
     to: f64,
-    last: Option<(f64, f64)>,
+    /// (time, value, slope) of the last point; slope NaN when unknown.
+    last: Option<(f64, f64, f64)>,
     area: f64,
     span: f64,
 }
@@ -29,21 +33,67 @@ impl WindowMean {
         }
     }
 
+    /// A sample without a slope.
     pub(crate) fn add(&mut self, t: f64, v: f64) {
-        if let Some((t0, v0)) = self.last {
+        self.add_with_slope(t, v, f64::NAN);
+    }
+
+    /// A point with its slope (per second; NaN when unknown).
+    pub(crate) fn add_with_slope(&mut self, t: f64, v: f64, dv: f64) {
+        if let Some((t0, v0, d0)) = self.last {
             let (a, b) = (t0.max(self.from), t.min(self.to));
             if t > t0 && b > a {
-                let (va, vb) = (lerp(t0, v0, t, v, a), lerp(t0, v0, t, v, b));
-                self.area += 0.5 * (va + vb) * (b - a);
+                let seg = Segment {
+                    t0,
+                    v0,
+                    d0,
+                    t1: t,
+                    v1: v,
+                    d1: dv,
+                };
+                self.area += seg.integral(a, b);
                 self.span += b - a;
             }
         }
-        self.last = Some((t, v));
+        self.last = Some((t, v, dv));
     }
 
     /// The average, or `None` before any of the window has been seen.
     pub(crate) fn mean(&self) -> Option<f64> {
         (self.span > 0.0).then(|| self.area / self.span)
+    }
+}
+
+/// The quantity between two points: cubic Hermite when both slopes are known, else
+/// the straight line.
+struct Segment {
+    t0: f64,
+    v0: f64,
+    d0: f64,
+    t1: f64,
+    v1: f64,
+    d1: f64,
+}
+
+impl Segment {
+    fn at(&self, t: f64) -> f64 {
+        let h = self.t1 - self.t0;
+        if !(self.d0.is_finite() && self.d1.is_finite()) {
+            return lerp(self.t0, self.v0, self.t1, self.v1, t);
+        }
+        let s = (t - self.t0) / h;
+        let (s2, s3) = (s * s, s * s * s);
+        (2.0 * s3 - 3.0 * s2 + 1.0) * self.v0
+            + (s3 - 2.0 * s2 + s) * h * self.d0
+            + (-2.0 * s3 + 3.0 * s2) * self.v1
+            + (s3 - s2) * h * self.d1
+    }
+
+    /// ∫ₐᵇ, two-point Gauss–Legendre (exact for the cubic and the line).
+    fn integral(&self, a: f64, b: f64) -> f64 {
+        let (m, r) = (0.5 * (a + b), 0.5 * (b - a));
+        let x = r / 3f64.sqrt();
+        r * (self.at(m - x) + self.at(m + x))
     }
 }
 
