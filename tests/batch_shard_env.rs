@@ -18,6 +18,9 @@ const ARRAY_VARS: [&str; 5] = [
     "SLURM_ARRAY_TASK_STEP",
 ];
 
+/// Environment variables of a job-array task, name and value.
+type Vars = Vec<(&'static str, String)>;
+
 /// `stepflux batch STUDY` plus `args`, with exactly `vars` of the array variables
 /// set: the test may itself run inside a job array, whose own values must not leak in.
 fn batch_in_task(study: &Path, vars: &[(&str, String)], args: &[&str]) -> Output {
@@ -37,7 +40,7 @@ fn list(study: &Path, vars: &[(&str, String)], extra: &[&str]) -> Output {
 }
 
 /// The variables Slurm gives task `id` of `sbatch --array=MIN-MAX` (step 1).
-fn task(id: usize, min: usize, max: usize) -> Vec<(&'static str, String)> {
+fn task(id: usize, min: usize, max: usize) -> Vars {
     vec![
         ("SLURM_ARRAY_TASK_ID", id.to_string()),
         ("SLURM_ARRAY_TASK_COUNT", (max - min + 1).to_string()),
@@ -84,7 +87,7 @@ fn missing_or_inconsistent_array_variables_are_bad_input() {
         t[0].1 = "4".to_string();
         t
     };
-    let cases: [(&str, Vec<(&str, String)>, &str); 3] = [
+    let cases: [(&str, Vars, &str); 3] = [
         ("nothing set", vec![], "SLURM_ARRAY_TASK_ID is not set"),
         ("no task id", count_only, "SLURM_ARRAY_TASK_ID is not set"),
         ("id past the end", past_the_end, "SLURM_ARRAY_TASK_ID=4"),

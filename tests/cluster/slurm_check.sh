@@ -16,10 +16,10 @@
 set -euo pipefail
 
 repo=$(cd "$(dirname "${BASH_SOURCE[0]}")/../.." && pwd)
-stepflux=$(realpath "${1:-${repo}/target/release/stepflux}")
-study=$(realpath "${2:-${repo}/scenarios/study_corners.json}")
+stepflux=$(realpath -m "${1:-${repo}/target/release/stepflux}")
+study=$(realpath -m "${2:-${repo}/scenarios/study_corners.json}")
 tasks=4
-deadline_s=150 # for the array and the merge; they take about 30 s on 2 cores
+deadline_s=150 # for the array and the merge; about 10 s on 2 busy cores
 
 log() { echo "slurm check: $*"; }
 die() {
@@ -36,11 +36,18 @@ if [[ ${EUID} -ne 0 ]]; then
         "this user is neither root nor allowed passwordless sudo"
     exit 0
 fi
-for tool in munged munge unmunge slurmctld slurmd sbatch squeue sinfo scontrol scancel setpriv setsid; do
-    command -v "${tool}" >/dev/null || die "${tool} not found; install slurm-wlm and munge (apt-get install -y slurm-wlm munge)"
+for tool in munged munge unmunge slurmctld slurmd sbatch squeue sinfo scontrol scancel setpriv setsid python3; do
+    command -v "${tool}" >/dev/null || die "${tool} not found; the check needs slurm-wlm, munge, util-linux and python3"
 done
 id munge >/dev/null 2>&1 || die "no 'munge' user; is Debian's munge package installed?"
+# Root without the right to change user (a container stripped of CAP_SETUID) cannot
+# start munged as munge.
+if ! setpriv --reuid=munge --regid=munge --init-groups true 2>/dev/null; then
+    log "SKIPPED: root here cannot switch to the munge user to start munged"
+    exit 0
+fi
 [[ -x ${stepflux} ]] || die "no stepflux binary at ${stepflux}; build it with cargo build --release"
+[[ -f ${study} ]] || die "no study file at ${study}"
 
 # --- the private cluster's folder and teardown ----------------------------------------
 work=$(mktemp -d /tmp/stepflux-slurm.XXXXXX)
