@@ -101,11 +101,14 @@ pub enum Command {
     /// Run a study: corners, sweeps and Monte Carlo samples of a scenario, in parallel.
     #[command(
         after_help = "Example:\n  stepflux batch scenarios/study_corners.json --jobs 8 --out runs\n  \
-        stepflux batch study.json --shard 3/10 --out shard3   (one task of a job array)\n  \
+        stepflux batch study.json --shard 3/10 --out shard3   (one slice of ten)\n  \
+        stepflux batch study.json --shard-from-env --out runs/shard-$SLURM_ARRAY_TASK_ID\n  \
         stepflux batch study.json --resume --out runs         (after an interruption)\n\n\
         Writes DIR/<study>/cases/<id>.json as each case ends, then results.csv, \
         results.json and worst.json. Shard I/N runs the cases whose 0-based index k has \
-        k mod N = I-1. Exits 0 when every case passed, 1 when a case failed a limit, 3 \
+        k mod N = I-1. --shard-from-env takes I and N from a Slurm job array task: \
+        I-1 = (SLURM_ARRAY_TASK_ID - SLURM_ARRAY_TASK_MIN) / SLURM_ARRAY_TASK_STEP and \
+        N = SLURM_ARRAY_TASK_COUNT. Exits 0 when every case passed, 1 when a case failed a limit, 3 \
         when a case errored (3 wins), 2 when the study is invalid."
     )]
     Batch {
@@ -124,6 +127,10 @@ pub enum Command {
         /// Run only shard I of N (cases with index mod N = I-1).
         #[arg(long, value_name = "I/N")]
         shard: Option<Shard>,
+        /// Run the shard of this job-array task: I and N from SLURM_ARRAY_TASK_ID,
+        /// _MIN, _STEP and _COUNT (exit 2 when they are missing or inconsistent).
+        #[arg(long, conflicts_with = "shard")]
+        shard_from_env: bool,
         /// Which cases keep their waveform folder.
         #[arg(long, value_enum, default_value_t = Waveforms::Failed)]
         waveforms: Waveforms,

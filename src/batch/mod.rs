@@ -9,8 +9,9 @@
 //!   the folder of a passing case is deleted under `failed` (the default).
 //!
 //! `--shard I/N` runs the cases whose 0-based index k has k mod N = I − 1: round robin,
-//! so each shard gets a share of every corner and similar run time. Its tables cover
-//! its own cases; `merge` joins shard folders into the tables of the whole study.
+//! so each shard gets a share of every corner and similar run time; `--shard-from-env`
+//! takes I and N from a job array's task (see [`shard`]). Its tables cover its own
+//! cases; `merge` joins shard folders into the tables of the whole study.
 //!
 //! Exit status: 3 if any case errored (or, for merge, is missing), else 1 if any case
 //! failed a limit, else 0.
@@ -19,6 +20,7 @@ mod cases;
 mod path;
 mod record;
 mod runner;
+mod shard;
 mod study;
 mod table;
 mod value;
@@ -33,39 +35,8 @@ use cases::Case;
 use record::{CaseRecord, Status};
 use runner::Layout;
 pub use runner::Waveforms;
+pub use shard::{Shard, ShardSource};
 use table::StudyMeta;
-
-/// A slice of a study: shard `index` (1-based) of `count`.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub struct Shard {
-    /// 1-based shard number.
-    pub index: usize,
-    /// Number of shards.
-    pub count: usize,
-}
-
-impl std::str::FromStr for Shard {
-    type Err = String;
-
-    fn from_str(s: &str) -> Result<Self, String> {
-        let bad = || format!("{s:?} is not I/N with 1 <= I <= N, e.g. 2/8");
-        let (i, n) = s.split_once('/').ok_or_else(bad)?;
-        let (index, count) = (
-            i.trim().parse::<usize>().map_err(|_| bad())?,
-            n.trim().parse::<usize>().map_err(|_| bad())?,
-        );
-        if index == 0 || index > count {
-            return Err(bad());
-        }
-        Ok(Shard { index, count })
-    }
-}
-
-impl Shard {
-    fn contains(self, case_index: usize) -> bool {
-        case_index % self.count == self.index - 1
-    }
-}
 
 /// Options of `stepflux batch`.
 #[derive(Clone, Debug)]
@@ -78,8 +49,8 @@ pub struct BatchArgs {
     pub out: PathBuf,
     /// Reuse finished cases.
     pub resume: bool,
-    /// Run only this slice.
-    pub shard: Option<Shard>,
+    /// Which slice to run.
+    pub shard: ShardSource,
     /// Waveform policy.
     pub waveforms: Waveforms,
     /// Print the case plan as CSV and run nothing.
@@ -96,9 +67,10 @@ pub fn batch(args: &BatchArgs) -> Result<(), Failure> {
     let plan = cases::plan(&study)
         .context("expanding the study")
         .exit_with(Exit::BadInput)?;
+    let shard = resolve_shard(args.shard, args.quiet || args.list).exit_with(Exit::BadInput)?;
     let slice: Vec<Case> = plan
         .iter()
-        .filter(|c| args.shard.is_none_or(|s| s.contains(c.index)))
+        .filter(|c| shard.is_none_or(|s| s.contains(c.index)))
         .cloned()
         .collect();
     if args.list {
@@ -111,6 +83,23 @@ pub fn batch(args: &BatchArgs) -> Result<(), Failure> {
     };
     let records = run(&study, &slice, &layout, &meta, args).exit_with(Exit::SimulationFailed)?;
     outcome(&layout.dir, &records, &[], args.quiet)
+}
+
+/// The shard to run; one read from a job array's environment is named on stderr, so
+/// each task's log says which slice it ran.
+fn resolve_shard(source: ShardSource, quiet: bool) -> Result<Option<Shard>> {
+    match source {
+        ShardSource::Whole => Ok(None),
+        ShardSource::Given(s) => Ok(Some(s)),
+        ShardSource::ArrayEnv => {
+            let s = shard::from_array_env(|name| std::env::var(name).ok())
+                .context("--shard-from-env: the job-array variables are missing or inconsistent")?;
+            if !quiet {
+                eprintln!("job-array task: shard {s}");
+            }
+            Ok(Some(s))
+        }
+    }
 }
 
 fn meta(study: &study::Study, plan: &[Case]) -> StudyMeta {
