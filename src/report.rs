@@ -86,12 +86,15 @@ impl Summary {
 /// The verdicts a job's limits ask for, from the measured figures.
 pub fn verdicts(job: &Job, m: &[Figure]) -> Vec<Verdict> {
     let get = |n: &str| m.iter().find(|f| f.name == n).and_then(|f| f.value);
-    // Worst over every step of a kind: figures are named `<label>.<what>`.
+    // Worst over every step: figures are named `<label>.<what>`. A reference step is
+    // judged like the others, against the set point it moved to.
     let worst = |suffix: &str| -> Option<f64> {
         let values: Vec<f64> = m
             .iter()
             .filter(|f| {
-                (f.name.starts_with("load_step") || f.name.starts_with("line_step"))
+                ["load_step", "line_step", "reference_step"]
+                    .iter()
+                    .any(|p| f.name.starts_with(p))
                     && f.name.ends_with(suffix)
             })
             .map(|f| f.value.unwrap_or(f64::INFINITY))

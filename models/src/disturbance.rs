@@ -131,6 +131,22 @@ pub fn prepare(
     Ok((with, actions))
 }
 
+/// Instants, seconds, at which more than one action applies (a load-resistance step
+/// turns one branch off and another on; two events may share a time). The run applies
+/// such actions one after another, so what lies between them is no state the circuit
+/// passes through.
+pub fn shared_instants(actions: &[(f64, Action)]) -> Vec<f64> {
+    let mut times: Vec<f64> = actions.iter().map(|a| a.0).collect();
+    times.sort_by(f64::total_cmp);
+    let mut shared: Vec<f64> = times
+        .windows(2)
+        .filter(|w| w[0] == w[1])
+        .map(|w| w[0])
+        .collect();
+    shared.dedup();
+    shared
+}
+
 /// Value a source settles to (the last point of its waveform).
 fn source_final_value(conv: &Converter, id: stepflux_engine::ElementId) -> f64 {
     match &conv.circuit.element(id).kind {
