@@ -15,6 +15,7 @@ use stepflux_models::disturbance;
 use stepflux_models::gate::OpenLoopGate;
 use stepflux_models::measure::LossMeters;
 use stepflux_models::run::ConverterRun;
+use stepflux_models::runaway::{Runaway, RunawayGuard};
 use stepflux_models::template::Converter;
 use stepflux_models::ModelError;
 
@@ -116,21 +117,33 @@ impl Driver {
         }
     }
 
+    /// Clock period of the drive, seconds.
+    fn clock_period(&self) -> f64 {
+        match self {
+            Driver::Closed(c) => c.spec.clock_period(),
+            Driver::Open { gate, .. } => gate.period(),
+        }
+    }
+
+    /// Runs whole clock periods up to `t`, one at a time so the guard sees each.
     fn advance_to(
         &mut self,
         t: f64,
         sink: &mut dyn Sink,
-        cycles: &mut dyn CycleSink,
+        cycles: &mut Cycles<'_, '_>,
+        guard: &RunawayGuard,
     ) -> Result<(), ModelError> {
-        match self {
-            Driver::Closed(c) => c.advance_to(t, sink, cycles),
-            Driver::Open { run, gate } => {
-                let done = (run.sim.time() / gate.period()).round();
-                let target = (t / gate.period()).floor();
-                let periods = (target - done).max(0.0) as usize;
-                gate.run_periods(run, periods, sink, cycles)
+        let period = self.clock_period();
+        let mut done = (self.run_ref().sim.time() / period).round();
+        while (done + 1.0) * period <= t * (1.0 + 1e-12) {
+            done += 1.0;
+            match self {
+                Driver::Closed(c) => c.advance_to(done * period, sink, cycles)?,
+                Driver::Open { run, gate } => gate.run_periods(run, 1, sink, cycles)?,
             }
+            guard.check(self.run_ref(), cycles.count())?;
         }
+        Ok(())
     }
 
     /// Runs on to `stop` exactly, through the clock period it cuts.
@@ -138,13 +151,16 @@ impl Driver {
         &mut self,
         stop: f64,
         sink: &mut dyn Sink,
-        cycles: &mut dyn CycleSink,
+        cycles: &mut Cycles<'_, '_>,
+        guard: &RunawayGuard,
     ) -> Result<(), ModelError> {
-        self.advance_to(stop, sink, cycles)?;
+        self.advance_to(stop, sink, cycles, guard)?;
         match self {
-            Driver::Closed(c) => c.advance_to_end(stop, sink, cycles),
-            Driver::Open { run, gate } => gate.run_until(run, stop, sink, cycles),
+            Driver::Closed(c) => c.advance_to_end(stop, sink, cycles)?,
+            Driver::Open { run, gate } => gate.run_until(run, stop, sink, cycles)?,
         }
+        guard.check(self.run_ref(), cycles.count())?;
+        Ok(())
     }
 
     fn finish(&mut self, cycles: &mut dyn CycleSink) {
@@ -178,7 +194,15 @@ struct Samples<'s, 'a> {
     tolerance: f64,
     held: Option<(f64, Vec<f64>)>,
 }
-struct Cycles<'s, 'a>(&'s Shared<'a>);
+/// Cycle records to both sides, counted.
+struct Cycles<'s, 'a>(&'s Shared<'a>, usize);
+
+impl Cycles<'_, '_> {
+    /// Records closed so far: the index of the cycle under way.
+    fn count(&self) -> usize {
+        self.1
+    }
+}
 
 impl Samples<'_, '_> {
     fn forward(&mut self, time: f64, values: &[f64], at_event: bool) -> Result<(), String> {
@@ -235,6 +259,7 @@ impl Sink for Samples<'_, '_> {
 
 impl CycleSink for Cycles<'_, '_> {
     fn cycle(&mut self, record: &CycleRecord) {
+        self.1 += 1;
         self.0.measure.borrow_mut().cycle(record);
         if let Some(file) = self.0.file.borrow_mut().as_mut() {
             file.cycle(record);
@@ -305,7 +330,11 @@ pub fn run_job_with(
     plan.end_of_run(simulated);
     let measurements: Vec<Figure> = plan.figures().into_iter().map(Figure::from).collect();
     let verdicts = verdicts(job, &measurements);
-    let finished = outcome.is_ok() && file_result.is_ok();
+    let stopped = match &outcome {
+        Ok(Some(r)) => Some(r.to_string()),
+        _ => None,
+    };
+    let finished = outcome.is_ok() && file_result.is_ok() && stopped.is_none();
     let mut summary = Summary {
         scenario: job.name.clone(),
         tool: format!("stepflux {}", env!("CARGO_PKG_VERSION")),
@@ -316,6 +345,7 @@ pub fn run_job_with(
         passed: finished && plan.reset_passed() && verdicts.iter().all(|v| v.pass),
         measurements,
         verdicts,
+        stopped,
         error: None,
         caution: CAUTION,
     };
@@ -352,7 +382,7 @@ fn simulate(
     instants: Vec<f64>,
     shared: &Shared<'_>,
     progress: &(dyn Fn(f64) + Sync),
-) -> Result<()> {
+) -> Result<Option<Runaway>> {
     let stop = job.analysis.stop_time;
     let window = shared.measure.borrow().window;
     let mut samples = Samples {
@@ -362,10 +392,10 @@ fn simulate(
         tolerance: 1e-10 * crate::measurements::period(job),
         held: None,
     };
-    let mut cycles = Cycles(shared);
+    let mut cycles = Cycles(shared, 0);
+    let guard = RunawayGuard::new(&job.design.transformer);
     // Slice ends: evenly spaced for progress, plus the steady window's ends where the
-    // energy meters are read.
-    // The last slice ends at `stop` itself: stop·k/SLICES can round one ulp above
+    // energy meters are read. The last slice ends at `stop` itself: stop·k/SLICES can round one ulp above
     // stop, and a slice past the stop time used to be dropped, ending the run at the
     // last whole period before the one-but-last slice end (6.960 ms of 7 ms).
     let mut ends: Vec<(f64, Option<bool>)> = (1..SLICES)
@@ -376,15 +406,24 @@ fn simulate(
     ends.push((window.1, Some(true)));
     ends.retain(|(t, _)| *t <= stop);
     ends.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let mut runaway = None;
     for (t, snapshot) in ends {
         let reached = if t < stop {
-            driver.advance_to(t, &mut samples, &mut cycles)
+            driver.advance_to(t, &mut samples, &mut cycles, &guard)
         } else {
-            driver.advance_to_end(stop, &mut samples, &mut cycles)
+            driver.advance_to_end(stop, &mut samples, &mut cycles, &guard)
         };
-        reached
-            .map_err(|e| anyhow::anyhow!(e))
-            .with_context(|| format!("simulating '{}'", job.name))?;
+        match reached {
+            Ok(()) => {}
+            Err(ModelError::Runaway(r)) => {
+                runaway = Some(r);
+                break;
+            }
+            Err(e) => {
+                return Err(anyhow::anyhow!(e))
+                    .with_context(|| format!("simulating '{}'", job.name))
+            }
+        }
         if let Some(end) = snapshot {
             shared
                 .measure
@@ -399,7 +438,7 @@ fn simulate(
         .map_err(|e| anyhow::anyhow!(e))
         .context("writing the last sample")?;
     driver.finish(&mut cycles);
-    Ok(())
+    Ok(runaway)
 }
 
 fn switchable_names(run: &ConverterRun) -> Vec<String> {

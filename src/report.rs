@@ -62,6 +62,9 @@ pub struct Summary {
     pub verdicts: Vec<Verdict>,
     /// True when every verdict passes, the core-reset check passes and the run finished.
     pub passed: bool,
+    /// Why the design stopped the run before its stop time, if it did (a core that
+    /// ran away past its saturation knee): a design failure, not an error.
+    pub stopped: Option<String>,
     /// Why the run stopped early, if it did.
     pub error: Option<String>,
     /// The usual caution.

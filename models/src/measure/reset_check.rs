@@ -157,6 +157,8 @@ pub struct ResetCheck {
     latest: Option<(CycleCheck, CycleCheck)>,
     /// When the run ended, seconds, once told.
     run_end: Option<f64>,
+    /// The first cycle whose peak flux density passed Bsat: (index, start s, B_peak T).
+    bsat_crossed: Option<(usize, f64, f64)>,
 }
 
 fn reset_diode_rating(design: &ForwardDesign) -> Option<f64> {
@@ -214,6 +216,7 @@ impl ResetCheck {
             },
             latest: None,
             run_end: None,
+            bsat_crossed: None,
         })
     }
 
@@ -221,6 +224,12 @@ impl ResetCheck {
     /// not judged on a reset it had no time to finish.
     pub fn end_of_run(&mut self, time: f64) {
         self.run_end = Some(time);
+    }
+
+    /// The first cycle whose peak flux density passed Bsat: (index, start in seconds,
+    /// peak in tesla).
+    pub fn bsat_crossed(&self) -> Option<(usize, f64, f64)> {
+        self.bsat_crossed
     }
 
     /// Whether the latest cycle was cut short by the run's end.
@@ -300,6 +309,9 @@ impl Measurement for ResetCheck {
     }
 
     fn cycle(&mut self, r: &CycleRecord) {
+        if r.b_peak > self.bsat && self.bsat_crossed.is_none() {
+            self.bsat_crossed = Some((r.index, r.start, r.b_peak));
+        }
         let judged = (self.judge(r, false), self.judge(r, true));
         self.peaks = [f64::NEG_INFINITY; WATCHED];
         if let Some((full, _)) = self.latest.replace(judged) {
@@ -319,6 +331,15 @@ impl Measurement for ResetCheck {
                 "1",
             ),
         ];
+        if let Some((index, start, b)) = self.bsat_crossed {
+            f.push(Figure::new(
+                "reset_check.bsat_crossed.cycle",
+                index as f64,
+                "1",
+            ));
+            f.push(Figure::new("reset_check.bsat_crossed.time", start, "s"));
+            f.push(Figure::new("reset_check.bsat_crossed.b_peak", b, "T"));
+        }
         if let Some(c) = &v.first_failure {
             f.extend(cycle_figures("reset_check.first_failure", c));
         }
