@@ -4,7 +4,7 @@
 //! and the paper figures already say the design fails: the run shows how) and warnings
 //! (it runs, but look).
 
-use stepflux_engine::Layout;
+use stepflux_engine::{Layout, SimOptions, TimeGrid};
 use stepflux_models::controller::OutputMode;
 use stepflux_models::disturbance::{prepare, Disturbance};
 use stepflux_models::figures::{DesignFigures, DesignPoint};
@@ -24,6 +24,9 @@ const RIPPLE_WARN: f64 = 0.5;
 /// Switch voltage above this fraction of its rating is flagged: the usual derating
 /// for ringing and spikes the steady figure does not include (common practice).
 const RATING_WARN: f64 = 0.8;
+/// A sample interval rounded to the time grid by more than this fraction is flagged:
+/// the rounding then shows in the sixth significant figure of the sample times.
+const GRID_WARN: f64 = 1e-6;
 /// Sample counts above this per signal are flagged: tens of megabytes per waveform.
 const SAMPLES_WARN: f64 = 1e7;
 
@@ -88,6 +91,19 @@ pub fn check_build(ctx: &Ctx, job: &Job, built: &Built) -> Result<(), ScenarioEr
         }
     }
     Ok(())
+}
+
+/// The sample interval as the run will keep it, on its integer time grid (the run's
+/// options are those of the drive's clock period), and the grid's tick, seconds.
+pub fn sample_interval_on_grid(job: &Job) -> Option<(f64, f64)> {
+    let period = match &job.drive {
+        Drive::Controller(c) => c.clock_period(),
+        Drive::OpenLoop(g) => g.period(),
+    };
+    let o = SimOptions::for_period(period);
+    let grid = TimeGrid::new(o.max_step, o.event_resolution).ok()?;
+    let ticks = grid.tick(job.analysis.sample_interval).max(1);
+    Some((grid.time(ticks), grid.quantum))
 }
 
 /// Where the figures are evaluated for `job`.
@@ -342,6 +358,19 @@ fn timing_warnings(job: &Job, warn: &mut dyn FnMut(&str, String)) {
                     "at {} s, not before stop_time {} s: it never happens",
                     e.time(),
                     a.stop_time
+                ),
+            );
+        }
+    }
+    if let Some((actual, tick)) = sample_interval_on_grid(job) {
+        let off = (actual - a.sample_interval).abs();
+        if off > GRID_WARN * a.sample_interval {
+            warn(
+                "analysis.sample_interval",
+                format!(
+                    "{:e} s is not on the run's time grid (tick {tick:.4e} s): samples come \
+                     every {actual:e} s instead",
+                    a.sample_interval
                 ),
             );
         }

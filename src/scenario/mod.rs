@@ -23,7 +23,7 @@ use std::path::Path;
 use stepflux_models::figures::DesignFigures;
 
 pub use error::{ScenarioError, Warning};
-pub use feasibility::design_point;
+pub use feasibility::{design_point, sample_interval_on_grid};
 
 use crate::job::Job;
 use validate::Ctx;
