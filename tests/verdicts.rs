@@ -244,3 +244,22 @@ fn the_controller_drives_an_active_clamp_in_single_ended_mode() {
     );
     assert!(summary(&run)["error"].is_null());
 }
+
+#[test]
+fn check_names_the_sample_interval_the_time_grid_keeps() {
+    // The run's grid for a 150 kHz clock: a tick of (T/4)/2^L with L the least making
+    // it at most 1 ps (`SimOptions::for_period`, `TimeGrid::new`). 1/(6 MHz) is
+    // 209715.2 ticks, so the run keeps 209715 of them.
+    let quarter: f64 = 1.0 / 150e3 / 4.0;
+    let tick = quarter / 2f64.powi((quarter / 1e-12).log2().ceil() as i32);
+    let kept = (1.0 / 6e6 / tick).round() * tick;
+    let mut s: Value = serde_json::from_str(STARTUP).expect("demo-startup parses");
+    s["analysis"]["sample_interval"] = json!(1.0 / 6e6);
+    let (out, _) = stepflux("check", "grid", s);
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
+    assert!(
+        text.contains(&format!("{kept:.10e} s on the time grid")),
+        "{kept:e}: {text}"
+    );
+}
