@@ -420,8 +420,10 @@ fn simulate(
                 break;
             }
             Err(e) => {
+                // Keep what was simulated: a held sample is a real state.
+                let _ = samples.flush();
                 return Err(anyhow::anyhow!(e))
-                    .with_context(|| format!("simulating '{}'", job.name))
+                    .with_context(|| format!("simulating '{}'", job.name));
             }
         }
         if let Some(end) = snapshot {
