@@ -9,10 +9,12 @@ use stepflux_models::figures::{DesignFigures, DesignPoint};
 
 use crate::exit::{Exit, ExitWith, Failure};
 use crate::job::Drive;
-use crate::scenario::{self, design_point, Loaded};
+use crate::scenario::{self, design_point, sample_interval_on_grid, Loaded};
 
-/// Validates the scenario at `path` and prints its figures and warnings to stdout,
-/// as text or as one JSON object.
+/// Validates the scenario at `path` and prints its figures, design failures and
+/// warnings to stdout, as text or as one JSON object. A design that fails by its own
+/// figures is a valid scenario with a failing answer: exit 1, like a run that fails a
+/// limit, while the report is still printed.
 pub fn check(path: &Path, as_json: bool) -> Result<(), Failure> {
     let loaded = scenario::load(path)
         .context("scenario is not valid")
@@ -25,7 +27,18 @@ pub fn check(path: &Path, as_json: bool) -> Result<(), Failure> {
     } else {
         print!("{}", report_text(&loaded));
     }
-    Ok(())
+    if loaded.failures.is_empty() {
+        return Ok(());
+    }
+    Err(Failure {
+        exit: Exit::SpecFailed,
+        error: anyhow::anyhow!(
+            "{}: the design fails by its paper figures ({} finding(s)); `stepflux run` \
+             simulates it and shows how",
+            path.display(),
+            loaded.failures.len()
+        ),
+    })
 }
 
 /// Prints the JSON Schema of the scenario format.
@@ -78,7 +91,14 @@ pub fn report_json(l: &Loaded) -> serde_json::Value {
             "drain_stress_v": f.drain_stress,
             "switch_voltage_rating_v": l.job.design.switch.voltage_rating,
         },
+        "sample_interval_s": {
+            "requested": l.job.analysis.sample_interval,
+            "on_time_grid": sample_interval_on_grid(&l.job).map(|g| g.0),
+            "tick": sample_interval_on_grid(&l.job).map(|g| g.1),
+        },
         "signals": l.probes,
+        "design_passes": l.failures.is_empty(),
+        "design_failures": l.failures.iter().map(|w| json!({"field": w.field, "message": w.message})).collect::<Vec<_>>(),
         "warnings": l.warnings.iter().map(|w| json!({"field": w.field, "message": w.message})).collect::<Vec<_>>(),
     })
 }
@@ -96,7 +116,29 @@ pub fn report_text(l: &Loaded) -> String {
     for (label, value) in figure_lines(&l.figures, &p, d) {
         out.push_str(&format!("  {label:<44} {value}\n"));
     }
+    let requested = l.job.analysis.sample_interval;
+    if let Some((actual, tick)) = sample_interval_on_grid(&l.job) {
+        // The grid's tick is a few picoseconds, so only ten figures show the rounding.
+        let value = match actual == requested {
+            true => format!("{requested:e} s, on the time grid"),
+            false => format!(
+                "{requested:e} s requested, {actual:.10e} s on the time grid (tick {tick:.4e} s)"
+            ),
+        };
+        out.push_str(&format!("  {:<44} {value}\n", "sample interval"));
+    }
     out.push_str(&format!("  signals: {}\n", l.probes.join(", ")));
+    if l.failures.is_empty() {
+        out.push_str("design: PASS by its paper figures\n");
+    } else {
+        out.push_str(&format!(
+            "design: FAIL ({} finding(s)):\n",
+            l.failures.len()
+        ));
+        for w in &l.failures {
+            out.push_str(&format!("  fails: {w}\n"));
+        }
+    }
     if l.warnings.is_empty() {
         out.push_str("no warnings\n");
     } else {

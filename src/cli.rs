@@ -33,8 +33,10 @@ pub enum Command {
     #[command(
         after_help = "Example:\n  stepflux check scenarios/demo-startup.json\n  \
         stepflux check --json scenarios/rcd-clamp.json > figures.json\n\n\
-        Exits 0 when the scenario can run (warnings included), 2 when it cannot, with the \
-        file position or field path of the problem on stderr."
+        Exits 0 when the scenario can run and its design passes by its paper figures \
+        (warnings included), 1 when it can run but the figures say the design fails (duty \
+        beyond the reset limit, drain stress above a rating: `run` shows how), 2 when it \
+        cannot run, with the file position or field path of the problem on stderr."
     )]
     Check {
         /// Scenario file (JSON; see `stepflux schema`).

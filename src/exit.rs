@@ -10,9 +10,8 @@ use std::process::ExitCode;
 pub enum Exit {
     /// Run completed and every checked limit held.
     Ok = 0,
-    /// Run completed but at least one specification limit was violated.
-    // Not produced yet: measurements against limits arrive with the models.
-    #[allow(dead_code)]
+    /// Run completed but at least one specification limit was violated, or `check`
+    /// found the design failing by its paper figures (it can still be run).
     SpecFailed = 1,
     /// Arguments, scenario or output location were unusable. Clap's own
     /// usage errors also exit with 2, which is why this value was chosen.

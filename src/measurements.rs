@@ -2,7 +2,9 @@
 //! disturbances into windows for the streaming measurements of `models::measure`.
 //!
 //! - start-up: from 0 to the first disturbance (closed loop only: it needs a set point);
-//! - one step response per load or line step, until the next disturbance or the end;
+//! - one step response per load, line or reference step, until the next disturbance
+//!   or the end, each against the set point in force after it (a reference step moves
+//!   it: see [`StepResponse::set_point_change`]);
 //! - ripple of `out.v` and `lout.i`, and the exact energy balance (efficiency, loss
 //!   breakdown), over a steady window: the last [`STEADY_PERIODS`] periods before the
 //!   first disturbance, or before the end;
@@ -53,6 +55,57 @@ pub fn period(job: &Job) -> f64 {
     }
 }
 
+/// One step response per disturbance before the stop time, each against the set point
+/// in force after it: a reference step to `to` volts scales the set point by
+/// `to`/reference (the divider, or the isolated feedback's gain, is unchanged).
+fn step_responses(
+    job: &Job,
+    c: &stepflux_models::controller::ControllerSpec,
+    probes: &[Probe],
+    times: &[f64],
+    band: f64,
+) -> Result<Vec<StepResponse>, ModelError> {
+    let stop = job.analysis.stop_time;
+    let mut order: Vec<(usize, &Disturbance)> = job.disturbances.iter().enumerate().collect();
+    order.sort_by(|a, b| a.1.time().total_cmp(&b.1.time()));
+    let mut sp = c.voltage_loop.set_point();
+    let mut steps = Vec::new();
+    for (k, d) in order {
+        let at = d.time();
+        if at >= stop {
+            continue;
+        }
+        let until = times.iter().copied().find(|&t| t > at).unwrap_or(stop);
+        let mut settings = StepSettings {
+            label: String::new(),
+            step_time: at,
+            set_point: sp,
+            band,
+            duty_window: (0.25 * (until - at)).min(STEADY_PERIODS * period(job)),
+            settle_from: until - 0.2 * (until - at),
+            until,
+        };
+        steps.push(match d {
+            Disturbance::LoadCurrent { .. } | Disturbance::LoadResistance { .. } => {
+                settings.label = format!("load_step{k}");
+                StepResponse::new(probes, settings)?
+            }
+            Disturbance::Line { .. } => {
+                settings.label = format!("line_step{k}");
+                StepResponse::new(probes, settings)?
+            }
+            Disturbance::Reference { to, .. } => {
+                let from = sp;
+                sp = c.voltage_loop.set_point() * to / c.voltage_loop.reference;
+                settings.label = format!("reference_step{k}");
+                settings.set_point = sp;
+                StepResponse::set_point_change(probes, settings, from)?
+            }
+        });
+    }
+    Ok(steps)
+}
+
 fn set_point(job: &Job) -> Option<f64> {
     match &job.drive {
         Drive::Controller(c) => Some(c.voltage_loop.set_point()),
@@ -88,38 +141,25 @@ impl Plan {
             Some(sp) => Some(StartUp::new(probes, sp, DIP_ALLOWANCE * sp, 0.0, first)?),
             None => None,
         };
-        let mut steps = Vec::new();
-        if let Some(sp) = set_point(job) {
-            for (k, d) in job.disturbances.iter().enumerate() {
-                let label = match d {
-                    Disturbance::LoadCurrent { .. } | Disturbance::LoadResistance { .. } => {
-                        format!("load_step{k}")
-                    }
-                    Disturbance::Line { .. } => format!("line_step{k}"),
-                    Disturbance::Reference { .. } => continue,
-                };
-                let at = d.time();
-                let until = times.iter().copied().find(|&t| t > at).unwrap_or(stop);
-                let settings = StepSettings {
-                    label,
-                    step_time: at,
-                    set_point: sp,
-                    band,
-                    duty_window: (0.25 * (until - at)).min(STEADY_PERIODS * period(job)),
-                    settle_from: until - 0.2 * (until - at),
-                    until,
-                };
-                steps.push(StepResponse::new(probes, settings)?);
-            }
-        }
+        let steps = match &job.drive {
+            Drive::Controller(c) => step_responses(job, c, probes, &times, band)?,
+            Drive::OpenLoop(_) => Vec::new(),
+        };
+        // Samples at the first disturbance's own instant show the state after its
+        // actions (a new load's current through the ESR): the ripple window stops a
+        // millionth of a period short of it.
+        let sample_end = match first < stop {
+            true => window.1 - 1e-6 * period(job),
+            false => window.1,
+        };
         let ripple = ["out.v", "lout.i"]
             .iter()
-            .map(|p| Ripple::new(probes, p, window.0, window.1))
+            .map(|p| Ripple::new(probes, p, window.0, sample_end))
             .collect::<Result<_, _>>()?;
         let coss = CossTurnOn::new(
             losses.as_ref().map_or(0.0, LossMeters::main_switch_coss),
             window.0,
-            window.1,
+            sample_end,
         );
         Ok(Plan {
             startup,
@@ -193,6 +233,11 @@ impl Plan {
         for m in self.parts() {
             m.cycle(record);
         }
+    }
+
+    /// The run ended at `time` seconds (its last cycle may be cut short there).
+    pub fn end_of_run(&mut self, time: f64) {
+        self.reset.end_of_run(time);
     }
 
     /// Whether the core-reset check passed every cycle.

@@ -15,6 +15,7 @@ use stepflux_models::disturbance;
 use stepflux_models::gate::OpenLoopGate;
 use stepflux_models::measure::LossMeters;
 use stepflux_models::run::ConverterRun;
+use stepflux_models::runaway::{Runaway, RunawayGuard};
 use stepflux_models::template::Converter;
 use stepflux_models::ModelError;
 
@@ -46,8 +47,8 @@ enum Driver {
 }
 
 impl Driver {
-    /// The driver and the loss meters it carries (built on the converter as
-    /// simulated, controller and load-step branches included).
+    /// The driver and the loss meters it carries (built on the converter as simulated,
+    /// controller and load-step branches included).
     fn new(job: &Job) -> Result<(Self, LossMeters), ModelError> {
         let options = |period: f64| SimOptions {
             sample_interval: Some(job.analysis.sample_interval),
@@ -63,13 +64,9 @@ impl Driver {
                     losses = Some(l);
                     Ok(m)
                 };
-                Driver::Closed(Box::new(ClosedLoop::with_meters(
-                    &job.design,
-                    spec,
-                    &job.disturbances,
-                    options,
-                    meters,
-                )?))
+                let cl =
+                    ClosedLoop::with_meters(&job.design, spec, &job.disturbances, options, meters)?;
+                Driver::Closed(Box::new(cl))
             }
             Drive::OpenLoop(gate) => {
                 let conv = job.design.build()?;
@@ -111,21 +108,50 @@ impl Driver {
         }
     }
 
+    /// Clock period of the drive, seconds.
+    fn clock_period(&self) -> f64 {
+        match self {
+            Driver::Closed(c) => c.spec.clock_period(),
+            Driver::Open { gate, .. } => gate.period(),
+        }
+    }
+
+    /// Runs whole clock periods up to `t`, one at a time so the guard sees each.
     fn advance_to(
         &mut self,
         t: f64,
         sink: &mut dyn Sink,
-        cycles: &mut dyn CycleSink,
+        cycles: &mut Cycles<'_, '_>,
+        guard: &RunawayGuard,
     ) -> Result<(), ModelError> {
-        match self {
-            Driver::Closed(c) => c.advance_to(t, sink, cycles),
-            Driver::Open { run, gate } => {
-                let done = (run.sim.time() / gate.period()).round();
-                let target = (t / gate.period()).floor();
-                let periods = (target - done).max(0.0) as usize;
-                gate.run_periods(run, periods, sink, cycles)
+        let period = self.clock_period();
+        let mut done = (self.run_ref().sim.time() / period).round();
+        while (done + 1.0) * period <= t * (1.0 + 1e-12) {
+            done += 1.0;
+            match self {
+                Driver::Closed(c) => c.advance_to(done * period, sink, cycles)?,
+                Driver::Open { run, gate } => gate.run_periods(run, 1, sink, cycles)?,
             }
+            guard.check(self.run_ref(), cycles.count())?;
         }
+        Ok(())
+    }
+
+    /// Runs on to `stop` exactly, through the clock period it cuts.
+    fn advance_to_end(
+        &mut self,
+        stop: f64,
+        sink: &mut dyn Sink,
+        cycles: &mut Cycles<'_, '_>,
+        guard: &RunawayGuard,
+    ) -> Result<(), ModelError> {
+        self.advance_to(stop, sink, cycles, guard)?;
+        match self {
+            Driver::Closed(c) => c.advance_to_end(stop, sink, cycles)?,
+            Driver::Open { run, gate } => gate.run_until(run, stop, sink, cycles)?,
+        }
+        guard.check(self.run_ref(), cycles.count())?;
+        Ok(())
     }
 
     fn finish(&mut self, cycles: &mut dyn CycleSink) {
@@ -142,28 +168,27 @@ struct Shared<'a> {
     measure: RefCell<&'a mut Plan>,
 }
 
-struct Samples<'s, 'a>(&'s Shared<'a>);
-struct Cycles<'s, 'a>(&'s Shared<'a>);
+/// Output samples go to the file; the measurements are fed the trace of the exact
+/// solution, so no figure depends on the sample interval or on what is written.
+struct Samples<'s, 'a> {
+    shared: &'s Shared<'a>,
+}
+/// Cycle records to both sides, counted.
+struct Cycles<'s, 'a>(&'s Shared<'a>, usize);
+
+impl Cycles<'_, '_> {
+    /// Records closed so far: the index of the cycle under way.
+    fn count(&self) -> usize {
+        self.1
+    }
+}
 
 impl Sink for Samples<'_, '_> {
     fn sample(&mut self, time: f64, values: &[f64], at_event: bool) -> Result<(), String> {
-        match self.0.file.borrow_mut().as_mut() {
+        match self.shared.file.borrow_mut().as_mut() {
             Some(file) => file.sample(time, values, at_event),
             None => Ok(()),
         }
-    }
-
-    fn listens(&self) -> bool {
-        self.0.file.borrow().is_some()
-    }
-
-    fn trace(&mut self, point: &TracePoint<'_>) -> Result<(), String> {
-        self.0.measure.borrow_mut().trace(point);
-        Ok(())
-    }
-
-    fn traces(&self) -> bool {
-        true
     }
 
     fn topology_change(
@@ -172,15 +197,29 @@ impl Sink for Samples<'_, '_> {
         before: Topology,
         after: Topology,
     ) -> Result<(), String> {
-        match self.0.file.borrow_mut().as_mut() {
+        match self.shared.file.borrow_mut().as_mut() {
             Some(file) => file.topology_change(time, before, after),
             None => Ok(()),
         }
+    }
+
+    fn listens(&self) -> bool {
+        self.shared.file.borrow().is_some()
+    }
+
+    fn trace(&mut self, point: &TracePoint<'_>) -> Result<(), String> {
+        self.shared.measure.borrow_mut().trace(point);
+        Ok(())
+    }
+
+    fn traces(&self) -> bool {
+        true
     }
 }
 
 impl CycleSink for Cycles<'_, '_> {
     fn cycle(&mut self, record: &CycleRecord) {
+        self.1 += 1;
         self.0.measure.borrow_mut().cycle(record);
         if let Some(file) = self.0.file.borrow_mut().as_mut() {
             file.cycle(record);
@@ -253,9 +292,14 @@ pub fn run_job_with(
     let samples = file.as_ref().map_or(0, |f| f.samples());
     let file_result = file.map_or(Ok(()), |f| f.finish());
     let simulated = driver.run_ref().sim.time();
+    plan.end_of_run(simulated);
     let measurements: Vec<Figure> = plan.figures().into_iter().map(Figure::from).collect();
     let verdicts = verdicts(job, &measurements);
-    let finished = outcome.is_ok() && file_result.is_ok();
+    let stopped = match &outcome {
+        Ok(Some(r)) => Some(r.to_string()),
+        _ => None,
+    };
+    let finished = outcome.is_ok() && file_result.is_ok() && stopped.is_none();
     let mut summary = Summary {
         scenario: job.name.clone(),
         tool: format!("stepflux {}", env!("CARGO_PKG_VERSION")),
@@ -266,6 +310,7 @@ pub fn run_job_with(
         passed: finished && plan.reset_passed() && verdicts.iter().all(|v| v.pass),
         measurements,
         verdicts,
+        stopped,
         error: None,
         caution: CAUTION,
     };
@@ -301,26 +346,43 @@ fn simulate(
     driver: &mut Driver,
     shared: &Shared<'_>,
     progress: &(dyn Fn(f64) + Sync),
-) -> Result<()> {
+) -> Result<Option<Runaway>> {
     let stop = job.analysis.stop_time;
     let window = shared.measure.borrow().window;
-    let (mut samples, mut cycles) = (Samples(shared), Cycles(shared));
+    let mut samples = Samples { shared };
+    let mut cycles = Cycles(shared, 0);
+    let guard = RunawayGuard::new(&job.design.transformer);
     // Slice ends: evenly spaced for progress, plus the steady window's ends where the
-    // energy meters are read.
-    let mut ends: Vec<(f64, Option<bool>)> = (1..=SLICES)
-        .map(|k| (stop * k as f64 / SLICES as f64, None))
+    // energy meters are read. The last slice ends at `stop` itself: stop·k/SLICES can
+    // round one ulp above stop, and a slice past the stop time used to be dropped,
+    // ending the run at the last whole period before the one-but-last slice end
+    // (6.960 ms of 7 ms).
+    let mut ends: Vec<(f64, Option<bool>)> = (1..SLICES)
+        .map(|k| ((stop * k as f64 / SLICES as f64).min(stop), None))
         .collect();
+    ends.push((stop, None));
     ends.push((window.0, Some(false)));
     ends.push((window.1, Some(true)));
+    ends.retain(|(t, _)| *t <= stop);
     ends.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let mut runaway = None;
     for (t, snapshot) in ends {
-        if t > stop {
-            continue;
+        let reached = if t < stop {
+            driver.advance_to(t, &mut samples, &mut cycles, &guard)
+        } else {
+            driver.advance_to_end(stop, &mut samples, &mut cycles, &guard)
+        };
+        match reached {
+            Ok(()) => {}
+            Err(ModelError::Runaway(r)) => {
+                runaway = Some(r);
+                break;
+            }
+            Err(e) => {
+                return Err(anyhow::anyhow!(e))
+                    .with_context(|| format!("simulating '{}'", job.name));
+            }
         }
-        driver
-            .advance_to(t, &mut samples, &mut cycles)
-            .map_err(|e| anyhow::anyhow!(e))
-            .with_context(|| format!("simulating '{}'", job.name))?;
         if let Some(end) = snapshot {
             shared
                 .measure
@@ -331,7 +393,7 @@ fn simulate(
         progress(t / stop);
     }
     driver.finish(&mut cycles);
-    Ok(())
+    Ok(runaway)
 }
 
 fn switchable_names(run: &ConverterRun) -> Vec<String> {

@@ -8,7 +8,7 @@ use crate::pipeline::RunOutput;
 use crate::report::Summary;
 
 /// Figures printed by name; step figures are matched by suffix.
-const KEYS: [&str; 14] = [
+const KEYS: [&str; 19] = [
     "startup.t90",
     "startup.overshoot_pct",
     "startup.max_duty",
@@ -23,6 +23,11 @@ const KEYS: [&str; 14] = [
     "reset_check.worst.reset_margin_pct",
     "reset_check.worst.flux_margin_pct",
     "reset_check.worst.drain_peak",
+    "reset_check.first_failure.cycle",
+    "reset_check.first_failure.time",
+    "reset_check.first_failure.mag_current_start",
+    "reset_check.bsat_crossed.cycle",
+    "reset_check.bsat_crossed.time",
 ];
 
 fn is_key(name: &str) -> bool {
@@ -60,6 +65,9 @@ pub fn run_summary(output: &RunOutput) {
             "  [{mark}] {} = {value} ({} {})",
             v.limit, v.kind, v.bound
         );
+    }
+    if let Some(why) = &s.stopped {
+        let _ = writeln!(out, "  design failure: {why}");
     }
     if let Some(e) = &s.error {
         let _ = writeln!(out, "  error: {e}");

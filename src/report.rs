@@ -62,6 +62,9 @@ pub struct Summary {
     pub verdicts: Vec<Verdict>,
     /// True when every verdict passes, the core-reset check passes and the run finished.
     pub passed: bool,
+    /// Why the design stopped the run before its stop time, if it did (a core that
+    /// ran away past its saturation knee): a design failure, not an error.
+    pub stopped: Option<String>,
     /// Why the run stopped early, if it did.
     pub error: Option<String>,
     /// The usual caution.
@@ -86,12 +89,15 @@ impl Summary {
 /// The verdicts a job's limits ask for, from the measured figures.
 pub fn verdicts(job: &Job, m: &[Figure]) -> Vec<Verdict> {
     let get = |n: &str| m.iter().find(|f| f.name == n).and_then(|f| f.value);
-    // Worst over every step of a kind: figures are named `<label>.<what>`.
+    // Worst over every step: figures are named `<label>.<what>`. A reference step is
+    // judged like the others, against the set point it moved to.
     let worst = |suffix: &str| -> Option<f64> {
         let values: Vec<f64> = m
             .iter()
             .filter(|f| {
-                (f.name.starts_with("load_step") || f.name.starts_with("line_step"))
+                ["load_step", "line_step", "reference_step"]
+                    .iter()
+                    .any(|p| f.name.starts_with(p))
                     && f.name.ends_with(suffix)
             })
             .map(|f| f.value.unwrap_or(f64::INFINITY))

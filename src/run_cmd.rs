@@ -113,6 +113,12 @@ fn one(path: &Path, out: &Path, bars: &MultiProgress) -> Outcome {
         Ok(l) => l,
         Err(e) => return Outcome::BadInput(e.to_string()),
     };
+    for w in &loaded.failures {
+        let _ = bars.println(format!(
+            "design fails: {}: {w} (simulating it to show how)",
+            path.display()
+        ));
+    }
     for w in &loaded.warnings {
         let _ = bars.println(format!("warning: {}: {w}", path.display()));
     }

@@ -11,7 +11,8 @@
 //!
 //! Prefixes are case-sensitive: p n u µ m k M G (`m` milli, `M` mega). Rates take a
 //! prefix on either side: `"1 A/us"` = 1e6 A/s. An area prefix applies to the metre
-//! before squaring, as the symbol reads: `"40 mm2"` = 40e-6 m².
+//! before squaring, as the symbol reads: `"40 mm2"` = 40e-6 m²; areas also take c
+//! (centi), as core data quote them: `"0.4 cm2"` = `"0.4 cm²"` = 40e-6 m².
 
 use std::borrow::Cow;
 use std::fmt;
@@ -358,8 +359,14 @@ fn own_exponent(suffix: &str, unit: Unit) -> Option<i32> {
         return Some(0);
     }
     let mut chars = suffix.chars();
-    let p = prefix(chars.next()?)?;
+    let first = chars.next()?;
     let rest = chars.as_str();
+    // Centi is used with areas only (core areas are quoted in cm²), and only with the
+    // symbol: a lone "c" is no prefix anywhere else.
+    let p = match first {
+        'c' if unit == Unit::SquareMetre && !rest.is_empty() => -2,
+        _ => prefix(first)?,
+    };
     if rest.is_empty() {
         // A lone prefix, the unit left implicit as in "220u".
         Some(p)
@@ -412,6 +419,7 @@ fn pattern_for(unit: Unit) -> String {
     let escape = |s: &str| s.replace('/', "\\/");
     let units = match unit.rate_of() {
         Some(top) => format!("[pnuµμmkMG]?{top}\\/[pnuµμm]?s"),
+        None if unit == Unit::SquareMetre => "([pnuµμmkMG]|[pnuµμmkMGc](m2|m²))?".to_string(),
         None => {
             let list: Vec<String> = unit.symbols().iter().map(|s| escape(s)).collect();
             format!("[pnuµμmkMG]?({})?", list.join("|"))

@@ -89,6 +89,10 @@ fn area_prefix_is_squared_with_the_metre() {
     ok("40 mm2", Unit::SquareMetre, 40e-6);
     ok("40 mm²", Unit::SquareMetre, 40e-6);
     ok("4e-5 m2", Unit::SquareMetre, 4e-5);
+    ok("0.4 m2", Unit::SquareMetre, 0.4);
+    // Core areas are quoted in cm² (common practice): 1 cm² = 1e-4 m².
+    ok("0.4 cm2", Unit::SquareMetre, 40e-6);
+    ok("0.4 cm²", Unit::SquareMetre, 40e-6);
     // No unit symbol: the prefix is a plain multiplier.
     ok("40 u", Unit::SquareMetre, 40e-6);
 }

@@ -137,22 +137,23 @@ fn cases() -> Vec<Case> {
             edit(|v| v["save"] = json!(["out.v", "vout"])),
             &["save[1]: unknown signal \"vout\"; this converter has: in.v, in.i, out.v"],
         ),
+        // A duty above the reset limit and a drain stress above a rating used to be
+        // refused here; they are designs that fail, simulated and shown failing
+        // (tests/verdicts.rs, check exits 1).
         case(
-            "open_loop_duty_above_reset_limit",
-            edit(|v| v["drive"] = json!({ "open_loop": { "frequency": "150 kHz", "duty": 0.6 } })),
-            // Erickson & Maksimović §6.3.2: D ≤ 1/(1 + Nr/Np) = 0.5 for Nr = Np.
-            &["drive.open_loop.duty: infeasible: duty 0.6 is above the reset-winding reset limit 0.5000"],
+            "switch_r_off_not_above_r_on",
+            edit(|v| v["converter"]["switch"]["r_off"] = json!("10 mΩ")),
+            &["converter.switch.r_off = 0.01 is not allowed; expected a value above r_on = 0.05 Ω"],
         ),
         case(
-            "max_duty_above_reset_limit",
-            edit(|v| v["drive"]["controller"]["max_duty"] = json!(0.55)),
-            &["drive.controller.max_duty: infeasible: duty 0.55 is above the reset-winding reset limit 0.5000"],
+            "diode_r_off_not_above_rd",
+            edit(|v| v["converter"]["rectifier"]["r_off"] = json!("5 mΩ")),
+            &["converter.rectifier.r_off = 0.005 is not allowed; expected a value above rd = 0.01 Ω"],
         ),
         case(
-            "rating_exceeded",
-            edit(|v| v["converter"]["switch"]["voltage_rating"] = json!("40 V")),
-            // Drain plateau Vin·(1 + Np/Nr) = 48 V (Erickson & Maksimović §6.3.2).
-            &["converter.switch.voltage_rating: infeasible: steady drain voltage 48.0 V", "exceeds the 40 V rating"],
+            "alternating_single_gate",
+            edit(|v| v["drive"]["controller"]["mode"] = json!("alternating")),
+            &["drive.controller.mode = \"alternating\" is not allowed; expected \"single_ended\" for the reset-winding template", "would drive nothing"],
         ),
         case(
             "reference_step_open_loop",

@@ -199,10 +199,24 @@ pub(crate) fn non_negative(field: &str, value: f64) -> Result<(), ModelError> {
     }
 }
 
+/// A two-valued resistance is off only when its off value is the larger: otherwise
+/// "off" would conduct better than "on" (the engine refuses such an element too).
+fn off_above_on(field: &str, r_off: f64, r_on: f64, on_name: &str) -> Result<(), ModelError> {
+    if r_off > r_on {
+        return Ok(());
+    }
+    Err(ModelError::OutOfRange {
+        field: format!("{field}.r_off"),
+        value: r_off,
+        allowed: format!("a value above {on_name} = {r_on} Ω"),
+    })
+}
+
 impl Switch {
     pub(crate) fn validate(&self, field: &str) -> Result<(), ModelError> {
         positive(&format!("{field}.r_on"), self.r_on)?;
         positive(&format!("{field}.r_off"), self.r_off)?;
+        off_above_on(field, self.r_off, self.r_on, "r_on")?;
         non_negative(
             &format!("{field}.output_capacitance"),
             self.output_capacitance,
@@ -220,6 +234,7 @@ impl Diode {
         non_negative(&format!("{field}.vf"), self.vf)?;
         positive(&format!("{field}.rd"), self.rd)?;
         positive(&format!("{field}.r_off"), self.r_off)?;
+        off_above_on(field, self.r_off, self.rd, "rd")?;
         non_negative(
             &format!("{field}.junction_capacitance"),
             self.junction_capacitance,

@@ -20,6 +20,10 @@ pub enum ModelError {
     /// The design is inconsistent as a whole (e.g. a duty above the reset limit).
     #[error("{0}")]
     Infeasible(String),
+    /// The core ran away past its saturation knee: the design failed, and the run was
+    /// stopped there.
+    #[error("{0}")]
+    Runaway(#[from] crate::runaway::Runaway),
     /// The engine refused the circuit or failed during the run.
     #[error("simulation: {0}")]
     Engine(#[from] EngineError),

@@ -72,31 +72,68 @@ impl OpenLoopGate {
         cycles: &mut dyn CycleSink,
     ) -> Result<(), ModelError> {
         self.validate()?;
-        let t_period = self.period();
         let t0 = run.sim.time();
-        let has_aux = run.key.aux_switch.is_some();
         for k in 0..periods {
-            let start = t0 + k as f64 * t_period;
-            run.set_aux(false)?;
-            if has_aux {
-                run.advance(start, sink)?;
-            }
-            run.set_main(self.duty > 0.0)?;
-            run.start_cycle(t_period, self.duty, cycles);
-            run.advance(start + self.duty * t_period, sink)?;
-            run.set_main(false)?;
-            if has_aux {
-                run.advance(start + self.duty * t_period + self.dead_time, sink)?;
-                run.set_aux(true)?;
-                run.advance(start + t_period - self.dead_time, sink)?;
-            } else {
-                run.advance(start + t_period, sink)?;
-            }
+            let start = t0 + k as f64 * self.period();
+            self.one_period(run, start, f64::INFINITY, sink, cycles)?;
         }
+        Ok(())
+    }
+
+    /// Runs from the present period boundary to `end`, which falls inside that period:
+    /// the gates follow the same pattern until the run stops, so a run ends at its stop
+    /// time exactly. The cycle record opened is left open for [`ConverterRun::finish`].
+    pub fn run_until(
+        &self,
+        run: &mut ConverterRun,
+        end: f64,
+        sink: &mut dyn Sink,
+        cycles: &mut dyn CycleSink,
+    ) -> Result<(), ModelError> {
+        self.validate()?;
+        let start = run.sim.time();
+        // Anything shorter than the event resolution (1e-9 of a period) is the end.
+        if end - start <= 1e-9 * self.period() {
+            return Ok(());
+        }
+        self.one_period(run, start, end, sink, cycles)
+    }
+
+    /// One period from `start`, stopping early at `end` (∞ for a whole period).
+    fn one_period(
+        &self,
+        run: &mut ConverterRun,
+        start: f64,
+        end: f64,
+        sink: &mut dyn Sink,
+        cycles: &mut dyn CycleSink,
+    ) -> Result<(), ModelError> {
+        // Advances to `t` unless the run ends first; false once it has ended.
+        let go =
+            |run: &mut ConverterRun, t: f64, sink: &mut dyn Sink| -> Result<bool, ModelError> {
+                run.advance(t.min(end), sink)?;
+                Ok(t < end)
+            };
+        let t_period = self.period();
+        let has_aux = run.key.aux_switch.is_some();
+        run.set_main(self.duty > 0.0)?;
+        run.start_cycle(t_period, self.duty, cycles);
+        if !go(run, start + self.duty * t_period, sink)? {
+            return Ok(());
+        }
+        run.set_main(false)?;
         if has_aux {
+            if !go(run, start + self.duty * t_period + self.dead_time, sink)? {
+                return Ok(());
+            }
+            run.set_aux(true)?;
+            if !go(run, start + t_period - self.dead_time, sink)? {
+                return Ok(());
+            }
+            // The dead time before the next turn-on: the period ends with both off.
             run.set_aux(false)?;
-            run.advance(t0 + periods as f64 * t_period, sink)?;
         }
+        go(run, start + t_period, sink)?;
         Ok(())
     }
 }

@@ -202,15 +202,25 @@ impl<S: Stepper> ConverterRun<S> {
     /// saturation knee and feeding the cycle watch; returns early with the mask when an
     /// armed event other than the knee's fires.
     pub fn advance(&mut self, t: f64, sink: &mut dyn Sink) -> Result<Stop, ModelError> {
-        while let Some(&(when, action)) = self.schedule.last() {
+        while let Some(&(when, _)) = self.schedule.last() {
             if when > t {
                 break;
             }
             if let Stop::Armed { time, mask } = self.advance_plain(when, sink)? {
                 return Ok(Stop::Armed { time, mask });
             }
-            self.schedule.pop();
-            self.apply(action)?;
+            // Every action due now before the run steps on: between two of them (a
+            // load step's old branch off, the new one not yet on) lies no state the
+            // circuit passes through, and stepping would show it to the sinks.
+            let grid = *self.sim.system().grid();
+            let now = grid.tick(self.sim.time());
+            while let Some(&(due, action)) = self.schedule.last() {
+                if grid.tick(due) > now {
+                    break;
+                }
+                self.schedule.pop();
+                self.apply(action)?;
+            }
         }
         self.advance_plain(t, sink)
     }

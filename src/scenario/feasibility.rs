@@ -1,8 +1,10 @@
 //! Whole-design checks: build the circuit exactly as a run will (so its probe names and
 //! state count are known), compute the paper design figures, and sort what they show
-//! into errors (the design cannot work as specified) and warnings (it runs, but look).
+//! into errors (the scenario cannot be simulated as written), design failures (it can,
+//! and the paper figures already say the design fails: the run shows how) and warnings
+//! (it runs, but look).
 
-use stepflux_engine::Layout;
+use stepflux_engine::{Layout, SimOptions, TimeGrid};
 use stepflux_models::controller::OutputMode;
 use stepflux_models::disturbance::{prepare, Disturbance};
 use stepflux_models::figures::{DesignFigures, DesignPoint};
@@ -22,6 +24,9 @@ const RIPPLE_WARN: f64 = 0.5;
 /// Switch voltage above this fraction of its rating is flagged: the usual derating
 /// for ringing and spikes the steady figure does not include (common practice).
 const RATING_WARN: f64 = 0.8;
+/// A sample interval rounded to the time grid by more than this fraction is flagged:
+/// the rounding then shows in the sixth significant figure of the sample times.
+const GRID_WARN: f64 = 1e-6;
 /// Sample counts above this per signal are flagged: tens of megabytes per waveform.
 const SAMPLES_WARN: f64 = 1e7;
 
@@ -88,6 +93,19 @@ pub fn check_build(ctx: &Ctx, job: &Job, built: &Built) -> Result<(), ScenarioEr
     Ok(())
 }
 
+/// The sample interval as the run will keep it, on its integer time grid (the run's
+/// options are those of the drive's clock period), and the grid's tick, seconds.
+pub fn sample_interval_on_grid(job: &Job) -> Option<(f64, f64)> {
+    let period = match &job.drive {
+        Drive::Controller(c) => c.clock_period(),
+        Drive::OpenLoop(g) => g.period(),
+    };
+    let o = SimOptions::for_period(period);
+    let grid = TimeGrid::new(o.max_step, o.event_resolution).ok()?;
+    let ticks = grid.tick(job.analysis.sample_interval).max(1);
+    Some((grid.time(ticks), grid.quantum))
+}
+
 /// Where the figures are evaluated for `job`.
 pub fn design_point(job: &Job) -> DesignPoint {
     let lines =
@@ -121,13 +139,24 @@ pub fn design_point(job: &Job) -> DesignPoint {
     }
 }
 
-/// Errors that make the design unworkable, then the warnings.
-pub fn judge(ctx: &Ctx, job: &Job, f: &DesignFigures) -> Result<Vec<Warning>, ScenarioError> {
+/// What the paper figures say about a design that can be simulated.
+#[derive(Clone, Debug, Default)]
+pub struct Judgement {
+    /// It runs, but look.
+    pub warnings: Vec<Warning>,
+    /// The design fails by its own figures; a run shows how.
+    pub failures: Vec<Warning>,
+}
+
+/// Errors that make the scenario impossible to simulate as written, then what the
+/// figures say of the design.
+pub fn judge(ctx: &Ctx, job: &Job, f: &DesignFigures) -> Result<Judgement, ScenarioError> {
     let point = design_point(job);
     let duty_field = match job.drive {
         Drive::OpenLoop(_) => "drive.open_loop.duty",
         Drive::Controller(_) => "drive.controller.max_duty",
     };
+    let mut failures = Vec::new();
     let mut warnings = Vec::new();
     let mut warn = |field: &str, message: String| {
         warnings.push(Warning {
@@ -136,20 +165,15 @@ pub fn judge(ctx: &Ctx, job: &Job, f: &DesignFigures) -> Result<Vec<Warning>, Sc
         })
     };
     let d = &job.design;
+    check_mode(ctx, job)?;
     match (&d.reset, f.reset_limit_duty) {
         (ResetScheme::ResetWinding { .. } | ResetScheme::TwoSwitch { .. }, Some(limit))
             if point.max_duty > limit =>
         {
-            return Err(ctx.infeasible(
-                duty_field,
-                format!(
-                    "duty {} is above the {} reset limit {:.4} (1/(1 + Nr/Np)): the core \
-                     cannot reset within the off-time and walks into saturation",
-                    point.max_duty,
-                    d.reset.name(),
-                    limit
-                ),
-            ))
+            failures.push(Warning {
+                field: duty_field.into(),
+                message: flux_walk_message(job, f, &point, limit),
+            })
         }
         (ResetScheme::RcdClamp { .. }, Some(limit)) if point.max_duty > limit => warn(
             duty_field,
@@ -165,26 +189,17 @@ pub fn judge(ctx: &Ctx, job: &Job, f: &DesignFigures) -> Result<Vec<Warning>, Sc
         ),
         _ => {}
     }
-    if let (ResetScheme::ActiveClamp { .. }, Drive::Controller(c)) = (&d.reset, &job.drive) {
-        if c.mode == stepflux_models::controller::OutputMode::Alternating {
-            return Err(ctx.infeasible(
-                "drive.controller.mode",
-                "an active clamp needs its auxiliary switch complementary to the main one; \
-                 use the single_ended mode (its auxiliary output is gated that way)"
-                    .into(),
-            ));
-        }
-    }
     for (field, rating) in switch_ratings(d) {
         if f.drain_stress > rating {
-            return Err(ctx.infeasible(
-                &field,
-                format!(
+            failures.push(Warning {
+                field,
+                message: format!(
                     "steady drain voltage {:.1} V (at line {:.1} to {:.1} V) exceeds the \
                      {rating} V rating",
                     f.drain_stress, point.low_line, point.high_line
                 ),
-            ));
+            });
+            continue;
         }
         if f.drain_stress > RATING_WARN * rating {
             warn(
@@ -200,7 +215,63 @@ pub fn judge(ctx: &Ctx, job: &Job, f: &DesignFigures) -> Result<Vec<Warning>, Sc
         }
     }
     design_warnings(job, f, &point, &mut warn);
-    Ok(warnings)
+    Ok(Judgement { warnings, failures })
+}
+
+/// The alternating mode gives every other clock period to output B, which only an
+/// active clamp's auxiliary switch could take, and that one must run complementary to
+/// the main switch within each period instead. On every template B would drive
+/// nothing, so the mode is refused rather than run at half the clock with idle pulses.
+fn check_mode(ctx: &Ctx, job: &Job) -> Result<(), ScenarioError> {
+    let Drive::Controller(c) = &job.drive else {
+        return Ok(());
+    };
+    if c.mode != OutputMode::Alternating {
+        return Ok(());
+    }
+    let why = match job.design.reset {
+        ResetScheme::ActiveClamp { .. } => {
+            "an active clamp needs its auxiliary switch complementary to the main one in \
+             every period, which the single_ended mode does (with aux_dead_time)"
+        }
+        _ => {
+            "this template has one gate drive (the two-switch stage gates both switches \
+             together), so output B, every other clock period, would drive nothing"
+        }
+    };
+    Err(ctx.range(
+        "drive.controller.mode",
+        "\"alternating\"",
+        &format!(
+            "\"single_ended\" for the {} template: {why}; max_duty limits each pulse",
+            job.design.reset.name()
+        ),
+    ))
+}
+
+/// Why a duty above the reset limit fails, in numbers: each cycle's on-time adds more
+/// volt-seconds to the magnetising inductance than the whole off-time at the reset
+/// voltage Vin·Np/Nr can take off, so the magnetising current at turn-on grows by
+/// ΔI = Vin·T·(D − (1 − D)·Np/Nr)/Lm per cycle at low line (Faraday's law; R. W.
+/// Erickson & D. Maksimović, *Fundamentals of Power Electronics*, 2nd ed., §6.3.2),
+/// until the core reaches the knee current at Bsat.
+fn flux_walk_message(job: &Job, f: &DesignFigures, point: &DesignPoint, limit: f64) -> String {
+    let t = &job.design.transformer;
+    let nr_np = f.reset_ratio.unwrap_or(1.0);
+    let d = point.max_duty;
+    let period = 1.0 / point.frequency;
+    let walk = point.low_line * period * (d - (1.0 - d) / nr_np) / t.magnetising_inductance;
+    let knee = t.knee_current();
+    let cycles = ((knee - f.magnetising_peak) / walk).ceil().max(1.0);
+    format!(
+        "duty {d} is above the {} reset limit {limit:.4} (1/(1 + Nr/Np), Nr/Np = \
+         {nr_np:.3}): the core cannot reset within the off-time; at low line {:.1} V the \
+         magnetising current at turn-on grows by {:.4} A per cycle and reaches the knee \
+         current {knee:.3} A (Bsat) in about {cycles:.0} cycles; a run shows the walk",
+        job.design.reset.name(),
+        point.low_line,
+        walk
+    )
 }
 
 /// The switches that see the drain stress, with their field paths.
@@ -287,6 +358,19 @@ fn timing_warnings(job: &Job, warn: &mut dyn FnMut(&str, String)) {
                     "at {} s, not before stop_time {} s: it never happens",
                     e.time(),
                     a.stop_time
+                ),
+            );
+        }
+    }
+    if let Some((actual, tick)) = sample_interval_on_grid(job) {
+        let off = (actual - a.sample_interval).abs();
+        if off > GRID_WARN * a.sample_interval {
+            warn(
+                "analysis.sample_interval",
+                format!(
+                    "{:e} s is not on the run's time grid (tick {tick:.4e} s): samples come \
+                     every {actual:e} s instead",
+                    a.sample_interval
                 ),
             );
         }

@@ -23,7 +23,7 @@ use std::path::Path;
 use stepflux_models::figures::DesignFigures;
 
 pub use error::{ScenarioError, Warning};
-pub use feasibility::design_point;
+pub use feasibility::{design_point, sample_interval_on_grid};
 
 use crate::job::Job;
 use validate::Ctx;
@@ -35,6 +35,9 @@ pub struct Loaded {
     pub job: Job,
     /// Design concerns that do not stop the run.
     pub warnings: Vec<Warning>,
+    /// Ways the design fails by its own paper figures (the run still simulates it and
+    /// shows how; `check` exits 1).
+    pub failures: Vec<Warning>,
     /// Paper design figures at the scenario's operating range.
     pub figures: DesignFigures,
     /// Probe names of the converter as built, in sample order.
@@ -73,10 +76,11 @@ pub fn load_str(text: &str, file: &str) -> Result<Loaded, ScenarioError> {
         .map_err(|e| ctx.model("converter", e, &|f| format!("converter.{f}")))?;
     feasibility::check_build(&ctx, &job, &built)?;
     let figures = DesignFigures::compute(&job.design, &design_point(&job));
-    let warnings = feasibility::judge(&ctx, &job, &figures)?;
+    let judged = feasibility::judge(&ctx, &job, &figures)?;
     Ok(Loaded {
         job,
-        warnings,
+        warnings: judged.warnings,
+        failures: judged.failures,
         figures,
         probes: built.probes,
     })

@@ -38,6 +38,8 @@ pub struct ClosedLoop<S = Simulation> {
     clock: u64,
     /// Whether the complementary (auxiliary) switch is on.
     complement_on: bool,
+    /// Where the run ends inside a clock period being cut short (infinite otherwise).
+    horizon: f64,
 }
 
 impl ClosedLoop<Simulation> {
@@ -98,6 +100,7 @@ impl<S: Stepper> ClosedLoop<S> {
             enabled_at,
             clock: 0,
             complement_on: false,
+            horizon: f64::INFINITY,
         })
     }
 
@@ -144,6 +147,40 @@ impl<S: Stepper> ClosedLoop<S> {
             self.clock += 1;
         }
         Ok(())
+    }
+
+    /// As [`ClosedLoop::advance_to`], then on through the clock period that `t_end`
+    /// cuts, so the run ends at `t_end` exactly: the controller behaves in that period
+    /// as in any other until the run stops. The cycle record it opens is left open for
+    /// [`ClosedLoop::finish`] (it ends before its period does).
+    pub fn advance_to_end(
+        &mut self,
+        t_end: f64,
+        sink: &mut dyn Sink,
+        cycles: &mut dyn CycleSink,
+    ) -> Result<(), ModelError> {
+        self.advance_to(t_end, sink, cycles)?;
+        // Anything shorter than the event resolution (1e-9 of a period) is already
+        // the end.
+        if t_end - self.run.sim.time() <= 1e-9 * self.spec.clock_period() {
+            return Ok(());
+        }
+        self.horizon = t_end;
+        let cut = self.clock_period(sink, cycles);
+        self.horizon = f64::INFINITY;
+        cut
+    }
+
+    /// Advances to `t`, or only to the horizon when that comes first: `None` then
+    /// says the period was cut and nothing more may happen in it.
+    fn go(&mut self, t: f64, sink: &mut dyn Sink) -> Result<Option<Stop>, ModelError> {
+        if t < self.horizon {
+            return self.run.advance(t, sink).map(Some);
+        }
+        match self.run.advance(self.horizon, sink)? {
+            armed @ Stop::Armed { .. } => Ok(Some(armed)),
+            Stop::Reached => Ok(None),
+        }
     }
 
     /// Closes the last cycle record.
@@ -228,18 +265,24 @@ impl<S: Stepper> ClosedLoop<S> {
             if self.enabled_at.is_none() {
                 self.set_complement(false)?;
             }
-            self.run.advance(t_next, sink)?;
+            self.go(t_next, sink)?;
             return Ok(());
         }
         let delay = self.spec.gate_delay;
         if self.complement_on {
             // The complementary switch leaves a dead time before the main turn-on (no
             // earlier than the clock itself).
-            self.run
-                .advance(t0 + delay - self.spec.aux_dead_time, sink)?;
+            if self
+                .go(t0 + delay - self.spec.aux_dead_time, sink)?
+                .is_none()
+            {
+                return Ok(());
+            }
             self.set_complement(false)?;
         }
-        self.run.advance(t0 + delay, sink)?;
+        if self.go(t0 + delay, sink)?.is_none() {
+            return Ok(());
+        }
         self.set_output(b_side, true)?;
         let output_period = if self.spec.mode == OutputMode::Alternating {
             2.0 * t_clock
@@ -251,32 +294,48 @@ impl<S: Stepper> ClosedLoop<S> {
                 .start_cycle(output_period, limit * t_clock / output_period, cycles);
         }
         let t_limit = t0 + limit * t_clock;
-        let t_off = self.pulse_end(t0, t_limit, sink)?;
-        self.run.advance(t_off + delay, sink)?;
+        let Some(t_off) = self.pulse_end(t0, t_limit, sink)? else {
+            return Ok(());
+        };
+        if self.go(t_off + delay, sink)?.is_none() {
+            return Ok(());
+        }
         self.set_output(b_side, false)?;
         if !b_side {
             self.run.set_cycle_duty((t_off - t0) / output_period);
         }
         if self.complementary() {
-            self.run
-                .advance(t_off + delay + self.spec.aux_dead_time, sink)?;
+            if self
+                .go(t_off + delay + self.spec.aux_dead_time, sink)?
+                .is_none()
+            {
+                return Ok(());
+            }
             self.set_complement(true)?;
         }
-        self.run.advance(t_next, sink)?;
+        self.go(t_next, sink)?;
         Ok(())
     }
 
     /// When the pulse's off command comes: the comparator crossing after blanking and
-    /// minimum on-time, or the duty clamp, whichever is first.
-    fn pulse_end(&mut self, t0: f64, t_limit: f64, sink: &mut dyn Sink) -> Result<f64, ModelError> {
+    /// minimum on-time, or the duty clamp, whichever is first; `None` when the run
+    /// ends before it.
+    fn pulse_end(
+        &mut self,
+        t0: f64,
+        t_limit: f64,
+        sink: &mut dyn Sink,
+    ) -> Result<Option<f64>, ModelError> {
         let t_arm = t0 + self.spec.blanking.max(self.spec.min_on_time);
         if t_arm >= t_limit {
-            return Ok(t_limit);
+            return Ok(Some(t_limit));
         }
-        self.run.advance(t_arm, sink)?;
+        if self.go(t_arm, sink)?.is_none() {
+            return Ok(None);
+        }
         let t_arm = t_arm.max(self.run.sim.time());
         if self.control_voltage() >= self.ramp(t0, t_arm) {
-            return Ok(t_arm);
+            return Ok(Some(t_arm));
         }
         let o = &self.spec.oscillator;
         let slot = self.run.sim.arm(EventFn {
@@ -286,11 +345,12 @@ impl<S: Stepper> ClosedLoop<S> {
             t_ref: t0,
             direction: Direction::Rising,
         })?;
-        let stop = self.run.advance(t_limit, sink)?;
+        let stop = self.go(t_limit, sink)?;
         self.run.sim.disarm(slot);
         Ok(match stop {
-            Stop::Armed { time, .. } => time,
-            Stop::Reached => t_limit,
+            Some(Stop::Armed { time, .. }) => Some(time),
+            Some(Stop::Reached) => Some(t_limit),
+            None => None,
         })
     }
 }

@@ -16,6 +16,11 @@
 //! - each voltage: (derated rating − peak)/derated rating.
 //!
 //! The worst cycle is the one with the lowest margin of any criterion.
+//!
+//! The last cycle of a run is closed by the run's end, not by a turn-on. When the run
+//! ends before that cycle's period does (told by [`ResetCheck::end_of_run`]), whether
+//! its reset would have completed is unknown, so "reset complete" is not judged on it;
+//! everything it did show (flux, currents, voltages, a reset end) still is.
 
 use std::fmt;
 
@@ -147,6 +152,13 @@ pub struct ResetCheck {
     watches: [Option<Watch>; WATCHED],
     peaks: [f64; WATCHED],
     verdict: ResetVerdict,
+    /// The latest cycle, judged in full and as cut short; committed when the next one
+    /// arrives, or at the end by whether the run cut it.
+    latest: Option<(CycleCheck, CycleCheck)>,
+    /// When the run ended, seconds, once told.
+    run_end: Option<f64>,
+    /// The first cycle whose peak flux density passed Bsat: (index, start s, B_peak T).
+    bsat_crossed: Option<(usize, f64, f64)>,
 }
 
 fn reset_diode_rating(design: &ForwardDesign) -> Option<f64> {
@@ -202,15 +214,46 @@ impl ResetCheck {
                 first_failure: None,
                 worst: None,
             },
+            latest: None,
+            run_end: None,
+            bsat_crossed: None,
         })
+    }
+
+    /// Tells the check when the run ended, seconds, so a last cycle cut short by it is
+    /// not judged on a reset it had no time to finish.
+    pub fn end_of_run(&mut self, time: f64) {
+        self.run_end = Some(time);
+    }
+
+    /// The first cycle whose peak flux density passed Bsat: (index, start in seconds,
+    /// peak in tesla).
+    pub fn bsat_crossed(&self) -> Option<(usize, f64, f64)> {
+        self.bsat_crossed
+    }
+
+    /// Whether the latest cycle was cut short by the run's end.
+    pub fn last_cycle_cut(&self) -> bool {
+        match (&self.latest, self.run_end) {
+            // A thousandth of a period is far above rounding and far below any cut.
+            (Some((full, _)), Some(end)) => {
+                let r = &full.record;
+                end < r.start + r.period * (1.0 - 1e-3)
+            }
+            _ => false,
+        }
     }
 
     /// The verdict so far.
     pub fn verdict(&self) -> ResetVerdict {
-        self.verdict
+        let mut v = self.verdict;
+        if let Some((full, cut)) = self.latest {
+            commit(&mut v, if self.last_cycle_cut() { cut } else { full });
+        }
+        v
     }
 
-    fn judge(&self, r: &CycleRecord) -> CycleCheck {
+    fn judge(&self, r: &CycleRecord, cut: bool) -> CycleCheck {
         let l = &self.limits;
         let mut worst = (Criterion::ResetIncomplete, f64::INFINITY);
         let mut consider = |c: Criterion, m: f64| {
@@ -219,7 +262,7 @@ impl ResetCheck {
             }
         };
         let reset_margin = r.reset_margin().map(|m| m / r.period);
-        if r.reset_incomplete {
+        if r.reset_incomplete && !cut {
             consider(Criterion::ResetIncomplete, -1.0);
         } else if let Some(m) = reset_margin {
             consider(Criterion::ResetMargin, m - l.min_reset_margin);
@@ -273,26 +316,37 @@ impl Measurement for ResetCheck {
     }
 
     fn cycle(&mut self, r: &CycleRecord) {
-        let check = self.judge(r);
-        self.peaks = [f64::NEG_INFINITY; WATCHED];
-        let v = &mut self.verdict;
-        v.cycles += 1;
-        if !check.passed() {
-            v.failed += 1;
-            v.first_failure.get_or_insert(check);
+        if r.b_peak > self.bsat && self.bsat_crossed.is_none() {
+            self.bsat_crossed = Some((r.index, r.start, r.b_peak));
         }
-        if v.worst.is_none_or(|w| check.worst.1 < w.worst.1) {
-            v.worst = Some(check);
+        let judged = (self.judge(r, false), self.judge(r, true));
+        self.peaks = [f64::NEG_INFINITY; WATCHED];
+        if let Some((full, _)) = self.latest.replace(judged) {
+            commit(&mut self.verdict, full);
         }
     }
 
     fn figures(&self) -> Vec<Figure> {
-        let v = &self.verdict;
+        let v = &self.verdict();
         let mut f = vec![
             Figure::new("reset_check.pass", f64::from(u8::from(v.passed())), "1"),
             Figure::new("reset_check.cycles", v.cycles as f64, "1"),
             Figure::new("reset_check.failed_cycles", v.failed as f64, "1"),
+            Figure::new(
+                "reset_check.last_cycle_cut",
+                f64::from(u8::from(self.last_cycle_cut())),
+                "1",
+            ),
         ];
+        if let Some((index, start, b)) = self.bsat_crossed {
+            f.push(Figure::new(
+                "reset_check.bsat_crossed.cycle",
+                index as f64,
+                "1",
+            ));
+            f.push(Figure::new("reset_check.bsat_crossed.time", start, "s"));
+            f.push(Figure::new("reset_check.bsat_crossed.b_peak", b, "T"));
+        }
         if let Some(c) = &v.first_failure {
             f.extend(cycle_figures("reset_check.first_failure", c));
         }
@@ -300,6 +354,18 @@ impl Measurement for ResetCheck {
             f.extend(cycle_figures("reset_check.worst", c));
         }
         f
+    }
+}
+
+/// Adds one judged cycle to the verdict.
+fn commit(v: &mut ResetVerdict, check: CycleCheck) {
+    v.cycles += 1;
+    if !check.passed() {
+        v.failed += 1;
+        v.first_failure.get_or_insert(check);
+    }
+    if v.worst.is_none_or(|w| check.worst.1 < w.worst.1) {
+        v.worst = Some(check);
     }
 }
 

@@ -25,7 +25,8 @@ pub struct StepSettings {
     /// Start of the final window for the steady-state error, seconds.
     pub settle_from: f64,
     /// End of everything this measurement looks at (the next disturbance or the end
-    /// of the run), seconds.
+    /// of the run), seconds. The window is half-open: samples at `until` itself belong
+    /// to whatever happens there.
     pub until: f64,
 }
 
@@ -35,10 +36,23 @@ pub struct StepSettings {
 /// band `set point ± band` (interpolated between the sample outside and the one
 /// inside); a streaming run cannot know it has stayed inside for good, so the figure
 /// holds for the samples seen up to `until`. Extremes include the switching ripple.
+///
+/// A change of the set point itself ([`StepResponse::set_point_change`]) is judged
+/// against the new set point, as a supply's transient specification reads: overshoot
+/// past it, and on the side the output comes from, only what it falls back after
+/// first reaching the new value — the approach itself is the response asked for, not
+/// a deviation. An output that never reaches the new value reports its shortfall
+/// there instead.
 #[derive(Clone, Debug)]
 pub struct StepResponse {
     settings: StepSettings,
     column: usize,
+    /// The set point before a set-point change (`None` for a load or line step).
+    from: Option<f64>,
+    /// Whether the output has reached the new set point (set-point change only).
+    reached: bool,
+    /// Extremes from the moment it did.
+    after_reach: WindowExtremes,
     extremes: WindowExtremes,
     final_mean: WindowMean,
     before: CycleRange,
@@ -91,6 +105,9 @@ impl StepResponse {
         }
         Ok(StepResponse {
             column: probe_index(probes, "out.v")?,
+            from: None,
+            reached: false,
+            after_reach: WindowExtremes::new(s.step_time, s.until),
             extremes: WindowExtremes::new(s.step_time, s.until),
             final_mean: WindowMean::new(s.settle_from, s.until),
             before: CycleRange::new(s.step_time - s.duty_window, s.step_time),
@@ -102,6 +119,41 @@ impl StepResponse {
         })
     }
 
+    /// Watches `out.v` after the set point moves from `from` to
+    /// `settings.set_point` volts (see the type's documentation).
+    pub fn set_point_change(
+        probes: &[Probe],
+        settings: StepSettings,
+        from: f64,
+    ) -> Result<Self, ModelError> {
+        if !(from.is_finite() && from > 0.0) {
+            return Err(ModelError::Infeasible(format!(
+                "{}: the set point before the change must be positive (got {from} V)",
+                settings.label
+            )));
+        }
+        let mut s = StepResponse::new(probes, settings)?;
+        s.from = Some(from);
+        Ok(s)
+    }
+
+    /// The extremes of the output, with the approach to a new set point left out
+    /// (see the type's documentation).
+    fn judged_extremes(&self) -> Option<((f64, f64), (f64, f64))> {
+        let (min, max) = (self.extremes.min?, self.extremes.max?);
+        let Some(from) = self.from else {
+            return Some((min, max));
+        };
+        let rising = self.settings.set_point > from;
+        if !self.reached {
+            // Never got there: the closest approach is the extreme on both sides.
+            let closest = if rising { max } else { min };
+            return Some((closest, closest));
+        }
+        let (lo, hi) = (self.after_reach.min?, self.after_reach.max?);
+        Some(if rising { (lo, max) } else { (min, hi) })
+    }
+
     /// The settings.
     pub fn settings(&self) -> &StepSettings {
         &self.settings
@@ -110,7 +162,7 @@ impl StepResponse {
     /// The figures so far, or `None` before any sample after the step.
     pub fn result(&self) -> Option<StepResult> {
         let s = &self.settings;
-        let (min, max) = (self.extremes.min?, self.extremes.max?);
+        let (min, max) = self.judged_extremes()?;
         let recovery = match (self.ever_outside, self.entered) {
             (false, _) => Some(0.0),
             (true, Some(t)) => Some(t - s.step_time),
@@ -152,8 +204,15 @@ impl Measurement for StepResponse {
         let Some(&v) = values.get(self.column) else {
             return;
         };
-        if time < self.settings.step_time || time > self.settings.until {
+        if time < self.settings.step_time || time >= self.settings.until {
             return;
+        }
+        if let Some(from) = self.from {
+            let target = self.settings.set_point;
+            self.reached |= (v - target) * (target - from) >= 0.0;
+            if self.reached {
+                self.after_reach.add(time, v);
+            }
         }
         self.extremes.add(time, v);
         self.final_mean.add(time, v);

@@ -140,3 +140,79 @@ fn reset_check_names_the_failing_cycle_and_criterion() {
         (2, Criterion::ResetIncomplete)
     );
 }
+
+/// A set-point change from 5.0 to 5.2 V at 1 s, fed the output `v(t)` every 50 ms to
+/// 4 s.
+fn set_point_change(v: impl Fn(f64) -> f64) -> StepResult {
+    let settings = step::StepSettings {
+        label: "reference".into(),
+        step_time: 1.0,
+        set_point: 5.2,
+        band: 0.01,
+        duty_window: 1.0,
+        settle_from: 3.5,
+        until: 4.0,
+    };
+    let mut s = StepResponse::set_point_change(&probes(&["out.v"]), settings, 5.0).unwrap();
+    for k in 0..=60 {
+        let t = 1.0 + 0.05 * k as f64;
+        s.sample(t, &[v(t)], false);
+    }
+    s.result().unwrap()
+}
+
+#[test]
+fn a_set_point_change_is_judged_against_the_new_set_point() {
+    // The output rises 0.2 V/s from 5.0 V to 5.26 V at 2.3 s, falls back at 0.2 V/s to
+    // 5.18 V at 2.7 s and rises to 5.2 V. Against 5.2 V: overshoot 0.06 V; on the side
+    // it came from only the 0.02 V dip after first reaching 5.2 V counts, not the 0.2 V
+    // approach. The ±1 % band (±0.052 V) is last entered falling through 5.252 V at
+    // 2.34 s, 1.34 s after the step. Straight segments: interpolation is exact.
+    let r = set_point_change(|t| {
+        if t <= 2.3 {
+            5.0 + 0.2 * (t - 1.0)
+        } else if t <= 2.7 {
+            5.26 - 0.2 * (t - 2.3)
+        } else {
+            (5.18 + 0.2 * (t - 2.7)).min(5.2)
+        }
+    });
+    assert!((r.overshoot - 0.06).abs() < 1e-9, "{r:?}");
+    assert!((r.undershoot - 0.02).abs() < 1e-9, "{r:?}");
+    assert!((r.recovery.unwrap() - 1.34).abs() < 1e-9, "{r:?}");
+    assert!(r.steady_error.unwrap().abs() < 1e-9);
+
+    // An output that stops at 5.1 V never reaches the new set point: its shortfall is
+    // the deviation, and it never recovers into the band.
+    let r = set_point_change(|t| (5.0 + 0.2 * (t - 1.0)).min(5.1));
+    assert!((r.undershoot - 0.1).abs() < 1e-9, "{r:?}");
+    assert_eq!(r.overshoot, 0.0);
+    assert_eq!(r.recovery, None);
+}
+
+#[test]
+fn the_last_cycle_cut_by_the_run_end_is_not_judged_on_its_reset() {
+    // Two cycles of 10 µs; the run ends 6 µs into the second with its reset diode
+    // still conducting: nothing failed. Told nothing, or told an end at the second
+    // cycle's full period, the check counts the incomplete reset as before.
+    let d = demo_design();
+    let p = probes(&[]);
+    let mut cut = record(1, 0.3);
+    cut.reset_incomplete = true;
+    cut.reset_end = None;
+    let judged = |end: Option<f64>| {
+        let mut c = ResetCheck::new(&d, &p, ResetLimits::for_design(&d)).unwrap();
+        c.cycle(&record(0, 0.3));
+        c.cycle(&cut);
+        if let Some(t) = end {
+            c.end_of_run(t);
+        }
+        (c.verdict(), c.last_cycle_cut())
+    };
+    let (v, was_cut) = judged(Some(1.6e-5));
+    assert!(v.passed() && was_cut && v.cycles == 2, "{v}");
+    let (v, was_cut) = judged(None);
+    assert!(!v.passed() && !was_cut, "{v}");
+    let (v, was_cut) = judged(Some(2.0e-5));
+    assert!(!v.passed() && !was_cut, "{v}");
+}
