@@ -10,9 +10,10 @@
 //!
 //! A probe's slope is one more row over z (`TopologyData::slopes_t`). Where a traced
 //! probe's slope changes sign between a step's ends, its extremum lies inside: the
-//! slope's sign is bisected on the propagators down to 1/1024 of the step, then the
-//! slope, which is close to linear over so short a bracket, gives the zero, read at the
-//! nearest tick. The value there is within ½·|v''|·(one tick)² of the true extremum.
+//! slope's sign is bisected on the propagators down to 1/1024 of the step, then a few
+//! regula falsi trials on the slope, which is close to linear over so short a bracket,
+//! find its zero to a tick or so. The value there is within ½·|v''|·(a few ticks)² of
+//! the true extremum.
 
 use crate::error::EngineError;
 use crate::event::{Sink, TraceKind, TracePoint, Turning};
@@ -25,6 +26,8 @@ use super::Simulation;
 
 /// Bisection of an extremum stops at this fraction of the step (as a shift).
 const EXTREMUM_BRACKET_SHIFT: u32 = 10;
+/// Regula falsi trials on the slope inside that bracket.
+const SECANT_TRIALS: usize = 4;
 
 /// What the trace keeps between points. Sized when the simulation is built (or when
 /// the traced probes are chosen), so tracing allocates nothing while stepping.
@@ -271,23 +274,59 @@ impl Simulation {
                 }
             }
         }
-        // Over so short a bracket the slope is close to linear: its zero.
-        let frac = s_lo / (s_lo - s_hi);
-        let at = lo
-            + ((hi - lo) as f64 * frac)
+        // Over so short a bracket the slope is close to linear: its zero by regula
+        // falsi (Illinois variant, so a bracket end that stays put is not stuck),
+        // each trial one product from the bracket's left end.
+        let mut at = lo;
+        let (mut f_lo, mut f_hi) = (s_lo, s_hi);
+        for _ in 0..SECANT_TRIALS {
+            if hi - lo <= 1 {
+                break;
+            }
+            let frac = f_lo / (f_lo - f_hi);
+            let m = ((hi - lo) as f64 * frac)
                 .round()
-                .clamp(0.0, (hi - lo) as f64) as Tick;
+                .clamp(1.0, (hi - lo - 1) as f64) as Tick;
+            let ladder = &topo.ladder;
+            peek(
+                ladder,
+                &self.peek_from,
+                m,
+                &mut self.peek_z,
+                &mut self.peek_ext,
+                &mut self.peek_b,
+            );
+            let s = topo.slope(row, &self.peek_z);
+            at = lo + m;
+            if s * f_lo > 0.0 {
+                lo += m;
+                f_lo = s;
+                f_hi *= 0.5;
+                self.peek_from.copy_from_slice(&self.peek_z);
+            } else {
+                hi = lo + m;
+                f_hi = s;
+                f_lo *= 0.5;
+                if s == 0.0 {
+                    break;
+                }
+            }
+        }
         if at == 0 || at >= n {
             return;
         }
-        peek(
-            ladder,
-            &self.peek_from,
-            at - lo,
-            &mut self.peek_z,
-            &mut self.peek_ext,
-            &mut self.peek_b,
-        );
+        if at == lo {
+            self.peek_z.copy_from_slice(&self.peek_from);
+        } else {
+            peek(
+                &topo.ladder,
+                &self.peek_from,
+                at - lo,
+                &mut self.peek_z,
+                &mut self.peek_ext,
+                &mut self.peek_b,
+            );
+        }
         let nz = self.z.len();
         self.trace.states[k * nz..(k + 1) * nz].copy_from_slice(&self.peek_z);
         self.trace.found.push((self.start_tick + at, k));
