@@ -49,9 +49,11 @@ pub struct TopologyData {
     /// Rows over z, stored as columns so each is contiguous: diode switching
     /// functions (one per diode), then event signals, then probes.
     pub rows_t: DMatrix<f64>,
-    /// Time derivatives of the same rows in this topology, (row·M)ᵀ as columns: the
-    /// slope of a quantity is one more row over z, exact like the quantity itself.
-    pub slopes_t: DMatrix<f64>,
+    /// Time derivatives of the same rows in this topology (row·M), stacked in the
+    /// same order, column-major: the slope of a quantity is one more row over z,
+    /// exact like the quantity itself. Stored row-stacked so the event functions'
+    /// slopes at a state are one matrix–vector product.
+    pub slopes: DMatrix<f64>,
 }
 
 impl TopologyData {
@@ -64,8 +66,13 @@ impl TopologyData {
     /// Time derivative of row `r` at state `z`, per second.
     #[inline]
     pub fn slope(&self, r: usize, z: &[f64]) -> f64 {
-        let n = self.slopes_t.nrows();
-        kernel::dot(&self.slopes_t.as_slice()[r * n..(r + 1) * n], z)
+        kernel::strided_dot(&self.slopes.as_slice()[r..], self.slopes.nrows(), z)
+    }
+
+    /// Slopes of the first `out.len()` rows at state `z`, per second.
+    #[inline]
+    pub fn slopes_into(&self, z: &[f64], out: &mut [f64]) {
+        kernel::matvec_rows(self.slopes.as_slice(), self.slopes.nrows(), z, out);
     }
 
     /// Number of rows.
@@ -249,7 +256,7 @@ impl System {
         let rows_t = rows.transpose();
         Ok(TopologyData {
             topology: t,
-            slopes_t: m.transpose() * &rows_t,
+            slopes: &rows * &m,
             m,
             ladder,
             rows_t,

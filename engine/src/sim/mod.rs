@@ -112,6 +112,8 @@ pub struct Simulation {
     /// Event functions' slopes at the present state and at a step's end.
     d_lo: Vec<f64>,
     d_hi: Vec<f64>,
+    /// Slopes of the event rows at a state (as `raw` holds their values).
+    raw_d: Vec<f64>,
     /// Tick and state where the step being taken began: output samples and extrema
     /// inside it are read off from here once it is done.
     start_tick: Tick,
@@ -202,6 +204,7 @@ impl Simulation {
             flipped: Vec::with_capacity(4 * MAX_ARMED),
             d_lo: vec![0.0; n_events],
             d_hi: vec![0.0; n_events],
+            raw_d: vec![0.0; topo_events],
             start_tick: 0,
             start_z: DVector::zeros(nz),
             peek_z: vec![0.0; nz],

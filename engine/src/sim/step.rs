@@ -41,7 +41,14 @@ impl Simulation {
                 *v = topo.value(r, z);
             }
             all_events(&self.raw, armed, nd, self.time(), &mut self.g_lo);
-            all_slopes(topo, z.as_slice(), armed, nd, &mut self.d_lo);
+            all_slopes(
+                topo,
+                z.as_slice(),
+                armed,
+                nd,
+                &mut self.raw_d,
+                &mut self.d_lo,
+            );
         }
         self.start_tick = self.tick;
         self.start_z.copy_from(&self.z);
@@ -126,7 +133,14 @@ impl Simulation {
         ladder.state_from(&self.ext, &mut self.peek_z);
         let nd = self.system.diode_count();
         let armed = &self.armed[..self.armed_len];
-        all_slopes(topo, &self.peek_z, armed, nd, &mut self.d_hi);
+        all_slopes(
+            topo,
+            &self.peek_z,
+            armed,
+            nd,
+            &mut self.raw_d,
+            &mut self.d_hi,
+        );
         let q = self.system.grid.quantum;
         let h = len as f64 * q;
         let mut shortest: Option<f64> = None;
@@ -330,21 +344,22 @@ fn table_step(
 
 /// Every event function's time derivative at state `z` into `d`, in the order and
 /// signs of [`all_events`] (an empty slot gets 0).
+/// `raw` receives the slopes of the event rows (diodes, then event signals).
 #[inline]
 pub(super) fn all_slopes(
     topo: &TopologyData,
     z: &[f64],
     armed: &[Option<Armed>],
     nd: usize,
+    raw: &mut [f64],
     d: &mut [f64],
 ) {
-    for (r, dr) in d[..nd].iter_mut().enumerate() {
-        *dr = topo.slope(r, z);
-    }
+    topo.slopes_into(z, raw);
+    d[..nd].copy_from_slice(&raw[..nd]);
     for (dk, slot) in d[nd..].iter_mut().zip(armed) {
         *dk = match slot {
             Some(a) => {
-                let v = topo.slope(a.row, z) + a.f.rate;
+                let v = raw[a.row] + a.f.rate;
                 if a.f.direction == Direction::Rising {
                     v
                 } else {

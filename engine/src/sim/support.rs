@@ -37,7 +37,14 @@ impl Simulation {
         }
         let armed = &self.armed[..self.armed_len];
         step::all_events(&self.raw, armed, nd, time, &mut self.g_lo);
-        step::all_slopes(&self.topo, self.z.as_slice(), armed, nd, &mut self.d_lo);
+        step::all_slopes(
+            &self.topo,
+            self.z.as_slice(),
+            armed,
+            nd,
+            &mut self.raw_d,
+            &mut self.d_lo,
+        );
         self.g_lo_at = Some((self.tick, self.generation));
         self.ramp = step::RAMP_START;
         Ok(())

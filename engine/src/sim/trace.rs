@@ -8,7 +8,7 @@
 //! nothing read off this way feeds back into the run. So the sample interval, the
 //! probes written and whether anything is written at all change no switching instant.
 //!
-//! A probe's slope is one more row over z (`TopologyData::slopes_t`). Where a traced
+//! A probe's slope is one more row over z (`TopologyData::slopes`). Where a traced
 //! probe's slope changes sign between a step's ends, its extremum lies inside: the
 //! slope's sign is bisected on the propagators down to 1/1024 of the step, then a few
 //! regula falsi trials on the slope, which is close to linear over so short a bracket,
@@ -34,6 +34,8 @@ const SECANT_TRIALS: usize = 4;
 pub(super) struct TraceState {
     /// Whether probe k is traced, and which of its turning points are located.
     traced: Vec<Option<Turning>>,
+    /// The traced probes' indices, in order.
+    list: Vec<usize>,
     values: Vec<f64>,
     slopes: Vec<f64>,
     /// Slopes at the last point, and where it was: an extremum is looked for only
@@ -49,6 +51,7 @@ impl TraceState {
     pub(super) fn new(n_probes: usize) -> Self {
         TraceState {
             traced: vec![None; n_probes],
+            list: Vec::new(),
             values: vec![0.0; n_probes],
             slopes: vec![f64::NAN; n_probes],
             prev_slopes: vec![f64::NAN; n_probes],
@@ -81,6 +84,9 @@ impl Simulation {
                 _ => turning,
             });
         }
+        t.list = (0..n).filter(|&k| t.traced[k].is_some()).collect();
+        t.values.iter_mut().for_each(|v| *v = f64::NAN);
+        t.slopes.iter_mut().for_each(|v| *v = f64::NAN);
         t.states = vec![0.0; n * self.z.len()];
         t.prev_at = None;
         Ok(())
@@ -158,10 +164,10 @@ impl Simulation {
         sink: &mut dyn Sink,
     ) -> Result<(), EngineError> {
         let first = self.first_probe_row();
-        let n = self.system.observation.probes.len();
         self.trace.found.clear();
         if self.trace.prev_at == Some((self.start_tick, topo.topology)) {
-            for k in 0..n {
+            for j in 0..self.trace.list.len() {
+                let k = self.trace.list[j];
                 let Some(turning) = self.trace.traced[k] else {
                     continue;
                 };
@@ -339,12 +345,9 @@ impl Simulation {
 
 /// Every probe's value and each traced probe's slope at state `z` in `topo`.
 fn fill_point(topo: &TopologyData, first: usize, z: &[f64], t: &mut TraceState) {
-    let points = t.values.iter_mut().zip(t.slopes.iter_mut());
-    for (k, ((v, s), traced)) in points.zip(&t.traced).enumerate() {
-        (*v, *s) = match traced {
-            Some(_) => (row_value(topo, first + k, z), topo.slope(first + k, z)),
-            None => (f64::NAN, f64::NAN),
-        };
+    for &k in &t.list {
+        t.values[k] = row_value(topo, first + k, z);
+        t.slopes[k] = topo.slope(first + k, z);
     }
 }
 
