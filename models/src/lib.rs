@@ -23,6 +23,7 @@ pub mod figures;
 pub mod gate;
 pub mod measure;
 pub mod run;
+pub mod steady;
 pub mod template;
 
 pub use error::ModelError;
