@@ -2,7 +2,7 @@
 //! inductor's current, a capacitor's voltage) or one behavioural block, so a state can
 //! be written and read by that element's name instead of by its position.
 
-use stepflux_engine::{StateKind, System};
+use stepflux_engine::{Circuit, Layout, StateKind, System};
 
 /// What kind of quantity a state is; it decides the unit and the absolute tolerance
 /// floor of the steady-state test.
@@ -49,8 +49,15 @@ pub struct StateName {
 
 /// Names of every entry of x, in the engine's order.
 pub fn state_names(system: &System) -> Vec<StateName> {
-    let circuit = system.circuit();
-    let layout = system.layout();
+    names_in(system.circuit(), system.layout())
+}
+
+/// As [`state_names`], for a circuit not yet simulated.
+pub fn circuit_state_names(circuit: &Circuit) -> Result<Vec<StateName>, crate::ModelError> {
+    Ok(names_in(circuit, &Layout::new(circuit)?))
+}
+
+fn names_in(circuit: &Circuit, layout: &Layout) -> Vec<StateName> {
     layout
         .states
         .iter()
@@ -65,7 +72,7 @@ pub fn state_names(system: &System) -> Vec<StateName> {
                 class: StateClass::Voltage,
             },
             StateKind::Block(_, k) => StateName {
-                name: block_state_name(system, i, k),
+                name: block_state_name(circuit, layout, i, k),
                 class: StateClass::Block,
             },
         })
@@ -75,10 +82,9 @@ pub fn state_names(system: &System) -> Vec<StateName> {
 /// `block[k]`: the engine keeps a block's index private, but the layout lists each
 /// block's first state, so the block owning state `i` (its `k`-th) is the one whose
 /// states start at `i − k` and that has more than `k` of them.
-fn block_state_name(system: &System, i: usize, k: usize) -> String {
-    let blocks = system.circuit().blocks();
-    let owner = system
-        .layout()
+fn block_state_name(circuit: &Circuit, layout: &Layout, i: usize, k: usize) -> String {
+    let blocks = circuit.blocks();
+    let owner = layout
         .block_offset
         .iter()
         .zip(blocks)
