@@ -44,6 +44,23 @@ pub enum Command {
         #[arg(long)]
         json: bool,
     },
+    /// Find the periodic steady state of a scenario and print its operating point.
+    #[command(
+        after_help = "Example:\n  stepflux settle scenarios/demo-startup.json\n  \
+        stepflux settle --json scenarios/rcd-clamp.json > point.json\n\n\
+        The steady state of the initial operating point (events ignored, soft starts \
+        over) by shooting: every state by name, output mean and ripple, duty, efficiency \
+        and losses, reset margin, flux and drain peaks. Exits 3 when there is no periodic \
+        steady state (subharmonic or no convergence, with the states that do not settle)."
+    )]
+    Settle {
+        /// Scenario file (JSON; see `stepflux schema`).
+        #[arg(value_name = "SCENARIO")]
+        scenario: PathBuf,
+        /// Print one JSON object (SI units) instead of text.
+        #[arg(long)]
+        json: bool,
+    },
     /// Run one or more scenario files, in parallel, writing each run's outputs.
     #[command(
         after_help = "Example:\n  stepflux run scenarios/demo-startup.json scenarios/load-step.json --out results\n\n\

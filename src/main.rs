@@ -15,6 +15,8 @@ mod print;
 mod report;
 mod run_cmd;
 mod scenario;
+mod settle_cmd;
+mod steady;
 mod units;
 mod writers;
 
@@ -63,6 +65,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             quiet,
         }),
         Command::Merge { dirs, out } => batch::merge(&dirs, &out),
+        Command::Settle { scenario, json } => settle_cmd::settle(&scenario, json),
         Command::Run {
             scenarios,
             out,
