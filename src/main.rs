@@ -6,6 +6,7 @@ mod batch;
 mod check;
 mod cli;
 mod demo;
+mod efficiency_cmd;
 mod exit;
 mod job;
 mod measurements;
@@ -66,6 +67,19 @@ fn run(cli: Cli) -> Result<(), Failure> {
         }),
         Command::Merge { dirs, out } => batch::merge(&dirs, &out),
         Command::Settle { scenario, json } => settle_cmd::settle(&scenario, json),
+        Command::Efficiency {
+            scenario,
+            load,
+            line,
+            out,
+            jobs,
+        } => efficiency_cmd::efficiency(&efficiency_cmd::EfficiencyArgs {
+            scenario,
+            load,
+            line,
+            out,
+            jobs,
+        }),
         Command::Run {
             scenarios,
             out,

@@ -10,22 +10,62 @@ use stepflux_models::ModelError;
 
 use crate::job::{Drive, Job};
 
+/// Event resolutions tried, as fractions of the period. A clamp diode that slides along
+/// its threshold (the error amplifier resting on its rail at light load) can chatter
+/// into the engine's event-storm guard on one grid and not on another; the search then
+/// starts again on the next grid. The first is the models' trial grid
+/// ([`trial_options`]); the last is ten times finer than a run's default.
+const RESOLUTIONS: [f64; 3] = [1e-12, 3e-12, 1e-10];
+
 /// Shoots for the steady state of `job`'s design under its drive (controller soft
-/// starts left out, no disturbances).
-pub fn find(job: &Job) -> Result<SteadyState, SteadyError> {
+/// starts left out, no disturbances), and reads the cycle record of one more period
+/// into `cycles`.
+fn shoot_job(
+    job: &Job,
+    cycles: &mut Vec<stepflux_models::cycles::CycleRecord>,
+) -> Result<SteadyState, SteadyError> {
     let opts = ShootingOptions::default();
-    match &job.drive {
-        Drive::OpenLoop(gate) => {
-            let conv = job.design.build()?;
-            let mut map = OpenLoopMap::new(&conv, *gate, trial_options(gate.period()))?;
-            shoot(&mut map, &opts)
-        }
-        Drive::Controller(spec) => {
-            let mut map =
-                ClosedLoopMap::new(&job.design, spec, trial_options(spec.clock_period()))?;
-            shoot(&mut map, &opts)
+    let mut last = None;
+    for fraction in RESOLUTIONS {
+        let attempt = |cycles: &mut Vec<_>| -> Result<SteadyState, SteadyError> {
+            match &job.drive {
+                Drive::OpenLoop(gate) => {
+                    let conv = job.design.build()?;
+                    let mut map = OpenLoopMap::new(&conv, *gate, grid(gate.period(), fraction))?;
+                    let s = shoot(&mut map, &opts)?;
+                    map.run_from(&s.x, 1, cycles)?;
+                    Ok(s)
+                }
+                Drive::Controller(spec) => {
+                    let t = spec.clock_period();
+                    let mut map = ClosedLoopMap::new(&job.design, spec, grid(t, fraction))?;
+                    let s = shoot(&mut map, &opts)?;
+                    map.run_from(&s.x, 1, cycles)?;
+                    Ok(s)
+                }
+            }
+        };
+        cycles.clear();
+        match attempt(cycles) {
+            Err(SteadyError::Model(ModelError::Engine(e))) => {
+                last = Some(SteadyError::Model(ModelError::Engine(e)))
+            }
+            other => return other,
         }
     }
+    Err(last.unwrap_or_else(|| ModelError::Infeasible("no event grid tried".into()).into()))
+}
+
+fn grid(period: f64, fraction: f64) -> stepflux_engine::SimOptions {
+    stepflux_engine::SimOptions {
+        event_resolution: fraction * period,
+        ..trial_options(period)
+    }
+}
+
+/// The steady state of `job` (see [`shoot_job`]).
+pub fn find(job: &Job) -> Result<SteadyState, SteadyError> {
+    shoot_job(job, &mut Vec::new())
 }
 
 /// [`find`] with the failure as a model error (the run's error type).
@@ -116,26 +156,10 @@ pub struct PeriodFigures {
     pub drain_peak_v: f64,
 }
 
-/// [`find`], then one more period from the steady state to read its cycle record.
+/// [`find`], with the figures of one more period from the steady state.
 pub fn find_with_period(job: &Job) -> Result<(SteadyState, PeriodFigures), SteadyError> {
-    let opts = ShootingOptions::default();
-    let mut cycles: Vec<stepflux_models::cycles::CycleRecord> = Vec::new();
-    let steady = match &job.drive {
-        Drive::OpenLoop(gate) => {
-            let conv = job.design.build()?;
-            let mut map = OpenLoopMap::new(&conv, *gate, trial_options(gate.period()))?;
-            let s = shoot(&mut map, &opts)?;
-            map.run_from(&s.x, 1, &mut cycles)?;
-            s
-        }
-        Drive::Controller(spec) => {
-            let mut map =
-                ClosedLoopMap::new(&job.design, spec, trial_options(spec.clock_period()))?;
-            let s = shoot(&mut map, &opts)?;
-            map.run_from(&s.x, 1, &mut cycles)?;
-            s
-        }
-    };
+    let mut cycles = Vec::new();
+    let steady = shoot_job(job, &mut cycles)?;
     let r = cycles.first().ok_or_else(|| {
         ModelError::Infeasible("the steady period has no switching cycle (no pulse)".into())
     })?;
