@@ -27,11 +27,17 @@ use crate::writers::efficiency_plot;
 /// Output currents to visit: `A..B:N` (N points from A to B, evenly spaced) or one value.
 pub fn parse_loads(text: &str) -> Result<Vec<f64>> {
     let (range, count) = match text.split_once(':') {
-        Some((r, n)) => (r, n.trim().parse::<usize>().context("point count after ':'")?),
+        Some((r, n)) => (
+            r,
+            n.trim().parse::<usize>().context("point count after ':'")?,
+        ),
         None => (text, 1),
     };
     let (a, b) = match range.split_once("..") {
-        Some((a, b)) => (units::parse(a.trim(), Unit::Ampere)?, units::parse(b.trim(), Unit::Ampere)?),
+        Some((a, b)) => (
+            units::parse(a.trim(), Unit::Ampere)?,
+            units::parse(b.trim(), Unit::Ampere)?,
+        ),
         None => {
             let a = units::parse(range.trim(), Unit::Ampere)?;
             (a, a)
@@ -117,20 +123,22 @@ pub fn sweep(job: &Job, lines: &[f64], loads: &[f64], jobs: usize) -> Result<Vec
         .context("starting the worker pool")?;
     Ok(pool.install(|| {
         grid.par_iter()
-            .map(|&(line_v, load_a)| match operating_point(&at(job, line_v, load_a)) {
-                Ok(p) => Point {
-                    line_v,
-                    load_a,
-                    point: Some(p),
-                    error: None,
+            .map(
+                |&(line_v, load_a)| match operating_point(&at(job, line_v, load_a)) {
+                    Ok(p) => Point {
+                        line_v,
+                        load_a,
+                        point: Some(p),
+                        error: None,
+                    },
+                    Err(e) => Point {
+                        line_v,
+                        load_a,
+                        point: None,
+                        error: Some(format!("{e:#}")),
+                    },
                 },
-                Err(e) => Point {
-                    line_v,
-                    load_a,
-                    point: None,
-                    error: Some(format!("{e:#}")),
-                },
-            })
+            )
             .collect()
     }))
 }
@@ -165,7 +173,11 @@ pub fn csv(points: &[Point]) -> String {
         row.extend(COLUMNS.iter().map(|c| cell(p.get(c.1))));
         row.push(cell(p.point.as_ref().map(|o| o.period.duty)));
         row.extend(losses.iter().map(|l| cell(p.get(l))));
-        row.push(p.error.as_deref().map_or(String::new(), |e| format!("\"{}\"", e.replace('"', "'"))));
+        row.push(
+            p.error
+                .as_deref()
+                .map_or(String::new(), |e| format!("\"{}\"", e.replace('"', "'"))),
+        );
         out += &(row.join(",") + "\n");
     }
     out
@@ -203,7 +215,10 @@ fn write(dir: &Path, job: &Job, points: &[Point]) -> Result<()> {
         "bias_power_w": job.bias_power,
         "points": points,
     });
-    std::fs::write(dir.join("efficiency.json"), serde_json::to_string_pretty(&json)?)?;
+    std::fs::write(
+        dir.join("efficiency.json"),
+        serde_json::to_string_pretty(&json)?,
+    )?;
     efficiency_plot::plot(points, job.bias_power, &dir.join("efficiency.svg"))
 }
 
@@ -222,7 +237,9 @@ fn print_table(points: &[Point], bias: f64) {
             p.get("power.out").map_or("-".into(), |v| eng(v, "W")),
             pct(p.get("efficiency.stage")),
             pct(p.get("efficiency.with_bias")),
-            p.error.as_deref().map_or(String::new(), |e| format!("  error: {e}")),
+            p.error
+                .as_deref()
+                .map_or(String::new(), |e| format!("  error: {e}")),
         );
     }
     println!("  bias power {}", eng(bias, "W"));

@@ -140,8 +140,16 @@ pub fn report_text(p: &OperatingPoint) -> String {
     }
     out.push_str("operating point:\n");
     line(&mut out, "output mean", figure(p, "out.v.mean", "V"));
-    line(&mut out, "output ripple (pk-pk)", figure(p, "out.v.ripple_pp", "V"));
-    line(&mut out, "inductor ripple (pk-pk)", figure(p, "lout.i.ripple_pp", "A"));
+    line(
+        &mut out,
+        "output ripple (pk-pk)",
+        figure(p, "out.v.ripple_pp", "V"),
+    );
+    line(
+        &mut out,
+        "inductor ripple (pk-pk)",
+        figure(p, "lout.i.ripple_pp", "A"),
+    );
     line(&mut out, "duty", format!("{:.4}", p.period.duty));
     line(
         &mut out,
@@ -152,16 +160,44 @@ pub fn report_text(p: &OperatingPoint) -> String {
                 format!("{:.2} % of the period", 100.0 * m)
             }),
     );
-    line(&mut out, "magnetising current peak", eng(p.period.mag_current_peak_a, "A"));
-    line(&mut out, "flux density peak", eng(p.period.flux_density_peak_t, "T"));
-    line(&mut out, "drain voltage peak", eng(p.period.drain_peak_v, "V"));
+    line(
+        &mut out,
+        "magnetising current peak",
+        eng(p.period.mag_current_peak_a, "A"),
+    );
+    line(
+        &mut out,
+        "flux density peak",
+        eng(p.period.flux_density_peak_t, "T"),
+    );
+    line(
+        &mut out,
+        "drain voltage peak",
+        eng(p.period.drain_peak_v, "V"),
+    );
     line(&mut out, "input power", figure(p, "power.in", "W"));
     line(&mut out, "output power", figure(p, "power.out", "W"));
-    line(&mut out, "efficiency, power stage", percent(p.get("efficiency.stage")));
-    line(&mut out, "efficiency, with bias", percent(p.get("efficiency.with_bias")));
+    line(
+        &mut out,
+        "efficiency, power stage",
+        percent(p.get("efficiency.stage")),
+    );
+    line(
+        &mut out,
+        "efficiency, with bias",
+        percent(p.get("efficiency.with_bias")),
+    );
     out.push_str("losses:\n");
-    for f in p.measurements.iter().filter(|f| f.name.starts_with("loss.")) {
-        line(&mut out, &f.name["loss.".len()..], f.value.map_or("-".into(), |v| eng(v, "W")));
+    for f in p
+        .measurements
+        .iter()
+        .filter(|f| f.name.starts_with("loss."))
+    {
+        line(
+            &mut out,
+            &f.name["loss.".len()..],
+            f.value.map_or("-".into(), |v| eng(v, "W")),
+        );
     }
     out
 }

@@ -2,8 +2,8 @@
 //! gate commands by role, the saturation knee, and the cycle watch.
 
 use stepflux_engine::{
-    Direction, ElementId, EventFn, EventSlot, Handover, Meter, Observation, Quantity, Signal, SimOptions,
-    Simulation, Sink, StepOutcome, Stepper, Stop,
+    Direction, ElementId, EventFn, EventSlot, Handover, Meter, Observation, Quantity, Signal,
+    SimOptions, Simulation, Sink, StepOutcome, Stepper, Stop,
 };
 
 use crate::cycles::{CycleSink, CycleWatch, WatchPoints};

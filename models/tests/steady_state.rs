@@ -61,7 +61,10 @@ fn agree<M: PeriodMap>(map: &mut M, label: &str) -> SteadyState {
     for (k, n) in steady.names.iter().enumerate() {
         let (s, b) = (steady.x[k], settled.x[k]);
         let err = (s - b).abs();
-        println!("{label}: {} shooting {s:.12e} brute {b:.12e} diff {err:.2e}", n.name);
+        println!(
+            "{label}: {} shooting {s:.12e} brute {b:.12e} diff {err:.2e}",
+            n.name
+        );
         assert!(
             err <= REL * b.abs() + FLOOR,
             "{label}: state {} differs: shooting {s}, brute force {b}",
@@ -90,7 +93,10 @@ fn open_loop_dcm() {
     let mut d = demo_design();
     d.load.resistance = Some(20.0);
     let s = agree(&mut open(&d, gate(0.35, 0.0)), "open DCM");
-    assert!(s.get("lout").unwrap().abs() < 1e-3, "not in DCM at the clock edge");
+    assert!(
+        s.get("lout").unwrap().abs() < 1e-3,
+        "not in DCM at the clock edge"
+    );
 }
 
 #[test]
@@ -111,7 +117,10 @@ fn closed_loop_dcm() {
     let spec = demo_controller();
     let mut map = ClosedLoopMap::new(&d, &spec, trial_options(spec.clock_period())).unwrap();
     let s = agree(&mut map, "closed DCM");
-    assert!(s.get("lout").unwrap().abs() < 1e-3, "not in DCM at the clock edge");
+    assert!(
+        s.get("lout").unwrap().abs() < 1e-3,
+        "not in DCM at the clock edge"
+    );
 }
 
 #[test]
@@ -183,7 +192,10 @@ fn active_clamp() {
     // Volt-second balance: Vc ≈ Vin·D/(1 − D) = 10.3 V (Erickson & Maksimović §6.3.2,
     // from memory); 5 % for the dead times and drops.
     let vc = s.get("clamp.c").unwrap().abs();
-    assert!((vc - 24.0 * 0.3 / 0.7).abs() < 0.05 * 10.3, "clamp at {vc} V");
+    assert!(
+        (vc - 24.0 * 0.3 / 0.7).abs() < 0.05 * 10.3,
+        "clamp at {vc} V"
+    );
 }
 
 #[test]
@@ -219,7 +231,10 @@ fn a_named_state_that_does_not_exist_lists_the_valid_names() {
     assert!(text.contains("lout (inductor current, A)"), "{text}");
     assert!(text.contains("cout (capacitor voltage, V)"), "{text}");
     place(map.names(), &[("lout".into(), 2.5)], &mut x).unwrap();
-    assert_eq!(x[map.names().iter().position(|n| n.name == "lout").unwrap()], 2.5);
+    assert_eq!(
+        x[map.names().iter().position(|n| n.name == "lout").unwrap()],
+        2.5
+    );
 }
 
 #[test]
@@ -236,7 +251,9 @@ fn no_convergence_names_the_states() {
         ..ShootingOptions::default()
     };
     match shoot(&mut map, &opts) {
-        Err(SteadyError::NotConverged { states, residual, .. }) => {
+        Err(SteadyError::NotConverged {
+            states, residual, ..
+        }) => {
             assert!(residual > 1.0);
             assert!(!states.is_empty());
         }

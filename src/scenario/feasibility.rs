@@ -5,8 +5,8 @@
 use stepflux_models::controller::OutputMode;
 use stepflux_models::disturbance::{prepare, Disturbance};
 use stepflux_models::figures::{DesignFigures, DesignPoint};
-use stepflux_models::template::{ForwardDesign, ResetScheme};
 use stepflux_models::steady::names::{circuit_state_names, describe_all, StateClass, StateName};
+use stepflux_models::template::{ForwardDesign, ResetScheme};
 use stepflux_models::ModelError;
 
 use super::error::{ScenarioError, Warning};

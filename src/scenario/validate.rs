@@ -537,7 +537,13 @@ fn named_state(
         raw::StateValue::Text(t) => [(Unit::Ampere, "A"), (Unit::Volt, "V")]
             .iter()
             .find_map(|&(u, sym)| units::parse(t, u).ok().map(|v| (v, Some(sym))))
-            .ok_or_else(|| ctx.range(&field, format!("{t:?}"), "a current (\"3.2 A\") or a voltage (\"5 V\")"))?,
+            .ok_or_else(|| {
+                ctx.range(
+                    &field,
+                    format!("{t:?}"),
+                    "a current (\"3.2 A\") or a voltage (\"5 V\")",
+                )
+            })?,
     };
     let value = ctx.check(&field, value, true, "a finite value")?;
     Ok(NamedState {

@@ -78,17 +78,25 @@ pub fn plot(points: &[Point], bias_w: f64, out: &Path) -> Result<()> {
             chart
                 .draw_series(LineSeries::new(stage.iter().copied(), c.stroke_width(2)))?
                 .label(format!("{v} V, power stage"))
-                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], c.stroke_width(2)));
+                .legend(move |(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 20, y)], c.stroke_width(2))
+                });
             chart.draw_series(stage.iter().map(|&p| Circle::new(p, 4, c.filled())))?;
             chart
-                .draw_series(DashedLineSeries::new(bias.iter().copied(), 8, 5, c.stroke_width(2)))?
+                .draw_series(DashedLineSeries::new(
+                    bias.iter().copied(),
+                    8,
+                    5,
+                    c.stroke_width(2),
+                ))?
                 .label(format!("{v} V, with bias"))
                 .legend(move |(x, y)| {
                     PathElement::new(vec![(x, y), (x + 8, y)], c.stroke_width(2))
                 });
-            chart.draw_series(bias.iter().map(|&p| {
-                EmptyElement::at(p) + Rectangle::new([(-4, -4), (4, 4)], c.filled())
-            }))?;
+            chart
+                .draw_series(bias.iter().map(|&p| {
+                    EmptyElement::at(p) + Rectangle::new([(-4, -4), (4, 4)], c.filled())
+                }))?;
         }
         chart
             .configure_series_labels()

@@ -182,7 +182,6 @@ impl<M: PeriodMap> Solver<'_, M> {
         }
     }
 
-
     /// Half the step first (the full one has failed), halved again up to `line_search`
     /// times until the residual
     /// falls (Armijo-style on the weighted max-norm, without a slope term: the norm is
