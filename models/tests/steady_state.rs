@@ -260,3 +260,98 @@ fn no_convergence_names_the_states() {
         other => panic!("expected NotConverged, got {other:?}"),
     }
 }
+
+/// A one-state map with the shape of a period map, to pin down how the search sorts
+/// out what it finds: the logistic map x ↦ r·x·(1 − x) (May, "Simple mathematical
+/// models with very complicated dynamics", Nature 261, 1976). Its fixed point
+/// 1 − 1/r has multiplier 2 − r: stable for r < 3; for 3 < r < 1 + √6 ≈ 3.449 the
+/// orbit of period 2 is stable instead; at r = 3.9 the map is chaotic.
+struct Logistic {
+    r: f64,
+    names: Vec<stepflux_models::steady::names::StateName>,
+}
+
+impl Logistic {
+    fn new(r: f64) -> Self {
+        use stepflux_models::steady::names::{StateClass, StateName};
+        Logistic {
+            r,
+            names: vec![StateName {
+                name: "x".into(),
+                class: StateClass::Voltage,
+            }],
+        }
+    }
+}
+
+impl PeriodMap for Logistic {
+    fn names(&self) -> &[stepflux_models::steady::names::StateName] {
+        &self.names
+    }
+    fn period(&self) -> f64 {
+        1.0
+    }
+    fn initial(&self) -> Vec<f64> {
+        vec![0.3]
+    }
+    fn run_from(
+        &mut self,
+        x0: &[f64],
+        periods: usize,
+        _cycles: &mut dyn stepflux_models::cycles::CycleSink,
+    ) -> Result<Vec<f64>, stepflux_models::ModelError> {
+        let mut x = x0[0];
+        for _ in 0..periods {
+            x = self.r * x * (1.0 - x);
+        }
+        Ok(vec![x])
+    }
+}
+
+#[test]
+fn a_stable_fixed_point_is_the_steady_state() {
+    // r = 2.5: fixed point 0.6, multiplier −0.5.
+    let s = shoot(&mut Logistic::new(2.5), &ShootingOptions::default()).unwrap();
+    assert!((s.x[0] - 0.6).abs() < 1e-9);
+    assert!((s.spectral_radius - 0.5).abs() < 1e-3);
+}
+
+#[test]
+fn period_two_operation_is_reported_as_subharmonic_not_as_a_steady_state() {
+    // r = 3.2: Newton on P finds the unstable fixed point 0.6875 (multiplier −1.2);
+    // the orbit of period 2 is {0.5130, 0.7995} (roots of r²x² − r(r+1)x + r + 1 = 0).
+    match shoot(&mut Logistic::new(3.2), &ShootingOptions::default()) {
+        Err(SteadyError::Subharmonic {
+            order,
+            states,
+            orbit,
+        }) => {
+            assert_eq!(order, 2);
+            assert_eq!(states, vec!["x".to_string()]);
+            let mut pts = [orbit[0][0], orbit[1][0]];
+            pts.sort_by(f64::total_cmp);
+            let r: f64 = 3.2;
+            let disc = ((r + 1.0) * (r - 3.0)).sqrt();
+            let lo = (r + 1.0 - disc) / (2.0 * r);
+            let hi = (r + 1.0 + disc) / (2.0 * r);
+            assert!(
+                (pts[0] - lo).abs() < 1e-6 && (pts[1] - hi).abs() < 1e-6,
+                "{pts:?}"
+            );
+        }
+        other => panic!("expected period 2, got {other:?}"),
+    }
+}
+
+#[test]
+fn chaotic_operation_is_reported_as_no_steady_state() {
+    match shoot(&mut Logistic::new(3.9), &ShootingOptions::default()) {
+        Err(SteadyError::NotConverged {
+            spectral_radius, ..
+        }) => {
+            // The fixed point 1 − 1/3.9 was found but is unstable (|2 − r| = 1.9).
+            assert!(spectral_radius.is_some_and(|rho| rho > 1.0));
+        }
+        other => panic!("expected no steady state, got {other:?}"),
+    }
+}

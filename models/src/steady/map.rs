@@ -48,9 +48,6 @@ pub trait PeriodMap {
         cycles: &mut dyn CycleSink,
     ) -> Result<Vec<f64>, ModelError>;
 
-    /// The run as it stands after the last [`PeriodMap::run_from`].
-    fn run(&self) -> &ConverterRun;
-
     /// P(x0) with the cycle records dropped.
     fn apply(&mut self, x0: &[f64]) -> Result<Vec<f64>, ModelError> {
         self.run_from(x0, 1, &mut Discard)
@@ -131,8 +128,11 @@ impl PeriodMap for OpenLoopMap {
         self.run.finish(cycles);
         Ok(states_of(&self.run))
     }
+}
 
-    fn run(&self) -> &ConverterRun {
+impl OpenLoopMap {
+    /// The run as it stands after the last [`PeriodMap::run_from`].
+    pub fn run(&self) -> &ConverterRun {
         &self.run
     }
 }
@@ -229,10 +229,6 @@ impl PeriodMap for ClosedLoopMap {
         let t_end = self.at.run.handover.time + periods as f64 * self.period();
         self.lp.run_until(t_end, &mut NullSink, cycles)?;
         Ok(states_of(&self.lp.run))
-    }
-
-    fn run(&self) -> &ConverterRun {
-        &self.lp.run
     }
 }
 

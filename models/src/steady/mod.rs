@@ -204,6 +204,12 @@ pub enum SteadyError {
     },
 }
 
+/// Relative push off an unstable period-1 orbit before looking for the attractor.
+const KICK: f64 = 1e-3;
+/// Plain periods from the push to the attractor: an orbit is left at the rate of its
+/// multiplier, and 200 periods take a 1e-3 push on a multiplier of 1.05 to order one.
+const ATTRACTOR_PERIODS: usize = 200;
+
 /// Multipliers this close above 1 are taken as the forward difference's error, not as
 /// instability.
 const STABILITY_MARGIN: f64 = 1e-2;
@@ -306,9 +312,9 @@ fn period_two<M: PeriodMap>(
     // Leave the (possibly unstable) period-1 orbit towards the attractor.
     let mut kick = near.clone();
     for (k, n) in map.names().iter().enumerate() {
-        kick[k] += 1e3 * opts.tolerance.scale(n.class, near[k]);
+        kick[k] += KICK * near[k].abs().max(newton::typical(n.class));
     }
-    let x = plain_periods(map, &kick, 2 * opts.fallback_periods, count)?;
+    let x = plain_periods(map, &kick, ATTRACTOR_PERIODS, count)?;
     let mut history = Vec::new();
     if let Found::Orbit(it, jac) = solve_power(map, x, opts, count, &mut history, 2)? {
         let x1 = map.apply(&it.x)?;

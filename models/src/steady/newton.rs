@@ -10,7 +10,7 @@ use crate::error::ModelError;
 
 /// Typical magnitude of a state of each class, for sizing perturbations of states that
 /// sit near zero (a magnetising current at the clock edge): 1 A, 1 V, 1.
-fn typical(class: StateClass) -> f64 {
+pub(crate) fn typical(class: StateClass) -> f64 {
     match class {
         StateClass::Current | StateClass::Voltage | StateClass::Block => 1.0,
     }
