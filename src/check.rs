@@ -79,6 +79,7 @@ pub fn report_json(l: &Loaded) -> serde_json::Value {
             "switch_voltage_rating_v": l.job.design.switch.voltage_rating,
         },
         "signals": l.probes,
+        "states": l.states.iter().map(|n| json!({"name": n.name, "kind": n.class.describe(), "unit": n.class.unit()})).collect::<Vec<_>>(),
         "warnings": l.warnings.iter().map(|w| json!({"field": w.field, "message": w.message})).collect::<Vec<_>>(),
     })
 }
@@ -97,6 +98,10 @@ pub fn report_text(l: &Loaded) -> String {
         out.push_str(&format!("  {label:<44} {value}\n"));
     }
     out.push_str(&format!("  signals: {}\n", l.probes.join(", ")));
+    out.push_str(&format!(
+        "  states (for analysis.start.values): {}\n",
+        stepflux_models::steady::names::describe_all(&l.states)
+    ));
     if l.warnings.is_empty() {
         out.push_str("no warnings\n");
     } else {

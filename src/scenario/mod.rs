@@ -39,6 +39,8 @@ pub struct Loaded {
     pub figures: DesignFigures,
     /// Probe names of the converter as built, in sample order.
     pub probes: Vec<String>,
+    /// Its dynamic states by name, kind and unit, in the engine's order.
+    pub states: Vec<stepflux_models::steady::names::StateName>,
 }
 
 /// Reads and validates the scenario file at `path`.
@@ -79,6 +81,7 @@ pub fn load_str(text: &str, file: &str) -> Result<Loaded, ScenarioError> {
         warnings,
         figures,
         probes: built.probes,
+        states: built.states,
     })
 }
 
