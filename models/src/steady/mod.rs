@@ -276,17 +276,18 @@ fn solve_power<M: PeriodMap>(
         n => plain_periods(solver.map, &x0, n, solver.count)?,
     };
     let mut it = solver.evaluate(x0)?;
-    for attempt in 0..=opts.retries {
+    let mut attempt = 0;
+    loop {
         match solver.solve(it, history)? {
             Outcome::Converged(it, jac) => return Ok(Found::Orbit(it, jac)),
             Outcome::Stalled(best) if attempt == opts.retries => return Ok(Found::Stalled(best)),
             Outcome::Stalled(best) => {
                 let x = plain_periods(solver.map, &best.x, opts.fallback_periods, solver.count)?;
                 it = solver.evaluate(x)?;
+                attempt += 1;
             }
         }
     }
-    unreachable!("the last attempt returns")
 }
 
 /// `n` plain periods from `x`.
