@@ -61,7 +61,10 @@ pub fn plot(points: &[Point], bias_w: f64, out: &Path) -> Result<()> {
         root.fill(&WHITE)?;
         let mut chart = ChartBuilder::on(&root)
             .caption(
-                format!("Steady-state efficiency (bias power {bias_w} W)"),
+                format!(
+                    "Steady-state efficiency (bias power {})",
+                    crate::check::eng(bias_w, "W")
+                ),
                 ("sans-serif", 18),
             )
             .margin(12)
@@ -77,7 +80,7 @@ pub fn plot(points: &[Point], bias_w: f64, out: &Path) -> Result<()> {
             let c = COLOURS[k % COLOURS.len()];
             chart
                 .draw_series(LineSeries::new(stage.iter().copied(), c.stroke_width(2)))?
-                .label(format!("{v} V, power stage"))
+                .label(format!("{}, power stage", crate::check::eng(*v, "V")))
                 .legend(move |(x, y)| {
                     PathElement::new(vec![(x, y), (x + 20, y)], c.stroke_width(2))
                 });
@@ -89,7 +92,7 @@ pub fn plot(points: &[Point], bias_w: f64, out: &Path) -> Result<()> {
                     5,
                     c.stroke_width(2),
                 ))?
-                .label(format!("{v} V, with bias"))
+                .label(format!("{}, with bias", crate::check::eng(*v, "V")))
                 .legend(move |(x, y)| {
                     PathElement::new(vec![(x, y), (x + 8, y)], c.stroke_width(2))
                 });
