@@ -99,6 +99,7 @@ pub fn report_json(l: &Loaded) -> serde_json::Value {
         "signals": l.probes,
         "design_passes": l.failures.is_empty(),
         "design_failures": l.failures.iter().map(|w| json!({"field": w.field, "message": w.message})).collect::<Vec<_>>(),
+        "states": l.states.iter().map(|n| json!({"name": n.name, "kind": n.class.describe(), "unit": n.class.unit()})).collect::<Vec<_>>(),
         "warnings": l.warnings.iter().map(|w| json!({"field": w.field, "message": w.message})).collect::<Vec<_>>(),
     })
 }
@@ -139,6 +140,10 @@ pub fn report_text(l: &Loaded) -> String {
             out.push_str(&format!("  fails: {w}\n"));
         }
     }
+    out.push_str(&format!(
+        "  states (for analysis.start.values): {}\n",
+        stepflux_models::steady::names::describe_all(&l.states)
+    ));
     if l.warnings.is_empty() {
         out.push_str("no warnings\n");
     } else {

@@ -46,6 +46,50 @@ pub enum Command {
         #[arg(long)]
         json: bool,
     },
+    /// Find the periodic steady state of a scenario and print its operating point.
+    #[command(
+        after_help = "Example:\n  stepflux settle scenarios/demo-startup.json\n  \
+        stepflux settle --json scenarios/rcd-clamp.json > point.json\n\n\
+        The steady state of the initial operating point (events ignored, soft starts \
+        over) by shooting: every state by name, output mean and ripple, duty, efficiency \
+        and losses, reset margin, flux and drain peaks. Exits 3 when there is no periodic \
+        steady state (subharmonic or no convergence, with the states that do not settle)."
+    )]
+    Settle {
+        /// Scenario file (JSON; see `stepflux schema`).
+        #[arg(value_name = "SCENARIO")]
+        scenario: PathBuf,
+        /// Print one JSON object (SI units) instead of text.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Steady-state efficiency across load and line, with the loss of every element.
+    #[command(
+        after_help = "Example:\n  stepflux efficiency scenarios/demo-startup.json --load 0.5A..4A:8 --line 18V,24V,36V\n\n\
+        Each point replaces the load by a constant-current sink of that current and finds \
+        the steady state by shooting, in parallel. Writes DIR/<name>-efficiency/ with \
+        efficiency.csv and efficiency.json (SI units: power-stage efficiency, efficiency \
+        with the scenario's bias_power, every element's loss) and efficiency.svg \
+        (efficiency against output power, one colour per input voltage; solid: power \
+        stage, dashed: with the bias power). Exits 3 if a point has no steady state."
+    )]
+    Efficiency {
+        /// Scenario file (JSON; see `stepflux schema`).
+        #[arg(value_name = "SCENARIO")]
+        scenario: PathBuf,
+        /// Output currents: A..B:N, N points from A to B (e.g. 0.5A..4A:8), or one current.
+        #[arg(long, value_name = "A..B:N")]
+        load: String,
+        /// Input voltages, comma-separated (default: the scenario's).
+        #[arg(long, value_name = "V1,V2,...")]
+        line: Option<String>,
+        /// Directory that receives the `<name>-efficiency/` folder.
+        #[arg(long, value_name = "DIR", default_value = "out")]
+        out: PathBuf,
+        /// Points computed at once (0: one per core).
+        #[arg(long, value_name = "N", default_value_t = 0)]
+        jobs: usize,
+    },
     /// Run one or more scenario files, in parallel, writing each run's outputs.
     #[command(
         after_help = "Example:\n  stepflux run scenarios/demo-startup.json scenarios/load-step.json --out results\n\n\

@@ -23,8 +23,25 @@ pub enum Drive {
 pub enum Start {
     /// Every inductor current and capacitor voltage at zero (a cold start).
     Zero,
-    /// Given values of the dynamic states, in the engine's state order.
+    /// Given values of the dynamic states, in the engine's state order (deprecated:
+    /// use [`Start::Named`]).
     States(Vec<f64>),
+    /// Given values of named states; states not named keep their initial values.
+    Named(Vec<NamedState>),
+    /// The periodic steady state of the initial operating point, found by shooting;
+    /// the controller's soft starts do not apply (it has been running for ever).
+    Steady,
+}
+
+/// One state given by its owner's name.
+#[derive(Clone, Debug, PartialEq)]
+pub struct NamedState {
+    /// Element name (`lout`, `cout`, `ctl.ea.c1`).
+    pub name: String,
+    /// SI value.
+    pub value: f64,
+    /// The unit the value was written with ("A", "V"), `None` for a plain number.
+    pub unit: Option<&'static str>,
 }
 
 /// Time settings of a run.

@@ -6,6 +6,7 @@ mod batch;
 mod check;
 mod cli;
 mod demo;
+mod efficiency_cmd;
 mod exit;
 mod job;
 mod measurements;
@@ -15,6 +16,8 @@ mod print;
 mod report;
 mod run_cmd;
 mod scenario;
+mod settle_cmd;
+mod steady;
 mod units;
 mod writers;
 
@@ -68,6 +71,20 @@ fn run(cli: Cli) -> Result<(), Failure> {
             quiet,
         }),
         Command::Merge { dirs, out } => batch::merge(&dirs, &out),
+        Command::Settle { scenario, json } => settle_cmd::settle(&scenario, json),
+        Command::Efficiency {
+            scenario,
+            load,
+            line,
+            out,
+            jobs,
+        } => efficiency_cmd::efficiency(&efficiency_cmd::EfficiencyArgs {
+            scenario,
+            load,
+            line,
+            out,
+            jobs,
+        }),
         Command::Run {
             scenarios,
             out,

@@ -16,12 +16,16 @@ use stepflux_models::gate::OpenLoopGate;
 use stepflux_models::measure::LossMeters;
 use stepflux_models::run::ConverterRun;
 use stepflux_models::runaway::{Runaway, RunawayGuard};
+use stepflux_models::steady::map::settled_spec;
+use stepflux_models::steady::names::{place, state_names};
+use stepflux_models::steady::SteadyState;
 use stepflux_models::template::Converter;
 use stepflux_models::ModelError;
 
 use crate::job::{Drive, Job, Start};
 use crate::measurements::Plan;
 use crate::report::{design_figures, verdicts, Figure, Summary, CAUTION};
+use crate::steady::SteadyReport;
 use crate::writers::{plots, waveforms::WaveformSink};
 
 /// Progress slices per run: often enough for a smooth bar, rare enough to cost nothing.
@@ -47,9 +51,9 @@ enum Driver {
 }
 
 impl Driver {
-    /// The driver and the loss meters it carries (built on the converter as simulated,
-    /// controller and load-step branches included).
-    fn new(job: &Job) -> Result<(Self, LossMeters), ModelError> {
+    /// The driver and the loss meters it carries (built on the converter as
+    /// simulated, controller and load-step branches included).
+    fn new(job: &Job) -> Result<(Self, LossMeters, Option<SteadyState>), ModelError> {
         let options = |period: f64| SimOptions {
             sample_interval: Some(job.analysis.sample_interval),
             ..SimOptions::for_period(period)
@@ -58,6 +62,12 @@ impl Driver {
         let mut driver = match &job.drive {
             Drive::Controller(spec) => {
                 let options = options(spec.clock_period());
+                // Started in steady state, the controller has been running for ever:
+                // its soft starts are over.
+                let spec = &match job.analysis.start {
+                    Start::Steady => settled_spec(spec),
+                    _ => spec.clone(),
+                };
                 let meters = |conv: &Converter| {
                     let l = LossMeters::new(conv)?;
                     let m = l.meters();
@@ -86,12 +96,39 @@ impl Driver {
                 }
             }
         };
-        if let Start::States(x) = &job.analysis.start {
-            driver.run_mut().sim.set_states(x)?;
-        }
+        let steady = driver.start(job)?;
         let losses =
             losses.ok_or_else(|| ModelError::Infeasible("loss meters were not built".into()))?;
-        Ok((driver, losses))
+        Ok((driver, losses, steady))
+    }
+
+    /// Sets the initial states the job asks for; returns the steady state if it was
+    /// searched for.
+    fn start(&mut self, job: &Job) -> Result<Option<SteadyState>, ModelError> {
+        let sim = &mut self.run_mut().sim;
+        let names = state_names(sim.system());
+        let mut x = sim.state().as_slice()[..names.len()].to_vec();
+        let steady = match &job.analysis.start {
+            Start::Zero => return Ok(None),
+            Start::States(given) => {
+                x.clone_from(given);
+                None
+            }
+            Start::Named(values) => {
+                let values: Vec<(String, f64)> =
+                    values.iter().map(|v| (v.name.clone(), v.value)).collect();
+                place(&names, &values, &mut x)
+                    .map_err(|e| ModelError::Infeasible(format!("analysis.start.values: {e}")))?;
+                None
+            }
+            Start::Steady => {
+                let s = crate::steady::find_for_run(job)?;
+                crate::steady::apply(&s, &names, &mut x);
+                Some(s)
+            }
+        };
+        sim.set_states(&x)?;
+        Ok(steady)
     }
 
     fn run_mut(&mut self) -> &mut ConverterRun {
@@ -253,7 +290,7 @@ pub fn run_job_with(
         std::fs::create_dir_all(dir.join("plots"))
             .with_context(|| format!("creating {}", dir.display()))?;
     }
-    let (mut driver, losses) = Driver::new(job)
+    let (mut driver, losses, steady) = Driver::new(job)
         .map_err(|e| anyhow::anyhow!(e))
         .context("building the converter")?;
     let probes: Vec<(String, &str)> = driver
@@ -312,6 +349,7 @@ pub fn run_job_with(
         verdicts,
         stopped,
         error: None,
+        steady_state: steady.as_ref().map(SteadyReport::from),
         caution: CAUTION,
     };
     if let Err(e) = &outcome {

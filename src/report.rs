@@ -67,6 +67,10 @@ pub struct Summary {
     pub stopped: Option<String>,
     /// Why the run stopped early, if it did.
     pub error: Option<String>,
+    /// The steady state the run started from (`analysis.start: "steady"`), every
+    /// state by name.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub steady_state: Option<crate::steady::SteadyReport>,
     /// The usual caution.
     pub caution: &'static str,
 }

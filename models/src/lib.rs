@@ -24,6 +24,7 @@ pub mod gate;
 pub mod measure;
 pub mod run;
 pub mod runaway;
+pub mod steady;
 pub mod template;
 
 pub use error::ModelError;

@@ -2,8 +2,8 @@
 //! gate commands by role, the saturation knee, and the cycle watch.
 
 use stepflux_engine::{
-    Direction, ElementId, EventFn, EventSlot, Meter, Observation, Quantity, Signal, SimOptions,
-    Simulation, Sink, StepOutcome, Stepper, Stop, Topology, TracePoint, Turning,
+    Direction, ElementId, EventFn, EventSlot, Handover, Meter, Observation, Quantity, Signal,
+    SimOptions, Simulation, Sink, StepOutcome, Stepper, Stop, Topology, TracePoint, Turning,
 };
 
 use crate::cycles::{CycleSink, CycleWatch, WatchPoints};
@@ -40,6 +40,17 @@ pub enum Action {
         /// On or off.
         on: bool,
     },
+}
+
+/// Where a [`ConverterRun`] stands, kept to return to it later (the steady-state
+/// search starts many trial periods from the same instant).
+#[derive(Clone, Debug)]
+pub struct RunSnapshot {
+    /// Time, augmented state and topology.
+    pub handover: Handover,
+    watch: CycleWatch,
+    schedule: Vec<(f64, Action)>,
+    knee: Option<(bool, bool)>,
 }
 
 /// A converter being simulated, on the exact path unless another [`Stepper`] is named.
@@ -139,6 +150,44 @@ impl<S: Stepper> ConverterRun<S> {
         if let (Some(knee), Some(theirs)) = (self.knee.as_mut(), other.knee.as_ref()) {
             knee.positive_closed = theirs.positive_closed;
             knee.negative_closed = theirs.negative_closed;
+        }
+        self.arm_knee()
+    }
+
+    /// Where the run stands now (time, state, topology, open cycle record, pending
+    /// actions, saturation-knee state).
+    pub fn snapshot(&self) -> RunSnapshot {
+        RunSnapshot {
+            handover: self.sim.handover(),
+            watch: self.watch.clone(),
+            schedule: self.schedule.clone(),
+            knee: self
+                .knee
+                .as_ref()
+                .map(|k| (k.positive_closed, k.negative_closed)),
+        }
+    }
+
+    /// Returns to `at` (a snapshot of this run) with the dynamic states replaced by
+    /// `x` (length nx), then settles the diodes. Armed events other than the knee's and
+    /// the meters are left as they are: meters keep integrating across a return, so
+    /// read energies as differences over a stretch that has no return inside it.
+    pub fn restore(&mut self, at: &RunSnapshot, x: &[f64]) -> Result<(), ModelError> {
+        let mut handover = at.handover.clone();
+        let nx = self.sim.system().layout().nx();
+        if x.len() != nx {
+            return Err(ModelError::Infeasible(format!(
+                "restoring a run: {} state values given, the circuit has {nx}",
+                x.len()
+            )));
+        }
+        handover.state[..nx].copy_from_slice(x);
+        self.sim.take_over(&handover)?;
+        self.watch = at.watch.clone();
+        self.schedule = at.schedule.clone();
+        if let (Some(knee), Some((p, n))) = (self.knee.as_mut(), at.knee) {
+            knee.positive_closed = p;
+            knee.negative_closed = n;
         }
         self.arm_knee()
     }

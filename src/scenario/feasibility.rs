@@ -4,16 +4,17 @@
 //! and the paper figures already say the design fails: the run shows how) and warnings
 //! (it runs, but look).
 
-use stepflux_engine::{Layout, SimOptions, TimeGrid};
+use stepflux_engine::{SimOptions, TimeGrid};
 use stepflux_models::controller::OutputMode;
 use stepflux_models::disturbance::{prepare, Disturbance};
 use stepflux_models::figures::{DesignFigures, DesignPoint};
+use stepflux_models::steady::names::{circuit_state_names, describe_all, StateClass, StateName};
 use stepflux_models::template::{ForwardDesign, ResetScheme};
 use stepflux_models::ModelError;
 
 use super::error::{ScenarioError, Warning};
 use super::validate::Ctx;
-use crate::job::{Drive, Job, Start};
+use crate::job::{Drive, Job, NamedState, Start};
 
 /// Flux density above this fraction of Bsat is flagged: a margin for Bsat's fall with
 /// temperature and part spread (common practice).
@@ -34,8 +35,9 @@ const SAMPLES_WARN: f64 = 1e7;
 pub struct Built {
     /// Probe names in sample order.
     pub probes: Vec<String>,
-    /// Number of dynamic states (the length `analysis.start.states` must have).
-    pub states: usize,
+    /// The dynamic states by name, in the engine's order (the length the deprecated
+    /// `analysis.start.states` must have).
+    pub states: Vec<StateName>,
 }
 
 /// Builds the power stage, the controller's parts and the disturbance branches.
@@ -52,7 +54,7 @@ pub fn build(
         }
         Drive::OpenLoop(_) => prepare(&conv, events, None)?.0,
     };
-    let states = Layout::new(&conv.circuit)?.nx();
+    let states = circuit_state_names(&conv.circuit)?;
     Ok(Built {
         probes: conv.probes.iter().map(|p| p.name.clone()).collect(),
         states,
@@ -79,15 +81,21 @@ pub fn check_build(ctx: &Ctx, job: &Job, built: &Built) -> Result<(), ScenarioEr
         }
     }
     if let Start::States(x) = &job.analysis.start {
-        if x.len() != built.states {
+        if x.len() != built.states.len() {
             return Err(ctx.range(
                 "analysis.start.states",
                 format!("{} values", x.len()),
                 &format!(
-                    "{} values, one per dynamic state of this circuit",
-                    built.states
+                    "{} values, one per dynamic state of this circuit: {}",
+                    built.states.len(),
+                    describe_all(&built.states)
                 ),
             ));
+        }
+    }
+    if let Start::Named(values) = &job.analysis.start {
+        for v in values {
+            check_named(ctx, v, &built.states)?;
         }
     }
     Ok(())
@@ -104,6 +112,31 @@ pub fn sample_interval_on_grid(job: &Job) -> Option<(f64, f64)> {
     let grid = TimeGrid::new(o.max_step, o.event_resolution).ok()?;
     let ticks = grid.tick(job.analysis.sample_interval).max(1);
     Some((grid.time(ticks), grid.quantum))
+}
+
+/// A named state must exist, and a value written with a unit must have its kind's.
+fn check_named(ctx: &Ctx, v: &NamedState, states: &[StateName]) -> Result<(), ScenarioError> {
+    let field = format!("analysis.start.values.{}", v.name);
+    let Some(state) = states.iter().find(|s| s.name == v.name) else {
+        return Err(ctx.range(
+            &field,
+            format!("{:?}", v.name),
+            &format!("a state of this converter: {}", describe_all(states)),
+        ));
+    };
+    let wanted = match state.class {
+        StateClass::Current => Some("A"),
+        StateClass::Voltage => Some("V"),
+        StateClass::Block => None,
+    };
+    match (v.unit, wanted) {
+        (Some(u), Some(w)) if u != w => Err(ctx.range(
+            &field,
+            format!("{} {u}", v.value),
+            &format!("a {} in {w}", state.class.describe()),
+        )),
+        _ => Ok(()),
+    }
 }
 
 /// Where the figures are evaluated for `job`.
@@ -164,6 +197,14 @@ pub fn judge(ctx: &Ctx, job: &Job, f: &DesignFigures) -> Result<Judgement, Scena
             message,
         })
     };
+    if matches!(job.analysis.start, Start::States(_)) {
+        warn(
+            "analysis.start.states",
+            "positional initial states are deprecated and break when the circuit changes; \
+             give them by name in analysis.start.values (`stepflux check` lists the names)"
+                .into(),
+        );
+    }
     let d = &job.design;
     check_mode(ctx, job)?;
     match (&d.reset, f.reset_limit_duty) {

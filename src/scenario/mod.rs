@@ -42,6 +42,8 @@ pub struct Loaded {
     pub figures: DesignFigures,
     /// Probe names of the converter as built, in sample order.
     pub probes: Vec<String>,
+    /// Its dynamic states by name, kind and unit, in the engine's order.
+    pub states: Vec<stepflux_models::steady::names::StateName>,
 }
 
 /// Reads and validates the scenario file at `path`.
@@ -83,6 +85,7 @@ pub fn load_str(text: &str, file: &str) -> Result<Loaded, ScenarioError> {
         failures: judged.failures,
         figures,
         probes: built.probes,
+        states: built.states,
     })
 }
 

@@ -6,6 +6,8 @@
 //! Values carry their unit (see [`crate::units`]). The JSON Schema printed by
 //! `stepflux schema` is generated from these types, doc comments included.
 
+use std::collections::BTreeMap;
+
 use schemars::JsonSchema;
 use serde::Deserialize;
 
@@ -498,8 +500,27 @@ pub struct Analysis {
 pub enum Start {
     /// Every inductor current and capacitor voltage at zero: a cold start.
     Zero,
-    /// The dynamic states in the simulator's state order, SI units.
+    /// The periodic steady state of the initial operating point (found by shooting);
+    /// soft starts do not apply.
+    Steady,
+    /// Deprecated: the dynamic states in the simulator's state order, SI units. Use
+    /// `values`.
     States(Vec<f64>),
+    /// Initial values by state name: an inductor's current ("3.2 A") or a
+    /// capacitor's voltage ("5 V") under the element's name (`lout`, `cout`,
+    /// `clamp.c`, `ctl.ea.c1`); `stepflux check` lists the names. States not named
+    /// start at their usual initial values.
+    Values(BTreeMap<String, StateValue>),
+}
+
+/// A state's value: a plain SI number, or a string with amperes or volts.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(untagged)]
+pub enum StateValue {
+    /// SI number.
+    Number(f64),
+    /// With its unit, e.g. "3.2 A", "480 mV".
+    Text(String),
 }
 
 /// A change of operating point at a set time.

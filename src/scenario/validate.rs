@@ -20,7 +20,8 @@ use stepflux_models::ModelError;
 
 use super::error::ScenarioError;
 use super::raw;
-use crate::job::{Analysis, Drive, Limits, Start};
+use crate::job::{Analysis, Drive, Limits, NamedState, Start};
+use crate::units::{self, Unit};
 
 /// Off-state resistance when a file leaves it out, ohms: a leakage figure of the order
 /// data sheets give for small power devices (common practice), and high enough against
@@ -508,12 +509,47 @@ pub fn analysis(ctx: &Ctx, a: &raw::Analysis) -> Result<Analysis, ScenarioError>
     }
     let start = match &a.start {
         None | Some(raw::Start::Zero) => Start::Zero,
+        Some(raw::Start::Steady) => Start::Steady,
         Some(raw::Start::States(x)) => Start::States(x.clone()),
+        Some(raw::Start::Values(v)) => Start::Named(
+            v.iter()
+                .map(|(name, value)| named_state(ctx, name, value))
+                .collect::<Result<_, _>>()?,
+        ),
     };
     Ok(Analysis {
         stop_time,
         sample_interval,
         start,
+    })
+}
+
+/// One named initial state: a number, or text in amperes or volts (which of the two
+/// the state needs is checked once the circuit is built).
+fn named_state(
+    ctx: &Ctx,
+    name: &str,
+    value: &raw::StateValue,
+) -> Result<NamedState, ScenarioError> {
+    let field = format!("analysis.start.values.{name}");
+    let (value, unit) = match value {
+        raw::StateValue::Number(v) => (*v, None),
+        raw::StateValue::Text(t) => [(Unit::Ampere, "A"), (Unit::Volt, "V")]
+            .iter()
+            .find_map(|&(u, sym)| units::parse(t, u).ok().map(|v| (v, Some(sym))))
+            .ok_or_else(|| {
+                ctx.range(
+                    &field,
+                    format!("{t:?}"),
+                    "a current (\"3.2 A\") or a voltage (\"5 V\")",
+                )
+            })?,
+    };
+    let value = ctx.check(&field, value, true, "a finite value")?;
+    Ok(NamedState {
+        name: name.to_string(),
+        value,
+        unit,
     })
 }
 

@@ -1,5 +1,6 @@
-//! Output writers: waveforms (HDF5), plots (SVG).
+//! Output writers: waveforms (HDF5), plots (SVG), the efficiency plot (SVG).
 
+pub mod efficiency_plot;
 pub mod hdf5;
 pub mod plots;
 pub mod waveforms;

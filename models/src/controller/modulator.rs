@@ -17,11 +17,22 @@ use super::{ControllerParts, ControllerSpec, OutputMode};
 use crate::cycles::CycleSink;
 use crate::disturbance::{prepare, Disturbance};
 use crate::error::ModelError;
-use crate::run::ConverterRun;
+use crate::run::{ConverterRun, RunSnapshot};
 use crate::template::{Converter, ForwardDesign};
 
 /// Event-signal index of the control voltage in the run (0 is the magnetising current).
 const CONTROL_SIGNAL: usize = 1;
+
+/// Where a [`ClosedLoop`] stands at a clock edge: the converter run and the
+/// controller's sequential state.
+#[derive(Clone, Debug)]
+pub struct LoopSnapshot {
+    /// The converter run.
+    pub run: RunSnapshot,
+    enabled_at: Option<f64>,
+    clock: u64,
+    complement_on: bool,
+}
 
 /// A converter under closed-loop control, on the exact path unless another [`Stepper`]
 /// is named.
@@ -113,6 +124,31 @@ impl<S: Stepper> ClosedLoop<S> {
         self.clock = other.clock;
         self.complement_on = other.complement_on;
         Ok(())
+    }
+
+    /// Where the loop stands; take it at a clock edge (after [`ClosedLoop::advance_to`]).
+    pub fn snapshot(&self) -> LoopSnapshot {
+        LoopSnapshot {
+            run: self.run.snapshot(),
+            enabled_at: self.enabled_at,
+            clock: self.clock,
+            complement_on: self.complement_on,
+        }
+    }
+
+    /// Returns to `at` (a snapshot of this loop) with the dynamic states replaced by
+    /// `x`; see [`ConverterRun::restore`].
+    pub fn restore(&mut self, at: &LoopSnapshot, x: &[f64]) -> Result<(), ModelError> {
+        self.run.restore(&at.run, x)?;
+        self.enabled_at = at.enabled_at;
+        self.clock = at.clock;
+        self.complement_on = at.complement_on;
+        Ok(())
+    }
+
+    /// Clock periods completed so far.
+    pub fn clock_count(&self) -> u64 {
+        self.clock
     }
 
     /// Where the controller sits in the circuit.
