@@ -1,6 +1,9 @@
 //! Start-up: time to 90 % of the set point, overshoot, monotonic rise, and the largest
 //! duty the controller reached on the way.
 
+use stepflux_engine::TracePoint;
+
+use super::window::crossing;
 use super::{percent, probe_index, Figure, Measurement};
 use crate::cycles::CycleRecord;
 use crate::error::ModelError;
@@ -19,7 +22,8 @@ pub struct StartUp {
     dip_allowance: f64,
     from: f64,
     to: f64,
-    last: Option<(f64, f64)>,
+    /// Last point: time, value, slope (NaN when unknown).
+    last: Option<(f64, f64, f64)>,
     t90: Option<f64>,
     running_max: f64,
     max_dip: f64,
@@ -95,21 +99,19 @@ impl StartUp {
     }
 }
 
-impl Measurement for StartUp {
-    fn sample(&mut self, time: f64, values: &[f64], _at_event: bool) {
-        let Some(&v) = values.get(self.column) else {
-            return;
-        };
+impl StartUp {
+    /// One point of the output, with its slope (NaN when unknown).
+    fn observe(&mut self, time: f64, v: f64, slope: f64) {
         if time < self.from || time > self.to {
             return;
         }
         let level = 0.9 * self.set_point;
         if self.t90.is_none() {
             if v >= level {
-                // Where the line between the last two samples crosses the level.
+                // Where the output between the last two points crosses the level.
                 self.t90 = Some(match self.last {
-                    Some((t0, v0)) if v0 < level && v > v0 => {
-                        t0 + (time - t0) * (level - v0) / (v - v0)
+                    Some((t0, v0, d0)) if v0 < level && v > v0 => {
+                        crossing(t0, v0, d0, time, v, slope, level)
                     }
                     _ => time,
                 });
@@ -121,7 +123,22 @@ impl Measurement for StartUp {
         if self.peak.is_none_or(|(_, p)| v > p) {
             self.peak = Some((time, v));
         }
-        self.last = Some((time, v));
+        self.last = Some((time, v, slope));
+    }
+}
+
+impl Measurement for StartUp {
+    fn sample(&mut self, time: f64, values: &[f64], _at_event: bool) {
+        if let Some(&v) = values.get(self.column) {
+            self.observe(time, v, f64::NAN);
+        }
+    }
+
+    fn trace(&mut self, point: &TracePoint<'_>) {
+        if let Some(&v) = point.values.get(self.column) {
+            let slope = point.slopes.get(self.column).copied().unwrap_or(f64::NAN);
+            self.observe(point.time, v, slope);
+        }
     }
 
     fn cycle(&mut self, r: &CycleRecord) {

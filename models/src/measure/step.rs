@@ -3,7 +3,7 @@
 
 use stepflux_engine::TracePoint;
 
-use super::window::{CycleRange, WindowExtremes, WindowMean};
+use super::window::{crossing, CycleRange, WindowExtremes, WindowMean};
 use super::{percent, probe_index, Figure, Measurement};
 use crate::cycles::CycleRecord;
 use crate::error::ModelError;
@@ -57,7 +57,8 @@ pub struct StepResponse {
     final_mean: WindowMean,
     before: CycleRange,
     after: CycleRange,
-    last: Option<(f64, f64)>,
+    /// Last point: time, value, slope (NaN when unknown).
+    last: Option<(f64, f64, f64)>,
     ever_outside: bool,
     entered: Option<f64>,
 }
@@ -182,28 +183,26 @@ impl StepResponse {
     }
 
     /// Tracks band exits and the last entry.
-    fn track_band(&mut self, t: f64, v: f64) {
+    fn track_band(&mut self, t: f64, v: f64, slope: f64) {
         let s = &self.settings;
         let half = s.band * s.set_point;
         let outside = (v - s.set_point).abs() > half;
         if outside {
             self.ever_outside = true;
             self.entered = None;
-        } else if let Some((t0, v0)) = self.last {
+        } else if let Some((t0, v0, d0)) = self.last {
             let was_outside = (v0 - s.set_point).abs() > half;
             if was_outside && t > t0 {
                 let edge = s.set_point + half * (v0 - s.set_point).signum();
-                self.entered = Some(t0 + (t - t0) * (edge - v0) / (v - v0));
+                self.entered = Some(crossing(t0, v0, d0, t, v, slope, edge));
             }
         }
     }
 }
 
-impl Measurement for StepResponse {
-    fn sample(&mut self, time: f64, values: &[f64], _at_event: bool) {
-        let Some(&v) = values.get(self.column) else {
-            return;
-        };
+impl StepResponse {
+    /// One point of the output, with its slope (NaN when unknown).
+    fn observe(&mut self, time: f64, v: f64, slope: f64) {
         if time < self.settings.step_time || time >= self.settings.until {
             return;
         }
@@ -215,24 +214,24 @@ impl Measurement for StepResponse {
             }
         }
         self.extremes.add(time, v);
-        self.final_mean.add(time, v);
-        self.track_band(time, v);
-        self.last = Some((time, v));
+        self.final_mean.add_with_slope(time, v, slope);
+        self.track_band(time, v, slope);
+        self.last = Some((time, v, slope));
+    }
+}
+
+impl Measurement for StepResponse {
+    fn sample(&mut self, time: f64, values: &[f64], _at_event: bool) {
+        if let Some(&v) = values.get(self.column) {
+            self.observe(time, v, f64::NAN);
+        }
     }
 
     fn trace(&mut self, point: &TracePoint<'_>) {
-        let (time, values) = (point.time, point.values);
-        let Some(&v) = values.get(self.column) else {
-            return;
-        };
-        if time < self.settings.step_time || time > self.settings.until {
-            return;
+        if let Some(&v) = point.values.get(self.column) {
+            let slope = point.slopes.get(self.column).copied().unwrap_or(f64::NAN);
+            self.observe(point.time, v, slope);
         }
-        let slope = point.slopes.get(self.column).copied().unwrap_or(f64::NAN);
-        self.extremes.add(time, v);
-        self.final_mean.add_with_slope(time, v, slope);
-        self.track_band(time, v);
-        self.last = Some((time, v));
     }
 
     fn cycle(&mut self, r: &CycleRecord) {

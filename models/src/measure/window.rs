@@ -64,6 +64,31 @@ impl WindowMean {
     }
 }
 
+/// Where the quantity between (t0, v0) and (t1, v1), with slopes d0 and d1 (NaN when
+/// unknown), reaches `level`, which lies between v0 and v1: on the cubic Hermite
+/// through the two points and slopes (the straight line without slopes), by bisection.
+pub(crate) fn crossing(t0: f64, v0: f64, d0: f64, t1: f64, v1: f64, d1: f64, level: f64) -> f64 {
+    let seg = Segment {
+        t0,
+        v0,
+        d0,
+        t1,
+        v1,
+        d1,
+    };
+    let (mut a, mut b) = (t0, t1);
+    let below = v0 < level;
+    for _ in 0..60 {
+        let m = 0.5 * (a + b);
+        if (seg.at(m) < level) == below {
+            a = m;
+        } else {
+            b = m;
+        }
+    }
+    0.5 * (a + b)
+}
+
 /// The quantity between two points: cubic Hermite when both slopes are known, else
 /// the straight line.
 struct Segment {
