@@ -43,6 +43,9 @@ pub enum Command {
         /// Print one JSON object instead of text.
         #[arg(long)]
         json: bool,
+        /// Accept a run past the default cost bounds (periods, output size, sample interval).
+        #[arg(long)]
+        allow_large: bool,
     },
     /// Run one or more scenario files, in parallel, writing each run's outputs.
     #[command(
@@ -67,6 +70,9 @@ pub enum Command {
         /// Print one JSON document with every summary instead of text.
         #[arg(long)]
         json: bool,
+        /// Accept runs past the default cost bounds (see `stepflux check`).
+        #[arg(long)]
+        allow_large: bool,
     },
     /// Plot signals of a waveform file into an SVG file.
     #[command(
@@ -133,6 +139,9 @@ pub enum Command {
         /// No progress bar and no tally (errors still print).
         #[arg(long)]
         quiet: bool,
+        /// Accept cases past the default cost bounds (see `stepflux check`).
+        #[arg(long)]
+        allow_large: bool,
     },
     /// Join the results of batch shards into the tables of the whole study.
     #[command(

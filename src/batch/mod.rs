@@ -86,6 +86,8 @@ pub struct BatchArgs {
     pub list: bool,
     /// No progress bar and no tally.
     pub quiet: bool,
+    /// Accept cases past the default cost bounds.
+    pub allow_large: bool,
 }
 
 /// `stepflux batch`.
@@ -148,6 +150,7 @@ fn run(
         waveforms: args.waveforms,
         resume: args.resume,
         quiet: args.quiet,
+        allow_large: args.allow_large,
     };
     let reused = runner::run_cases(study, slice, layout, settings)?;
     if reused > 0 && !args.quiet {

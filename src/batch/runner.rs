@@ -17,6 +17,7 @@ use super::cases::{fingerprint, scenario_text, Case};
 use super::record::{write_json, CaseRecord, Status};
 use super::study::Study;
 use crate::pipeline::{run_job_with, RunSettings};
+use crate::budget;
 use crate::report::Summary;
 use crate::scenario;
 
@@ -42,6 +43,8 @@ pub struct Settings {
     pub resume: bool,
     /// No progress bar.
     pub quiet: bool,
+    /// Accept cases past the default cost bounds.
+    pub allow_large: bool,
 }
 
 /// Where a study's outputs go: `<out>/<study>/`.
@@ -103,7 +106,7 @@ pub fn run_cases(study: &Study, cases: &[Case], layout: &Layout, s: Settings) ->
         .with_context(|| format!("creating {}", layout.cases().display()))?;
     let prepared: Vec<(&Case, Result<String, String>)> = cases
         .iter()
-        .map(|c| (c, scenario_text(study, c).map_err(|e| format!("{e:#}"))))
+        .map(|c| (c, scenario_text(study, c).map_err(|e| crate::text::one_line(&e))))
         .collect();
     let tally = Tally::default();
     let todo: Vec<_> = prepared
@@ -122,7 +125,7 @@ pub fn run_cases(study: &Study, cases: &[Case], layout: &Layout, s: Settings) ->
     let write_error: Mutex<Option<anyhow::Error>> = Mutex::new(None);
     pool.install(|| {
         todo.par_iter().for_each(|(case, text)| {
-            let record = run_case(study, case, text, layout, s.waveforms);
+            let record = run_case(study, case, text, layout, s);
             tally.add(record.status);
             if let Err(e) = write_json(&layout.case_file(&case.id), &record) {
                 if let Ok(mut slot) = write_error.lock() {
@@ -179,7 +182,7 @@ fn run_case(
     case: &Case,
     text: &Result<String, String>,
     layout: &Layout,
-    waveforms: Waveforms,
+    s: Settings,
 ) -> CaseRecord {
     let started = Instant::now();
     let parameters = study
@@ -201,11 +204,11 @@ fn run_case(
         Ok(text) => {
             let label = format!("{} case {}", study.file, case.id);
             let run = catch_unwind(AssertUnwindSafe(|| {
-                simulate(text, &label, &layout.waveforms(), waveforms)
+                simulate(text, &label, &layout.waveforms(), s)
             }));
             match run {
                 Ok(Ok(summary)) => record.set_summary(&summary),
-                Ok(Err(e)) => record.set_error(format!("{e:#}")),
+                Ok(Err(e)) => record.set_error(crate::text::one_line(&e)),
                 Err(panic) => record.set_error(format!("panic: {}", panic_text(&*panic))),
             }
         }
@@ -214,10 +217,13 @@ fn run_case(
     record
 }
 
-fn simulate(text: &str, label: &str, waveform_root: &Path, policy: Waveforms) -> Result<Summary> {
+fn simulate(text: &str, label: &str, waveform_root: &Path, s: Settings) -> Result<Summary> {
+    let policy = s.waveforms;
     let loaded = scenario::load_str(text, label).map_err(|e| anyhow!("{e}"))?;
+    budget::enforce(&loaded, s.allow_large).map_err(|e| anyhow!("{e}"))?;
     let settings = RunSettings {
         waveforms: policy != Waveforms::None,
+        stop: None,
     };
     let output = run_job_with(&loaded.job, waveform_root, &|_| {}, settings)?;
     if policy == Waveforms::Failed && output.summary.passed {
