@@ -10,7 +10,7 @@ use crate::units::Unit;
 /// Smallest and largest magnitude allowed for `unit`, in SI units, and how to say it.
 pub fn band(unit: Unit) -> (f64, f64, &'static str) {
     match unit {
-        Unit::Farad => (1e-15, 100.0, "1 fF to 100 F"),
+        Unit::Farad => (1e-15, 1e4, "1 fF to 10 kF"),
         Unit::Henry => (1e-12, 100.0, "1 pH to 100 H"),
         Unit::Volt => (1e-6, 1e6, "1 µV to 1 MV"),
         Unit::Ampere => (1e-9, 1e6, "1 nA to 1 MA"),
@@ -58,7 +58,7 @@ mod tests {
 
     #[test]
     fn the_smallest_double_and_a_huge_voltage_are_refused() {
-        assert!(refuse(5e-324, Unit::Farad).is_some_and(|m| m.contains("1 fF to 100 F")));
+        assert!(refuse(5e-324, Unit::Farad).is_some_and(|m| m.contains("1 fF to 10 kF")));
         assert!(refuse(1e308, Unit::Volt).is_some_and(|m| m.contains("1 µV to 1 MV")));
         assert!(refuse(1e-30, Unit::Hertz).is_some());
         assert!(refuse(0.0, Unit::Ohm).is_none());

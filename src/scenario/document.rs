@@ -102,11 +102,7 @@ fn explain(
             let allowed = choice_list(&choices);
             return (
                 path_text(here),
-                format!(
-                    "expected one choice: an object with exactly one key, one of {allowed}; \
-                     found {}",
-                    describe(found)
-                ),
+                format!("expected one choice: {allowed}; found {}", describe(found)),
             );
         }
     }
@@ -127,7 +123,7 @@ fn explain(
 fn reword(message: &str) -> String {
     message
         .replace("unknown variant", "unknown choice")
-        .replace("expected one of", "allowed:")
+        .replace(", expected one of", "; allowed:")
 }
 
 fn strip_position(e: &serde_json::Error) -> String {
@@ -234,6 +230,12 @@ enum Choice {
 }
 
 fn choices(schema: &Value, node: &Value) -> Vec<Choice> {
+    if let Some(names) = node.get("enum").and_then(Value::as_array) {
+        return names
+            .iter()
+            .filter_map(|n| n.as_str().map(|n| Choice::Name(n.to_string())))
+            .collect();
+    }
     let Some(alternatives) = node.get("oneOf").and_then(Value::as_array) else {
         return Vec::new();
     };
@@ -266,6 +268,7 @@ fn is_one_of(found: &Value, choices: &[Choice]) -> bool {
     }
 }
 
+/// The allowed choices in words: texts in quotes, keys in backticks.
 fn choice_list(choices: &[Choice]) -> String {
     let keys: Vec<String> = choices
         .iter()
@@ -281,9 +284,14 @@ fn choice_list(choices: &[Choice]) -> String {
             Choice::Key(_) => None,
         })
         .collect();
-    match names.is_empty() {
-        true => keys.join(", "),
-        false => format!("{} (or the text {})", keys.join(", "), names.join(", ")),
+    let object = format!(
+        "an object with exactly one key, one of {}",
+        keys.join(", ")
+    );
+    match (keys.is_empty(), names.is_empty()) {
+        (false, true) => object,
+        (true, _) => format!("one of the texts {}", names.join(", ")),
+        (false, false) => format!("the text {}, or {object}", names.join(", ")),
     }
 }
 
@@ -291,10 +299,7 @@ fn choice_list(choices: &[Choice]) -> String {
 fn expectation(schema: &Value, node: &Value) -> String {
     let choices = choices(schema, node);
     if !choices.is_empty() {
-        return format!(
-            "one choice: an object with exactly one key, one of {}",
-            choice_list(&choices)
-        );
+        return format!("one choice: {}", choice_list(&choices));
     }
     let kind = node.get("type").and_then(Value::as_str);
     match kind {
@@ -338,6 +343,10 @@ fn describe(v: &Value) -> String {
         Value::Array(a) if a.is_empty() => "an empty list []".into(),
         Value::Array(a) => format!("a list of {} item(s)", a.len()),
         Value::Object(m) if m.is_empty() => "an empty object {}".into(),
+        Value::Object(m) if m.len() == 1 => {
+            let key = m.keys().next().map_or("", String::as_str);
+            shorten(&format!("an object with the one key `{key}`"))
+        }
         Value::Object(m) => {
             let keys: Vec<String> = m.keys().take(5).map(|k| format!("`{k}`")).collect();
             let more = if m.len() > 5 { ", …" } else { "" };

@@ -146,8 +146,8 @@ mod tests {
     fn finds_nested_keys_and_array_elements() {
         let text = "{\n  \"a\": { \"b\": [1, {\"c\": \"x,y\"}] },\n  \"d\": 5\n}";
         assert_eq!(locate(text, "d"), Some((3, 8)));
-        assert_eq!(locate(text, "a.b[1].c"), Some((2, 23)));
-        assert_eq!(locate(text, "a.b[0]"), Some((2, 15)));
+        assert_eq!(locate(text, "a.b[1].c"), Some((2, 25)));
+        assert_eq!(locate(text, "a.b[0]"), Some((2, 16)));
         assert_eq!(locate(text, "a.missing"), None);
     }
 }
