@@ -106,6 +106,13 @@ pub fn run(
         .unwrap_or(Exit::Ok);
     match worst {
         Exit::Ok => Ok(()),
+        Exit::Interrupted => Err(Failure {
+            exit: Exit::Interrupted,
+            error: anyhow::anyhow!(
+                "interrupted by SIGINT or SIGTERM: each run's results up to the stop are in \
+                 its folder, its summary.json marked \"interrupted\""
+            ),
+        }),
         exit => Err(Failure {
             exit,
             error: anyhow::anyhow!(

@@ -55,12 +55,34 @@ pub fn causes(error: &anyhow::Error) -> Vec<String> {
         }
         out.push(shorten(&text));
     }
+    if let Some(hint) = out.last().and_then(|m| storage_hint(m)) {
+        out.push(hint.to_string());
+    }
     out
 }
 
 /// [`causes`] on one line, joined by ": ", for summaries and result tables.
 pub fn one_line(error: &anyhow::Error) -> String {
     causes(error).join(": ")
+}
+
+/// Operating-system reports of no room to write: ENOSPC (28) and EFBIG (27), as the
+/// standard library and the HDF5 library word them.
+const NO_ROOM: [&str; 6] = [
+    "os error 28",
+    "os error 27",
+    "errno = 28",
+    "errno = 27",
+    "No space left",
+    "File too large",
+];
+
+/// What to do about a failure to write for want of room, if `message` is one.
+pub fn storage_hint(message: &str) -> Option<&'static str> {
+    NO_ROOM.iter().any(|m| message.contains(m)).then_some(
+        "no room to write: the disk is full or a file-size limit (ulimit -f, quota) was \
+         reached; free space or choose another --out",
+    )
 }
 
 #[cfg(test)]

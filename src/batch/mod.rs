@@ -111,7 +111,16 @@ pub fn batch(args: &BatchArgs) -> Result<(), Failure> {
     let layout = Layout {
         dir: args.out.join(&study.name),
     };
-    let records = run(&study, &slice, &layout, &meta, args).exit_with(Exit::SimulationFailed)?;
+    let records = run(&study, &slice, &layout, &meta, args);
+    if crate::interrupt::requested() {
+        return Err(anyhow!(
+            "interrupted by SIGINT or SIGTERM: the finished cases' results are in {}; run \
+             the same command with --resume to do the rest",
+            layout.cases().display()
+        ))
+        .exit_with(Exit::Interrupted);
+    }
+    let records = records.exit_with(Exit::SimulationFailed)?;
     outcome(&layout.dir, &records, &[], args.quiet)
 }
 
