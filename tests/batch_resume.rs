@@ -98,3 +98,29 @@ fn resume_reruns_cases_whose_scenario_changed() {
     let stderr = String::from_utf8_lossy(&again.stderr);
     assert!(!stderr.contains("reused"), "{stderr}");
 }
+
+#[test]
+fn resume_removes_temporary_files_a_crashed_run_left() {
+    let root = scratch("batch_stale_tmp");
+    let study = write_study(&root, &quick_study("stale"));
+    let cases = root.join("out/stale/cases");
+    std::fs::create_dir_all(&cases).unwrap();
+    // A case file half-written by a process that no longer exists: 4294967295 is above
+    // any Linux pid (pid_max is at most 2^22).
+    let stale = cases.join(".c0001.json.4294967295.tmp");
+    std::fs::write(&stale, "{ \"id\": \"c00").unwrap();
+    let out = batch(&study, &root.join("out"), &["--jobs", "2", "--resume"]);
+    code(&out, &[0, 1]);
+    assert!(!stale.exists(), "the stale temporary file was removed");
+    let left: Vec<_> = std::fs::read_dir(&cases)
+        .unwrap()
+        .flatten()
+        .filter(|e| e.file_name().to_string_lossy().ends_with(".tmp"))
+        .collect();
+    assert!(left.is_empty(), "{left:?}");
+    assert!(
+        String::from_utf8_lossy(&out.stderr).contains("removed 1 temporary file(s)"),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
