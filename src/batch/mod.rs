@@ -90,6 +90,13 @@ pub struct BatchArgs {
     pub allow_large: bool,
 }
 
+/// Loads study `text` and expands its cases, as `batch --list` does; returns the case
+/// count. For the fuzz targets and tests that exercise study loading without files.
+pub fn plan_text(text: &str, dir: &Path, file: &str) -> Result<usize> {
+    let study = study::load_text(text, dir, file)?;
+    Ok(cases::plan(&study)?.len())
+}
+
 /// `stepflux batch`.
 pub fn batch(args: &BatchArgs) -> Result<(), Failure> {
     let study = study::load(&args.study)
