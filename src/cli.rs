@@ -11,7 +11,8 @@ use crate::batch::{Shard, Waveforms};
     name = "stepflux",
     version,
     about = "Cycle-by-cycle time-domain simulator for forward converters and their PWM control loops",
-    after_help = "Exit codes: 0 ok, 1 a spec limit failed, 2 bad input, 3 simulation failed."
+    after_help = "Exit codes: 0 ok, 1 a spec limit failed, 2 bad input, 3 simulation failed, \
+        4 interrupted (SIGINT/SIGTERM; partial results written)."
 )]
 pub struct Cli {
     #[command(subcommand)]
@@ -34,7 +35,9 @@ pub enum Command {
         after_help = "Example:\n  stepflux check scenarios/demo-startup.json\n  \
         stepflux check --json scenarios/rcd-clamp.json > figures.json\n\n\
         Exits 0 when the scenario can run (warnings included), 2 when it cannot, with the \
-        file position or field path of the problem on stderr."
+        file position or field path of the problem on stderr. Prints the run's cost \
+        estimate; past the default bounds (1e8 switching periods, 10 GB of waveforms, a \
+        sample interval below the engine's time quantum) it exits 2 unless --allow-large."
     )]
     Check {
         /// Scenario file (JSON; see `stepflux schema`).
@@ -52,7 +55,10 @@ pub enum Command {
         after_help = "Example:\n  stepflux run scenarios/demo-startup.json scenarios/load-step.json --out results\n\n\
         Writes DIR/<scenario name>/waveforms.h5, summary.json and plots/*.svg for each \
         scenario. One bad or failing scenario does not stop the others; the exit code is \
-        the most severe outcome (3 simulation failed, 2 bad input, 1 a limit failed, 0 ok)."
+        the most severe outcome (4 interrupted, 3 simulation failed, 2 bad input, 1 a limit \
+        failed, 0 ok). Every scenario is loaded and checked before any runs; two of one \
+        name are refused. Ctrl-C or SIGTERM stops each run at its next slice, writing its \
+        summary marked interrupted; a second signal ends the process at once."
     )]
     Run {
         /// Scenario files (JSON; see `stepflux schema`).
@@ -112,7 +118,9 @@ pub enum Command {
         Writes DIR/<study>/cases/<id>.json as each case ends, then results.csv, \
         results.json and worst.json. Shard I/N runs the cases whose 0-based index k has \
         k mod N = I-1. Exits 0 when every case passed, 1 when a case failed a limit, 3 \
-        when a case errored (3 wins), 2 when the study is invalid."
+        when a case errored (3 wins), 2 when the study is invalid, 4 when stopped by \
+        SIGINT or SIGTERM (finished cases are kept; --resume does the rest and removes \
+        temporary files a crashed run left)."
     )]
     Batch {
         /// Study file (JSON; see `stepflux schema --study`).
