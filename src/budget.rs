@@ -4,17 +4,20 @@
 //!
 //! The estimate is arithmetic, not a trial run. Its constants come from the
 //! `long_run` bench on the reference machine (README "Benchmarks": 10⁶ periods of the
-//! closed-loop demo with six signals, 17 s, 521 MB): about 8 switching instants per
-//! period, each saved as a waveform row, and the per-period and per-value costs below.
+//! closed-loop demo with six signals, 17 s, 521 MB) and from the 7 ms load-step example
+//! (1050 periods: 5182 switching-instant rows, 4216 topology changes, 1.30 MB).
 
 use serde::Serialize;
 use stepflux_engine::{SimOptions, TimeGrid};
 
 use crate::scenario::{design_point, Loaded, ScenarioError};
 
-/// Switching instants saved per period besides the regular samples (clock edge, turn-off,
-/// reset end, rectifier and freewheel hand-overs; the demo shows 7.5).
-const INSTANTS_PER_PERIOD: f64 = 8.0;
+/// Switching instants saved as waveform rows per period besides the regular samples
+/// (clock edge, turn-off, reset end, rectifier and freewheel hand-overs; the load-step
+/// example shows 4.9).
+const INSTANTS_PER_PERIOD: f64 = 5.0;
+/// Topology changes recorded per period (the load-step example shows 4.0).
+const CHANGES_PER_PERIOD: f64 = 4.0;
 /// Wall seconds per simulated period, stepping and measuring (closed-loop bench).
 const SECONDS_PER_PERIOD: f64 = 4e-6;
 /// Wall seconds per value written to the waveform file.
@@ -62,7 +65,7 @@ pub fn estimate(l: &Loaded) -> Cost {
     // Rows hold time, the at-event flag and each signal.
     let values = samples * (2.0 + signals as f64)
         + periods * CYCLE_COLUMNS
-        + INSTANTS_PER_PERIOD * periods * EVENT_COLUMNS;
+        + CHANGES_PER_PERIOD * periods * EVENT_COLUMNS;
     Cost {
         periods,
         samples_per_signal: samples,
@@ -164,6 +167,36 @@ impl Cost {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The load-step example with `stop` and `sample` in place of its own.
+    fn load_step(stop: &str, sample: &str) -> Loaded {
+        let mut v: serde_json::Value =
+            serde_json::from_str(include_str!("../scenarios/demo-load-step.json")).unwrap();
+        v["analysis"]["stop_time"] = serde_json::json!(stop);
+        v["analysis"]["sample_interval"] = serde_json::json!(sample);
+        crate::scenario::load_str(&v.to_string(), "load-step.json").unwrap()
+    }
+
+    #[test]
+    fn the_size_estimate_matches_measured_files() {
+        // Measured: README "Benchmarks", long run (10⁶ periods, 10 µs, six signals):
+        // 521 MB; the 7 ms example at 1 µs: 1.30 MB (HDF5 overhead included). 25 %:
+        // the instants per period move with the operating point.
+        for (stop, sample, measured) in [("6.6667 s", "10 us", 521e6), ("7 ms", "1 us", 1.30e6)] {
+            let c = estimate(&load_step(stop, sample));
+            let ratio = c.output_bytes / measured;
+            assert!((0.75..1.25).contains(&ratio), "{stop}: {} vs {measured}", c.output_bytes);
+        }
+    }
+
+    #[test]
+    fn the_default_bounds_refuse_and_allow_large_accepts() {
+        // 1000 s at 150 kHz: 1.5e8 periods, past 1e8.
+        let l = load_step("1000 s", "1 ms");
+        assert!(enforce(&l, false).is_err());
+        assert!(enforce(&l, true).is_ok());
+        assert!(enforce(&load_step("7 ms", "1 us"), false).is_ok());
+    }
 
     #[test]
     fn bytes_and_durations_read_as_people_write_them() {

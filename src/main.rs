@@ -2,7 +2,6 @@
 //! command, and turns failures into a documented exit code plus the full
 //! error context chain on stderr.
 
-
 use std::process::ExitCode;
 
 use clap::Parser;

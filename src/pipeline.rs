@@ -285,7 +285,9 @@ pub fn run_job_with(
         summary.error = Some(crate::text::one_line(e));
     }
     if let Err(e) = &file_result {
-        summary.error.get_or_insert_with(|| crate::text::one_line(e));
+        summary
+            .error
+            .get_or_insert_with(|| crate::text::one_line(e));
     }
     summary.explain_missing();
     if !settings.waveforms {
@@ -324,7 +326,9 @@ fn simulate(
     let window = shared.measure.borrow().window;
     let (mut samples, mut cycles) = (Samples(shared), Cycles(shared));
     let periods = stop * crate::scenario::design_point(job).frequency;
-    let slices = (periods / PERIODS_PER_SLICE).ceil().clamp(MIN_SLICES, MAX_SLICES) as usize;
+    let slices = (periods / PERIODS_PER_SLICE)
+        .ceil()
+        .clamp(MIN_SLICES, MAX_SLICES) as usize;
     // Slice ends: evenly spaced for progress, plus the steady window's ends where the
     // energy meters are read.
     let mut ends: Vec<(f64, Option<bool>)> = (1..=slices)

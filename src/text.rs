@@ -99,7 +99,10 @@ mod tests {
             causes(&outer),
             vec!["writing out/x/waveforms.h5", "engine: disk full"]
         );
-        assert_eq!(one_line(&outer), "writing out/x/waveforms.h5: engine: disk full");
+        assert_eq!(
+            one_line(&outer),
+            "writing out/x/waveforms.h5: engine: disk full"
+        );
     }
 
     #[test]
@@ -113,7 +116,10 @@ mod tests {
         let long = format!("name = \"{}\" is not allowed", "x".repeat(1_000_000));
         let s = shorten(&long);
         // 60 kept characters: the opening quote and 59 x's.
-        assert!(s.starts_with(&format!("name = \"{}…\"", "x".repeat(59))), "{s}");
+        assert!(
+            s.starts_with(&format!("name = \"{}…\"", "x".repeat(59))),
+            "{s}"
+        );
         assert!(s.contains("(1000002 characters) is not allowed"), "{s}");
         assert!(s.chars().count() < 120, "{s}");
     }

@@ -73,7 +73,10 @@ fn a_glacial_clock_is_refused_before_anything_runs() {
     );
     // The file is named once per message (it used to be printed twice by `run`).
     assert_eq!(e.matches("glacial.json").count(), 1, "{e}");
-    assert!(!dir.join("out/demo-startup").exists(), "nothing was written");
+    assert!(
+        !dir.join("out/demo-startup").exists(),
+        "nothing was written"
+    );
 }
 
 #[test]
@@ -91,10 +94,15 @@ fn two_scenarios_of_one_name_are_refused_before_anything_runs() {
     let e = stderr(&out);
     assert!(e.contains("a.json and "), "{e}");
     assert!(
-        e.contains("b.json both have the name \"demo-startup\", and would write the same output folder"),
+        e.contains(
+            "b.json both have the name \"demo-startup\", and would write the same output folder"
+        ),
         "{e}"
     );
-    assert!(!dir.join("out/demo-startup").exists(), "nothing was written");
+    assert!(
+        !dir.join("out/demo-startup").exists(),
+        "nothing was written"
+    );
 }
 
 /// A run of the demo long enough (20 s simulated, about 3·10⁶ periods) to be still
@@ -141,13 +149,19 @@ fn interrupted_run_keeps_its_results(signal: &str, name: &str) {
     assert!(sent.success());
     let out = wait_or_fail(child, Duration::from_secs(120));
     assert_eq!(out.status.code(), Some(4), "{}", stderr(&out));
-    assert!(stderr(&out).contains("interrupted by SIGINT or SIGTERM"), "{}", stderr(&out));
+    assert!(
+        stderr(&out).contains("interrupted by SIGINT or SIGTERM"),
+        "{}",
+        stderr(&out)
+    );
 
     let run = dir.join("out/long");
     let summary: Value =
         serde_json::from_slice(&std::fs::read(run.join("summary.json")).expect("summary"))
             .expect("summary is JSON");
-    let at = summary["interrupted"]["at_s"].as_f64().expect("interrupted.at_s");
+    let at = summary["interrupted"]["at_s"]
+        .as_f64()
+        .expect("interrupted.at_s");
     assert!(at > 0.0 && at < 20.0, "stopped part-way: {at}");
     assert_eq!(summary["simulated_time_s"].as_f64(), Some(at));
     assert_eq!(summary["passed"], json!(false));
@@ -215,7 +229,10 @@ fn a_waveform_file_past_the_limit_is_reported_with_its_path() {
     let e = stderr(&out);
     assert_eq!(out.status.code(), Some(3), "{e}");
     assert!(e.contains("out/demo-startup/waveforms.h5"), "{e}");
-    assert!(e.contains("no room to write: the disk is full or a file-size limit"), "{e}");
+    assert!(
+        e.contains("no room to write: the disk is full or a file-size limit"),
+        "{e}"
+    );
     let summary: Value = serde_json::from_slice(
         &std::fs::read(dir.join("out/demo-startup/summary.json")).expect("summary written"),
     )

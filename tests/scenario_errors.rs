@@ -321,7 +321,12 @@ fn a_byte_order_mark_is_accepted() {
         .arg(&path)
         .output()
         .expect("binary runs");
-    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
 }
 
 #[test]
@@ -360,8 +365,16 @@ fn allow_large_lets_a_large_run_pass_check_with_its_estimate() {
         .output()
         .expect("binary runs");
     let stdout = String::from_utf8_lossy(&out.stdout);
-    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
-    assert!(stdout.contains("run cost estimate: 1.500e8 switching periods"), "{stdout}");
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(
+        stdout.contains("run cost estimate: 1.500e8 switching periods"),
+        "{stdout}"
+    );
 }
 
 #[test]

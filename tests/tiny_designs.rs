@@ -46,13 +46,27 @@ fn decades(lo: f64, hi: f64) -> impl Strategy<Value = f64> {
 
 fn draws() -> impl Strategy<Value = Draw> {
     (
-        (0..BASES.len(), any::<bool>(), decades(20e3, 1e6), 0.02..0.6f64),
-        (decades(3.0, 400.0), decades(10e-6, 10e-3), decades(1e-6, 1e-3)),
+        (
+            0..BASES.len(),
+            any::<bool>(),
+            decades(20e3, 1e6),
+            0.02..0.6f64,
+        ),
+        (
+            decades(3.0, 400.0),
+            decades(10e-6, 10e-3),
+            decades(1e-6, 1e-3),
+        ),
         (decades(1e-6, 1e-3), decades(0.1, 100.0), 1.0..40.0f64),
         (1.0..12.0f64, 2.0..50.0f64),
     )
         .prop_map(
-            |((base, open_loop, frequency, duty), (vin, lm, lout), (cout, rload, ns), (periods, spp))| {
+            |(
+                (base, open_loop, frequency, duty),
+                (vin, lm, lout),
+                (cout, rload, ns),
+                (periods, spp),
+            )| {
                 Draw {
                     base,
                     open_loop,
@@ -151,5 +165,9 @@ fn tiny_designs_run_or_fail_cleanly() {
         ran.get(),
         refused.get()
     );
-    eprintln!("{} designs ran, {} refused at loading", ran.get(), refused.get());
+    eprintln!(
+        "{} designs ran, {} refused at loading",
+        ran.get(),
+        refused.get()
+    );
 }

@@ -57,6 +57,9 @@ pub struct Check {
     pub kind: String,
     /// Whether it held.
     pub pass: bool,
+    /// Why `value` is null; absent when there is a value.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub reason: Option<String>,
 }
 
 /// Contents of a case file.
@@ -131,6 +134,7 @@ impl CaseRecord {
                 bound: v.bound,
                 kind: v.kind.to_string(),
                 pass: v.pass,
+                reason: v.reason.clone(),
             })
             .collect();
         self.error = s.error.clone();

@@ -15,12 +15,12 @@ use rayon::prelude::*;
 
 use super::cases::{fingerprint, scenario_text, Case};
 use super::record::{write_json, CaseRecord, Status};
-use crate::writers::atomic::remove_stale_temporaries;
 use super::study::Study;
-use crate::pipeline::{run_job_with, RunSettings};
 use crate::budget;
+use crate::pipeline::{run_job_with, RunSettings};
 use crate::report::Summary;
 use crate::scenario;
+use crate::writers::atomic::remove_stale_temporaries;
 
 /// Which cases keep their waveform folder.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
@@ -106,8 +106,8 @@ pub fn run_cases(study: &Study, cases: &[Case], layout: &Layout, s: Settings) ->
     std::fs::create_dir_all(layout.cases())
         .with_context(|| format!("creating {}", layout.cases().display()))?;
     if s.resume {
-        let stale = remove_stale_temporaries(&layout.cases())?
-            + remove_stale_temporaries(&layout.dir)?;
+        let stale =
+            remove_stale_temporaries(&layout.cases())? + remove_stale_temporaries(&layout.dir)?;
         if stale > 0 && !s.quiet {
             eprintln!("removed {stale} temporary file(s) an earlier run left behind");
         }
@@ -115,7 +115,12 @@ pub fn run_cases(study: &Study, cases: &[Case], layout: &Layout, s: Settings) ->
     let stop = crate::interrupt::flag();
     let prepared: Vec<(&Case, Result<String, String>)> = cases
         .iter()
-        .map(|c| (c, scenario_text(study, c).map_err(|e| crate::text::one_line(&e))))
+        .map(|c| {
+            (
+                c,
+                scenario_text(study, c).map_err(|e| crate::text::one_line(&e)),
+            )
+        })
         .collect();
     let tally = Tally::default();
     let todo: Vec<_> = prepared
@@ -250,7 +255,8 @@ fn simulate(
         stop: Some(stop),
     };
     let output = run_job_with(&loaded.job, waveform_root, &|_| {}, settings)?;
-    if policy == Waveforms::Failed && output.summary.passed && output.summary.interrupted.is_none() {
+    if policy == Waveforms::Failed && output.summary.passed && output.summary.interrupted.is_none()
+    {
         std::fs::remove_dir_all(&output.dir)
             .with_context(|| format!("removing {}", output.dir.display()))?;
     }

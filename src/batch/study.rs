@@ -26,8 +26,8 @@ use serde::Deserialize;
 use serde_json::Value;
 
 use super::path::JsonPath;
-use crate::scenario::document;
 use super::value::{compatible_units, StudyValue};
+use crate::scenario::document;
 
 /// Longest study name: leaves room for the case suffix within the 64 characters a
 /// scenario name may have.
@@ -200,8 +200,7 @@ pub struct Study {
 
 /// Reads and checks the study file at `path`.
 pub fn load(path: &Path) -> Result<Study> {
-    let bytes =
-        std::fs::read(path).with_context(|| format!("reading study {}", path.display()))?;
+    let bytes = std::fs::read(path).with_context(|| format!("reading study {}", path.display()))?;
     let file = path.display().to_string();
     let text = document::decode(bytes, &file)?;
     load_text(&text, path.parent().unwrap_or(Path::new(".")), &file)

@@ -108,7 +108,12 @@ fn explain(
     }
     let field = path_text(segments);
     let message = strip_position(e);
-    let jargon = ["invalid type", "invalid length", "expected value", "expected `"];
+    let jargon = [
+        "invalid type",
+        "invalid length",
+        "expected value",
+        "expected `",
+    ];
     if !jargon.iter().any(|j| message.starts_with(j)) {
         return (field, shorten(&reword(&message)));
     }
@@ -284,10 +289,7 @@ fn choice_list(choices: &[Choice]) -> String {
             Choice::Key(_) => None,
         })
         .collect();
-    let object = format!(
-        "an object with exactly one key, one of {}",
-        keys.join(", ")
-    );
+    let object = format!("an object with exactly one key, one of {}", keys.join(", "));
     match (keys.is_empty(), names.is_empty()) {
         (false, true) => object,
         (true, _) => format!("one of the texts {}", names.join(", ")),
