@@ -98,7 +98,9 @@ pub fn enforce(l: &Loaded, allow_large: bool) -> Result<Cost, ScenarioError> {
     if allow_large {
         return Ok(cost);
     }
-    if !(a.sample_interval >= cost.time_quantum_s) {
+    // A NaN quantum (a grid the engine would refuse) is refused here too.
+    let on_grid = a.sample_interval >= cost.time_quantum_s;
+    if !on_grid {
         return Err(over(
             "analysis.sample_interval",
             format!("{} s", a.sample_interval),
