@@ -187,7 +187,11 @@ mod tests {
         for (stop, sample, measured) in [("6.6667 s", "10 us", 521e6), ("7 ms", "1 us", 1.30e6)] {
             let c = estimate(&load_step(stop, sample));
             let ratio = c.output_bytes / measured;
-            assert!((0.75..1.25).contains(&ratio), "{stop}: {} vs {measured}", c.output_bytes);
+            assert!(
+                (0.75..1.25).contains(&ratio),
+                "{stop}: {} vs {measured}",
+                c.output_bytes
+            );
         }
     }
 

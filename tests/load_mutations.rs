@@ -92,7 +92,9 @@ fn mutate_value(rng: &mut impl Rng, v: &mut Value) {
         let step = match node {
             Value::Object(m) if !m.is_empty() && rng.random_bool(0.7) => {
                 let k = rng.random_range(0..m.len());
-                m.iter().nth(k).map(|(key, child)| (key.replace('~', "~0").replace('/', "~1"), child))
+                m.iter()
+                    .nth(k)
+                    .map(|(key, child)| (key.replace('~', "~0").replace('/', "~1"), child))
             }
             Value::Array(a) if !a.is_empty() && rng.random_bool(0.7) => {
                 let k = rng.random_range(0..a.len());
