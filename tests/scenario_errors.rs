@@ -236,6 +236,23 @@ fn cases() -> Vec<Case> {
             edit(|v| v["converter"]["transformer"] = json!(3)),
             &["converter.transformer: expected an object with the fields", "found the number 3"],
         ),
+        case(
+            "list_for_a_value",
+            edit(|v| v["converter"]["transformer"]["primary_turns"] = json!([1])),
+            &["converter.transformer.primary_turns: expected a plain number, or a string with \
+               an optional SI prefix, e.g. \"10k\"; found a list of 1 item(s)"],
+        ),
+        case(
+            "text_for_a_list",
+            edit(|v| v["save"] = json!("out.v")),
+            &["save: expected a list [ … ]; found the text \"out.v\""],
+        ),
+        case(
+            "bool_for_a_power",
+            edit(|v| v["bias_power"] = json!(true)),
+            &["bias_power: expected a power in watts (W), as a number in SI units or text with \
+               a unit; found true"],
+        ),
         // Echoed values are cut near one terminal line (src/text.rs ECHO_MAX = 80).
         case(
             "long_value",

@@ -324,12 +324,20 @@ fn expectation(schema: &Value, node: &Value) -> String {
             .get("description")
             .and_then(Value::as_str)
             .map(|d| {
-                let first = d.split_once(':').map_or(d, |(head, _)| head);
-                let mut s = first.trim().to_string();
+                // Unit types describe themselves as "A voltage in volts (V): a number…";
+                // the ratio type as one sentence.
+                let (head, unit) = match d.split_once(':') {
+                    Some((head, _)) => (head, true),
+                    None => (d.trim_end_matches('.'), false),
+                };
+                let mut s = head.trim().to_string();
                 if let Some(c) = s.get(..1) {
                     s = c.to_lowercase() + &s[1..];
                 }
-                format!("{s}, as a number in SI units or text with a unit")
+                match unit {
+                    true => format!("{s}, as a number in SI units or text with a unit"),
+                    false => s,
+                }
             })
             .unwrap_or_else(|| "a value of another kind".into()),
     }
