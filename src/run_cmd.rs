@@ -65,6 +65,8 @@ pub fn run(
             ),
         });
     }
+    // Handlers first: a signal while loading must not kill the process either.
+    let stop = crate::interrupt::flag();
     // Everything is loaded before anything runs, so two scenarios that would write one
     // folder are refused while nothing has been written.
     let loaded: Vec<(PathBuf, Result<Loaded, String>)> = scenarios
@@ -72,7 +74,6 @@ pub fn run(
         .map(|p| (p.clone(), load_one(p, allow_large)))
         .collect();
     refuse_duplicates(&loaded)?;
-    let stop = crate::interrupt::flag();
     let bars = MultiProgress::with_draw_target(if how.quiet || how.json {
         ProgressDrawTarget::hidden()
     } else {

@@ -141,6 +141,12 @@ fn wait_or_fail(mut child: Child, limit: Duration) -> Output {
 fn interrupted_run_keeps_its_results(signal: &str, name: &str) {
     let dir = scratch(name);
     let child = long_run(&dir);
+    // The run has started once its waveform file exists; then let it work for ~1 s.
+    let file = dir.join("out/long/waveforms.h5");
+    let start = Instant::now();
+    while !file.exists() && start.elapsed() < Duration::from_secs(120) {
+        std::thread::sleep(Duration::from_millis(20));
+    }
     std::thread::sleep(Duration::from_secs(1));
     let sent = Command::new("kill")
         .args([signal, &child.id().to_string()])
