@@ -7,6 +7,7 @@ use anyhow::Context;
 use serde_json::json;
 use stepflux_models::figures::{DesignFigures, DesignPoint};
 
+use crate::budget;
 use crate::exit::{Exit, ExitWith, Failure};
 use crate::job::Drive;
 use crate::scenario::{self, design_point, sample_interval_on_grid, Loaded};
@@ -15,17 +16,24 @@ use crate::scenario::{self, design_point, sample_interval_on_grid, Loaded};
 /// warnings to stdout, as text or as one JSON object. A design that fails by its own
 /// figures is a valid scenario with a failing answer: exit 1, like a run that fails a
 /// limit, while the report is still printed.
-pub fn check(path: &Path, as_json: bool) -> Result<(), Failure> {
+/// Past the default run bounds it is bad input unless `allow_large`.
+pub fn check(path: &Path, as_json: bool, allow_large: bool) -> Result<(), Failure> {
     let loaded = scenario::load(path)
         .context("scenario is not valid")
         .exit_with(Exit::BadInput)?;
+    let cost = budget::enforce(&loaded, allow_large)
+        .context("scenario is past the default run bounds")
+        .exit_with(Exit::BadInput)?;
     if as_json {
-        let text = serde_json::to_string_pretty(&report_json(&loaded))
+        let mut report = report_json(&loaded);
+        report["cost_estimate"] = json!(cost);
+        let text = serde_json::to_string_pretty(&report)
             .context("formatting the report")
             .exit_with(Exit::SimulationFailed)?;
         println!("{text}");
     } else {
         print!("{}", report_text(&loaded));
+        println!("{}", cost.text());
     }
     if loaded.failures.is_empty() {
         return Ok(());

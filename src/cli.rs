@@ -11,7 +11,8 @@ use crate::batch::{Shard, Waveforms};
     name = "stepflux",
     version,
     about = "Cycle-by-cycle time-domain simulator for forward converters and their PWM control loops",
-    after_help = "Exit codes: 0 ok, 1 a spec limit failed, 2 bad input, 3 simulation failed."
+    after_help = "Exit codes: 0 ok, 1 a spec limit failed, 2 bad input, 3 simulation failed, \
+        4 interrupted (SIGINT/SIGTERM; partial results written)."
 )]
 pub struct Cli {
     #[command(subcommand)]
@@ -36,7 +37,10 @@ pub enum Command {
         Exits 0 when the scenario can run and its design passes by its paper figures \
         (warnings included), 1 when it can run but the figures say the design fails (duty \
         beyond the reset limit, drain stress above a rating: `run` shows how), 2 when it \
-        cannot run, with the file position or field path of the problem on stderr."
+        cannot run, with the file position or field path of the problem on stderr. Prints \
+        the run's cost estimate; past the default bounds (1e8 switching periods, 10 GB of \
+        waveforms, a sample interval below the engine's time quantum) it exits 2 unless \
+        --allow-large."
     )]
     Check {
         /// Scenario file (JSON; see `stepflux schema`).
@@ -45,6 +49,9 @@ pub enum Command {
         /// Print one JSON object instead of text.
         #[arg(long)]
         json: bool,
+        /// Accept a run past the default cost bounds (periods, output size, sample interval).
+        #[arg(long)]
+        allow_large: bool,
     },
     /// Find the periodic steady state of a scenario and print its operating point.
     #[command(
@@ -95,7 +102,10 @@ pub enum Command {
         after_help = "Example:\n  stepflux run scenarios/demo-startup.json scenarios/load-step.json --out results\n\n\
         Writes DIR/<scenario name>/waveforms.h5, summary.json and plots/*.svg for each \
         scenario. One bad or failing scenario does not stop the others; the exit code is \
-        the most severe outcome (3 simulation failed, 2 bad input, 1 a limit failed, 0 ok)."
+        the most severe outcome (4 interrupted, 3 simulation failed, 2 bad input, 1 a limit \
+        failed, 0 ok). Every scenario is loaded and checked before any runs; two of one \
+        name are refused. Ctrl-C or SIGTERM stops each run at its next slice, writing its \
+        summary marked interrupted; a second signal ends the process at once."
     )]
     Run {
         /// Scenario files (JSON; see `stepflux schema`).
@@ -113,6 +123,9 @@ pub enum Command {
         /// Print one JSON document with every summary instead of text.
         #[arg(long)]
         json: bool,
+        /// Accept runs past the default cost bounds (see `stepflux check`).
+        #[arg(long)]
+        allow_large: bool,
     },
     /// Plot signals of a waveform file into an SVG file.
     #[command(
@@ -154,8 +167,10 @@ pub enum Command {
         results.json and worst.json. Shard I/N runs the cases whose 0-based index k has \
         k mod N = I-1. --shard-from-env takes I and N from a Slurm job array task: \
         I-1 = (SLURM_ARRAY_TASK_ID - SLURM_ARRAY_TASK_MIN) / SLURM_ARRAY_TASK_STEP and \
-        N = SLURM_ARRAY_TASK_COUNT. Exits 0 when every case passed, 1 when a case failed a limit, 3 \
-        when a case errored (3 wins), 2 when the study is invalid."
+        N = SLURM_ARRAY_TASK_COUNT. Exits 0 when every case passed, 1 when a case failed a \
+        limit, 3 when a case errored (3 wins), 2 when the study is invalid, 4 when stopped \
+        by SIGINT or SIGTERM (finished cases are kept; --resume does the rest and removes \
+        temporary files a crashed run left)."
     )]
     Batch {
         /// Study file (JSON; see `stepflux schema --study`).
@@ -186,6 +201,9 @@ pub enum Command {
         /// No progress bar and no tally (errors still print).
         #[arg(long)]
         quiet: bool,
+        /// Accept cases past the default cost bounds (see `stepflux check`).
+        #[arg(long)]
+        allow_large: bool,
     },
     /// Join the results of batch shards into the tables of the whole study.
     #[command(

@@ -19,11 +19,27 @@ pub enum Exit {
     /// The run could not be completed: solver failure, or its results could
     /// not be written.
     SimulationFailed = 3,
+    /// Stopped by SIGINT or SIGTERM: the results computed so far were written, the
+    /// summary marked interrupted.
+    Interrupted = 4,
 }
 
 impl Exit {
     pub const fn code(self) -> u8 {
         self as u8
+    }
+
+    /// Rank among several outcomes (run, batch): the most severe decides the exit.
+    /// An interruption outranks all, as the work was not done; a failed simulation
+    /// outranks bad input, which outranks a failed limit.
+    pub const fn severity(self) -> u8 {
+        match self {
+            Exit::Ok => 0,
+            Exit::SpecFailed => 1,
+            Exit::BadInput => 2,
+            Exit::SimulationFailed => 3,
+            Exit::Interrupted => 4,
+        }
     }
 }
 
@@ -74,5 +90,6 @@ mod tests {
         assert_eq!(Exit::SpecFailed.code(), 1);
         assert_eq!(Exit::BadInput.code(), 2);
         assert_eq!(Exit::SimulationFailed.code(), 3);
+        assert_eq!(Exit::Interrupted.code(), 4);
     }
 }

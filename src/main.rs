@@ -2,31 +2,13 @@
 //! command, and turns failures into a documented exit code plus the full
 //! error context chain on stderr.
 
-mod batch;
-mod check;
-mod cli;
-mod demo;
-mod efficiency_cmd;
-mod exit;
-mod job;
-mod measurements;
-mod pipeline;
-mod plot_cmd;
-mod print;
-mod report;
-mod run_cmd;
-mod scenario;
-mod settle_cmd;
-mod steady;
-mod units;
-mod writers;
-
 use std::process::ExitCode;
 
 use clap::Parser;
 
-use cli::{Cli, Command};
-use exit::{Exit, ExitWith, Failure};
+use stepflux::cli::{Cli, Command};
+use stepflux::exit::{Exit, ExitWith, Failure};
+use stepflux::{batch, check, demo, efficiency_cmd, plot_cmd, print, run_cmd, settle_cmd};
 
 fn main() -> ExitCode {
     // Clap exits on its own with 2 for usage errors and 0 for --help,
@@ -43,7 +25,11 @@ fn main() -> ExitCode {
 
 fn run(cli: Cli) -> Result<(), Failure> {
     match cli.command {
-        Command::Check { scenario, json } => check::check(&scenario, json),
+        Command::Check {
+            scenario,
+            json,
+            allow_large,
+        } => check::check(&scenario, json, allow_large),
         Command::Schema { study: false } => check::schema(),
         Command::Schema { study: true } => batch::print_schema(),
         Command::Batch {
@@ -56,6 +42,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             waveforms,
             list,
             quiet,
+            allow_large,
         } => batch::batch(&batch::BatchArgs {
             study,
             jobs,
@@ -69,6 +56,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             waveforms,
             list,
             quiet,
+            allow_large,
         }),
         Command::Merge { dirs, out } => batch::merge(&dirs, &out),
         Command::Settle { scenario, json } => settle_cmd::settle(&scenario, json),
@@ -91,7 +79,14 @@ fn run(cli: Cli) -> Result<(), Failure> {
             jobs,
             quiet,
             json,
-        } => run_cmd::run(&scenarios, &out, jobs, run_cmd::Reporting { quiet, json }),
+            allow_large,
+        } => run_cmd::run(
+            &scenarios,
+            &out,
+            jobs,
+            run_cmd::Reporting { quiet, json },
+            allow_large,
+        ),
         Command::Plot {
             file,
             signals,
@@ -108,7 +103,9 @@ fn run(cli: Cli) -> Result<(), Failure> {
             }
             let output = demo::run(&out, &|_| {}).exit_with(Exit::SimulationFailed)?;
             print::run_summary(&output);
-            if output.summary.passed {
+            if output.summary.interrupted.is_some() {
+                Err(anyhow::anyhow!("interrupted")).exit_with(Exit::Interrupted)
+            } else if output.summary.passed {
                 Ok(())
             } else {
                 Err(anyhow::anyhow!("a spec limit failed")).exit_with(Exit::SpecFailed)
@@ -120,11 +117,11 @@ fn run(cli: Cli) -> Result<(), Failure> {
 /// Print the outermost message, then each cause on its own line, so the
 /// user sees both what was being attempted and the underlying reason.
 fn report(failure: &Failure) {
-    let mut chain = failure.error.chain();
-    if let Some(top) = chain.next() {
+    let mut causes = stepflux::text::causes(&failure.error).into_iter();
+    if let Some(top) = causes.next() {
         eprintln!("error: {top}");
     }
-    for cause in chain {
+    for cause in causes {
         eprintln!("  caused by: {cause}");
     }
 }

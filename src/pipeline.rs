@@ -5,6 +5,7 @@
 
 use std::cell::RefCell;
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::Instant;
 
 use anyhow::{Context, Result};
@@ -24,12 +25,21 @@ use stepflux_models::ModelError;
 
 use crate::job::{Drive, Job, Start};
 use crate::measurements::Plan;
-use crate::report::{design_figures, verdicts, Figure, Summary, CAUTION};
+use crate::report::{design_figures, verdicts, Figure, Interruption, Summary, CAUTION};
 use crate::steady::SteadyReport;
+use crate::writers::atomic::write_json;
 use crate::writers::{plots, waveforms::WaveformSink};
 
-/// Progress slices per run: often enough for a smooth bar, rare enough to cost nothing.
-const SLICES: usize = 200;
+/// Fewest progress slices per run: often enough for a smooth bar.
+const MIN_SLICES: f64 = 200.0;
+/// Most switching periods per slice: a slice is also how long a stop request waits
+/// (2000 periods are well under a second at the bench's per-period cost).
+const PERIODS_PER_SLICE: f64 = 2000.0;
+/// Most slices: bounds the slice table of a run allowed past the default bounds.
+const MAX_SLICES: f64 = 1e6;
+/// Wall seconds between flushes of the waveform file to disk, so a killed process
+/// leaves a file readable up to its last flush (DEVELOPERS.md "Cross-cutting concerns").
+const FLUSH_EVERY_S: f64 = 10.0;
 
 /// What a finished run left behind.
 pub struct RunOutput {
@@ -270,11 +280,27 @@ pub struct RunSettings {
     /// Write the run's folder (waveforms, summary, plots). When false nothing is
     /// written and only the returned summary remains, as a batch of many runs wants.
     pub waveforms: bool,
+    /// Raised to stop the run at the next slice, keeping what was computed.
+    pub stop: Option<&'static AtomicBool>,
+}
+
+/// How the simulation loop ended without an error.
+enum Ended {
+    /// At the stop time.
+    Finished,
+    /// At a stop request, at this simulated time.
+    Interrupted(f64),
+    /// Where the magnetising current ran away past the saturation knee.
+    Runaway(Runaway),
 }
 
 /// Runs a job into `out_root/<job name>/`, calling `progress` with the fraction done.
 pub fn run_job(job: &Job, out_root: &Path, progress: &(dyn Fn(f64) + Sync)) -> Result<RunOutput> {
-    run_job_with(job, out_root, progress, RunSettings { waveforms: true })
+    let settings = RunSettings {
+        waveforms: true,
+        stop: Some(crate::interrupt::flag()),
+    };
+    run_job_with(job, out_root, progress, settings)
 }
 
 /// [`run_job`] with explicit [`RunSettings`].
@@ -324,7 +350,7 @@ pub fn run_job_with(
             file: RefCell::new(file.as_mut()),
             measure: RefCell::new(&mut plan),
         };
-        simulate(job, &mut driver, &shared, progress)
+        simulate(job, &mut driver, &shared, progress, settings.stop)
     };
     let samples = file.as_ref().map_or(0, |f| f.samples());
     let file_result = file.map_or(Ok(()), |f| f.finish());
@@ -333,10 +359,15 @@ pub fn run_job_with(
     let measurements: Vec<Figure> = plan.figures().into_iter().map(Figure::from).collect();
     let verdicts = verdicts(job, &measurements);
     let stopped = match &outcome {
-        Ok(Some(r)) => Some(r.to_string()),
+        Ok(Ended::Runaway(r)) => Some(r.to_string()),
         _ => None,
     };
-    let finished = outcome.is_ok() && file_result.is_ok() && stopped.is_none();
+    let interrupted = match &outcome {
+        Ok(Ended::Interrupted(at)) => Some(Interruption::at(*at)),
+        _ => None,
+    };
+    let finished =
+        outcome.is_ok() && file_result.is_ok() && stopped.is_none() && interrupted.is_none();
     let mut summary = Summary {
         scenario: job.name.clone(),
         tool: format!("stepflux {}", env!("CARGO_PKG_VERSION")),
@@ -350,14 +381,18 @@ pub fn run_job_with(
         stopped,
         error: None,
         steady_state: steady.as_ref().map(SteadyReport::from),
+        interrupted,
         caution: CAUTION,
     };
     if let Err(e) = &outcome {
-        summary.error = Some(format!("{e:#}"));
+        summary.error = Some(crate::text::one_line(e));
     }
     if let Err(e) = &file_result {
-        summary.error.get_or_insert_with(|| format!("{e:#}"));
+        summary
+            .error
+            .get_or_insert_with(|| crate::text::one_line(e));
     }
+    summary.explain_missing();
     if !settings.waveforms {
         outcome?;
         return Ok(RunOutput {
@@ -367,11 +402,17 @@ pub fn run_job_with(
         });
     }
     let summary_path = dir.join("summary.json");
-    std::fs::write(&summary_path, serde_json::to_string_pretty(&summary)?)
-        .with_context(|| format!("writing {}", summary_path.display()))?;
-    outcome?;
+    write_json(&summary_path, &summary)?;
+    let ended = outcome?;
     file_result?;
-    let plots = write_plots(&h5_path, &dir, &probes, &save)?;
+    let plots = match ended {
+        Ended::Finished => write_plots(&h5_path, &dir, &probes, &save)?,
+        // A run stopped early may hold too little to plot; the summary and the
+        // waveform file are what matter then.
+        Ended::Interrupted(_) | Ended::Runaway(_) => {
+            write_plots(&h5_path, &dir, &probes, &save).unwrap_or_default()
+        }
+    };
     Ok(RunOutput {
         dir,
         summary,
@@ -384,27 +425,42 @@ fn simulate(
     driver: &mut Driver,
     shared: &Shared<'_>,
     progress: &(dyn Fn(f64) + Sync),
-) -> Result<Option<Runaway>> {
+    stop_flag: Option<&AtomicBool>,
+) -> Result<Ended> {
     let stop = job.analysis.stop_time;
     let window = shared.measure.borrow().window;
     let mut samples = Samples { shared };
     let mut cycles = Cycles(shared, 0);
     let guard = RunawayGuard::new(&job.design.transformer);
-    // Slice ends: evenly spaced for progress, plus the steady window's ends where the
-    // energy meters are read. The last slice ends at `stop` itself: stop·k/SLICES can
-    // round one ulp above stop, and a slice past the stop time used to be dropped,
-    // ending the run at the last whole period before the one-but-last slice end
-    // (6.960 ms of 7 ms).
-    let mut ends: Vec<(f64, Option<bool>)> = (1..SLICES)
-        .map(|k| ((stop * k as f64 / SLICES as f64).min(stop), None))
+    let periods = stop * crate::scenario::design_point(job).frequency;
+    let slices = (periods / PERIODS_PER_SLICE)
+        .ceil()
+        .clamp(MIN_SLICES, MAX_SLICES) as usize;
+    // Slice ends: evenly spaced for progress and stop requests, plus the steady
+    // window's ends where the energy meters are read. The last slice ends at `stop`
+    // itself: stop·k/slices can round one ulp above stop, and a slice past the stop
+    // time used to be dropped, ending the run at the last whole period before the
+    // one-but-last slice end (6.960 ms of 7 ms).
+    let mut ends: Vec<(f64, Option<bool>)> = (1..slices)
+        .map(|k| ((stop * k as f64 / slices as f64).min(stop), None))
         .collect();
     ends.push((stop, None));
     ends.push((window.0, Some(false)));
     ends.push((window.1, Some(true)));
     ends.retain(|(t, _)| *t <= stop);
     ends.sort_by(|a, b| a.0.total_cmp(&b.0));
-    let mut runaway = None;
+    let mut flushed = Instant::now();
     for (t, snapshot) in ends {
+        if stop_flag.is_some_and(|f| f.load(Ordering::Relaxed)) {
+            driver.finish(&mut cycles);
+            return Ok(Ended::Interrupted(driver.run_ref().sim.time()));
+        }
+        if flushed.elapsed().as_secs_f64() >= FLUSH_EVERY_S {
+            if let Some(file) = shared.file.borrow_mut().as_mut() {
+                file.checkpoint()?;
+            }
+            flushed = Instant::now();
+        }
         let reached = if t < stop {
             driver.advance_to(t, &mut samples, &mut cycles, &guard)
         } else {
@@ -413,8 +469,8 @@ fn simulate(
         match reached {
             Ok(()) => {}
             Err(ModelError::Runaway(r)) => {
-                runaway = Some(r);
-                break;
+                driver.finish(&mut cycles);
+                return Ok(Ended::Runaway(r));
             }
             Err(e) => {
                 return Err(anyhow::anyhow!(e))
@@ -431,7 +487,7 @@ fn simulate(
         progress(t / stop);
     }
     driver.finish(&mut cycles);
-    Ok(runaway)
+    Ok(Ended::Finished)
 }
 
 fn switchable_names(run: &ConverterRun) -> Vec<String> {

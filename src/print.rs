@@ -72,6 +72,13 @@ pub fn run_summary(output: &RunOutput) {
     if let Some(e) = &s.error {
         let _ = writeln!(out, "  error: {e}");
     }
+    if let Some(i) = &s.interrupted {
+        let _ = writeln!(
+            out,
+            "  interrupted at {:.6} ms simulated: results up to there were written",
+            1e3 * i.at_s
+        );
+    }
     let _ = writeln!(
         out,
         "  waveforms: {}",

@@ -14,6 +14,9 @@ pub struct Figure {
     pub value: Option<f64>,
     /// SI unit symbol ("1" for ratios, "%" for percentages).
     pub unit: String,
+    /// Why `value` is null; absent when there is a value.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub reason: Option<String>,
 }
 
 impl From<measure::Figure> for Figure {
@@ -22,6 +25,7 @@ impl From<measure::Figure> for Figure {
             name: f.name,
             value: f.value.is_finite().then_some(f.value),
             unit: f.unit.to_string(),
+            reason: None,
         }
     }
 }
@@ -39,6 +43,28 @@ pub struct Verdict {
     pub kind: &'static str,
     /// Whether it holds.
     pub pass: bool,
+    /// Why `value` is null; absent when there is a value.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub reason: Option<String>,
+}
+
+/// Where a run stopped on request (SIGINT or SIGTERM).
+#[derive(Clone, Debug, Serialize, PartialEq)]
+pub struct Interruption {
+    /// Simulated time reached, seconds.
+    pub at_s: f64,
+    /// What stopped it.
+    pub reason: &'static str,
+}
+
+impl Interruption {
+    /// A stop request honoured at simulated time `at_s`.
+    pub fn at(at_s: f64) -> Self {
+        Interruption {
+            at_s,
+            reason: "stopped by SIGINT or SIGTERM; figures cover the run up to at_s",
+        }
+    }
 }
 
 /// Contents of `summary.json`.
@@ -71,6 +97,10 @@ pub struct Summary {
     /// state by name.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub steady_state: Option<crate::steady::SteadyReport>,
+    /// Set when a stop request ended the run early; absent for a run that went on to
+    /// its stop time or failed.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub interrupted: Option<Interruption>,
     /// The usual caution.
     pub caution: &'static str,
 }
@@ -81,6 +111,30 @@ Switch-mode converters hold hazardous voltages and stored energy; isolation, cre
 safety approval follow local codes and licensed practice.";
 
 impl Summary {
+    /// Gives every null figure and verdict value the reason it is null.
+    pub fn explain_missing(&mut self) {
+        let reason = match (&self.interrupted, &self.error) {
+            (Some(i), _) => format!(
+                "not measured: the run was interrupted at {:e} s, before this could be computed",
+                i.at_s
+            ),
+            (None, Some(e)) => format!("not measured: the run stopped early ({e})"),
+            (None, None) => "not measured: what it measures did not happen within this run \
+                             (a longer stop_time, or a step inside the run, may give it)"
+                .to_string(),
+        };
+        for f in self.measurements.iter_mut().chain(self.design.iter_mut()) {
+            if f.value.is_none() && f.reason.is_none() {
+                f.reason = Some(reason.clone());
+            }
+        }
+        for v in &mut self.verdicts {
+            if v.value.is_none() && v.reason.is_none() {
+                v.reason = Some(format!("fails because it was {reason}"));
+            }
+        }
+    }
+
     /// Value of a measurement by name.
     pub fn get(&self, name: &str) -> Option<f64> {
         self.measurements
@@ -125,6 +179,7 @@ pub fn verdicts(job: &Job, m: &[Figure]) -> Vec<Verdict> {
                 bound,
                 kind,
                 pass,
+                reason: None,
             });
         }
     };
@@ -192,10 +247,16 @@ pub fn design_figures(job: &Job) -> Vec<Figure> {
     ];
     out.retain(|(_, v, _)| v.is_some());
     out.into_iter()
-        .map(|(name, value, unit)| Figure {
-            name: format!("design.{name}"),
-            value: value.filter(|v| v.is_finite()),
-            unit: unit.into(),
+        .map(|(name, value, unit)| {
+            let value = value.filter(|v| v.is_finite());
+            Figure {
+                name: format!("design.{name}"),
+                value,
+                unit: unit.into(),
+                reason: value
+                    .is_none()
+                    .then(|| "its closed form has no finite value for this design".into()),
+            }
         })
         .collect()
 }

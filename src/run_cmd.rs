@@ -4,7 +4,9 @@
 //! Exit code: the most severe outcome over all scenarios, in the order simulation
 //! failed (3) > bad input (2) > a spec limit failed (1) > all good (0).
 
+use std::collections::HashMap;
 use std::path::{Path, PathBuf};
+use std::sync::atomic::Ordering;
 use std::time::Duration;
 
 use indicatif::{MultiProgress, ProgressBar, ProgressDrawTarget, ProgressStyle};
@@ -12,7 +14,7 @@ use rayon::prelude::*;
 
 use crate::exit::{Exit, Failure};
 use crate::pipeline::{run_job, RunOutput};
-use crate::scenario;
+use crate::scenario::{self, Loaded};
 
 /// How a run command reports.
 #[derive(Clone, Copy, Debug, Default)]
@@ -28,31 +30,32 @@ enum Outcome {
     Ran(Box<RunOutput>),
     BadInput(String),
     Failed(String),
+    /// A stop was requested before this scenario started.
+    NotStarted,
 }
 
 impl Outcome {
     fn exit(&self) -> Exit {
         match self {
+            Outcome::Ran(o) if o.summary.interrupted.is_some() => Exit::Interrupted,
             Outcome::Ran(o) if o.summary.passed => Exit::Ok,
             Outcome::Ran(o) if o.summary.error.is_some() => Exit::SimulationFailed,
             Outcome::Ran(_) => Exit::SpecFailed,
             Outcome::BadInput(_) => Exit::BadInput,
             Outcome::Failed(_) => Exit::SimulationFailed,
+            Outcome::NotStarted => Exit::Interrupted,
         }
     }
 }
 
-fn severity(e: Exit) -> u8 {
-    match e {
-        Exit::Ok => 0,
-        Exit::SpecFailed => 1,
-        Exit::BadInput => 2,
-        Exit::SimulationFailed => 3,
-    }
-}
-
 /// Runs every scenario with up to `jobs` in parallel (0: one per core).
-pub fn run(scenarios: &[PathBuf], out: &Path, jobs: usize, how: Reporting) -> Result<(), Failure> {
+pub fn run(
+    scenarios: &[PathBuf],
+    out: &Path,
+    jobs: usize,
+    how: Reporting,
+    allow_large: bool,
+) -> Result<(), Failure> {
     if out.exists() && !out.is_dir() {
         return Err(Failure {
             exit: Exit::BadInput,
@@ -62,6 +65,15 @@ pub fn run(scenarios: &[PathBuf], out: &Path, jobs: usize, how: Reporting) -> Re
             ),
         });
     }
+    // Handlers first: a signal while loading must not kill the process either.
+    let stop = crate::interrupt::flag();
+    // Everything is loaded before anything runs, so two scenarios that would write one
+    // folder are refused while nothing has been written.
+    let loaded: Vec<(PathBuf, Result<Loaded, String>)> = scenarios
+        .iter()
+        .map(|p| (p.clone(), load_one(p, allow_large)))
+        .collect();
+    refuse_duplicates(&loaded)?;
     let bars = MultiProgress::with_draw_target(if how.quiet || how.json {
         ProgressDrawTarget::hidden()
     } else {
@@ -75,19 +87,33 @@ pub fn run(scenarios: &[PathBuf], out: &Path, jobs: usize, how: Reporting) -> Re
             error: anyhow::anyhow!("starting {jobs} worker threads: {e}"),
         })?;
     let outcomes: Vec<(PathBuf, Outcome)> = pool.install(|| {
-        scenarios
+        loaded
             .par_iter()
-            .map(|path| (path.clone(), one(path, out, &bars)))
+            .map(|(path, l)| {
+                let outcome = match l {
+                    Err(e) => Outcome::BadInput(e.clone()),
+                    Ok(_) if stop.load(Ordering::Relaxed) => Outcome::NotStarted,
+                    Ok(l) => one(path, l, out, &bars),
+                };
+                (path.clone(), outcome)
+            })
             .collect()
     });
     report(&outcomes, how);
     let worst = outcomes
         .iter()
         .map(|(_, o)| o.exit())
-        .max_by_key(|e| severity(*e))
+        .max_by_key(|e| e.severity())
         .unwrap_or(Exit::Ok);
     match worst {
         Exit::Ok => Ok(()),
+        Exit::Interrupted => Err(Failure {
+            exit: Exit::Interrupted,
+            error: anyhow::anyhow!(
+                "interrupted by SIGINT or SIGTERM: each run's results up to the stop are in \
+                 its folder, its summary.json marked \"interrupted\""
+            ),
+        }),
         exit => Err(Failure {
             exit,
             error: anyhow::anyhow!(
@@ -99,6 +125,33 @@ pub fn run(scenarios: &[PathBuf], out: &Path, jobs: usize, how: Reporting) -> Re
     }
 }
 
+fn load_one(path: &Path, allow_large: bool) -> Result<Loaded, String> {
+    let loaded = scenario::load(path).map_err(|e| crate::text::one_line(&e.into()))?;
+    crate::budget::enforce(&loaded, allow_large).map_err(|e| crate::text::one_line(&e.into()))?;
+    Ok(loaded)
+}
+
+/// Two scenarios of one name would write one output folder: refused, naming both.
+fn refuse_duplicates(loaded: &[(PathBuf, Result<Loaded, String>)]) -> Result<(), Failure> {
+    let mut seen: HashMap<&str, &Path> = HashMap::new();
+    for (path, l) in loaded {
+        let Ok(l) = l else { continue };
+        if let Some(first) = seen.insert(l.job.name.as_str(), path) {
+            return Err(Failure {
+                exit: Exit::BadInput,
+                error: anyhow::anyhow!(
+                    "{} and {} both have the name \"{}\", and would write the same output \
+                     folder; give each scenario its own name (nothing was run)",
+                    first.display(),
+                    path.display(),
+                    l.job.name
+                ),
+            });
+        }
+    }
+    Ok(())
+}
+
 fn count_bad(outcomes: &[(PathBuf, Outcome)]) -> usize {
     outcomes
         .iter()
@@ -106,13 +159,9 @@ fn count_bad(outcomes: &[(PathBuf, Outcome)]) -> usize {
         .count()
 }
 
-/// Loads and runs one scenario; a panic inside the run is caught and reported as a
-/// failed simulation so the other scenarios go on.
-fn one(path: &Path, out: &Path, bars: &MultiProgress) -> Outcome {
-    let loaded = match scenario::load(path) {
-        Ok(l) => l,
-        Err(e) => return Outcome::BadInput(e.to_string()),
-    };
+/// Runs one loaded scenario; a panic inside the run is caught and reported as a failed
+/// simulation so the other scenarios go on.
+fn one(path: &Path, loaded: &Loaded, out: &Path, bars: &MultiProgress) -> Outcome {
     for w in &loaded.failures {
         let _ = bars.println(format!(
             "design fails: {}: {w} (simulating it to show how)",
@@ -139,7 +188,7 @@ fn one(path: &Path, out: &Path, bars: &MultiProgress) -> Outcome {
     bar.finish_and_clear();
     match result {
         Ok(Ok(output)) => Outcome::Ran(Box::new(output)),
-        Ok(Err(e)) => Outcome::Failed(format!("{e:#}")),
+        Ok(Err(e)) => Outcome::Failed(crate::text::one_line(&e)),
         Err(panic) => Outcome::Failed(format!("internal error (panic): {}", panic_text(&panic))),
     }
 }
@@ -151,6 +200,8 @@ fn panic_text(panic: &Box<dyn std::any::Any + Send>) -> String {
         .or_else(|| panic.downcast_ref::<String>().cloned())
         .unwrap_or_else(|| "unknown".into())
 }
+
+const NOT_STARTED: &str = "not started: a stop was requested (SIGINT or SIGTERM)";
 
 fn report(outcomes: &[(PathBuf, Outcome)], how: Reporting) {
     if how.json {
@@ -164,6 +215,7 @@ fn report(outcomes: &[(PathBuf, Outcome)], how: Reporting) {
                         v["output"] = serde_json::json!(r.dir.display().to_string());
                     }
                     Outcome::BadInput(e) | Outcome::Failed(e) => v["error"] = serde_json::json!(e),
+                    Outcome::NotStarted => v["error"] = serde_json::json!(NOT_STARTED),
                 }
                 v
             })
@@ -175,8 +227,10 @@ fn report(outcomes: &[(PathBuf, Outcome)], how: Reporting) {
         match o {
             Outcome::Ran(r) if !how.quiet => crate::print::run_summary(r),
             Outcome::Ran(_) => {}
-            Outcome::BadInput(e) => eprintln!("error: {}: {e}", path.display()),
+            // The message already names the file and the spot in it.
+            Outcome::BadInput(e) => eprintln!("error: {e}"),
             Outcome::Failed(e) => eprintln!("error: {}: simulation failed: {e}", path.display()),
+            Outcome::NotStarted => eprintln!("error: {}: {NOT_STARTED}", path.display()),
         }
     }
 }

@@ -82,7 +82,10 @@ pub fn operating_point(job: &Job) -> Result<OperatingPoint> {
         &run,
         Path::new("."),
         &|_| {},
-        RunSettings { waveforms: false },
+        RunSettings {
+            waveforms: false,
+            stop: Some(crate::interrupt::flag()),
+        },
     )?;
     Ok(OperatingPoint {
         scenario: job.name.clone(),

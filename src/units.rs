@@ -172,8 +172,8 @@ impl fmt::Display for UnitError {
         let u = self.expected;
         write!(
             f,
-            "{:?} is not a valid {}: {}; ",
-            self.text,
+            "{} is not a valid {}: {}; ",
+            crate::text::shorten(&format!("{:?}", self.text)),
             u.quantity(),
             self.problem
         )?;
@@ -451,24 +451,27 @@ impl Visitor<'_> for ValueVisitor {
     }
 
     fn visit_f64<E: de::Error>(self, v: f64) -> Result<f64, E> {
-        if v.is_finite() {
-            Ok(v)
-        } else {
-            Err(E::custom(format!("{v} is not a finite number")))
+        if !v.is_finite() {
+            return Err(E::custom(format!("{v} is not a finite number")));
+        }
+        match crate::bounds::refuse(v, self.0) {
+            Some(why) => Err(E::custom(why)),
+            None => Ok(v),
         }
     }
 
     fn visit_i64<E: de::Error>(self, v: i64) -> Result<f64, E> {
         // Integers in a scenario are far below 2^53, where the conversion is exact.
-        Ok(v as f64)
+        self.visit_f64(v as f64)
     }
 
     fn visit_u64<E: de::Error>(self, v: u64) -> Result<f64, E> {
-        Ok(v as f64)
+        self.visit_f64(v as f64)
     }
 
     fn visit_str<E: de::Error>(self, v: &str) -> Result<f64, E> {
-        parse(v, self.0).map_err(E::custom)
+        let si = parse(v, self.0).map_err(E::custom)?;
+        self.visit_f64(si)
     }
 }
 

@@ -4,7 +4,10 @@
 
 mod batch_common;
 
+use std::path::Path;
+
 use batch_common::*;
+use serde_json::{json, Value};
 
 #[test]
 fn thread_count_does_not_change_the_tables() {
@@ -97,4 +100,95 @@ fn resume_reruns_cases_whose_scenario_changed() {
     assert_eq!(r["counts"]["failed"], 12);
     let stderr = String::from_utf8_lossy(&again.stderr);
     assert!(!stderr.contains("reused"), "{stderr}");
+}
+
+#[test]
+fn resume_removes_temporary_files_a_crashed_run_left() {
+    let root = scratch("batch_stale_tmp");
+    let study = write_study(&root, &quick_study("stale"));
+    let cases = root.join("out/stale/cases");
+    std::fs::create_dir_all(&cases).unwrap();
+    // A case file half-written by a process that no longer exists: 4294967295 is above
+    // any Linux pid (pid_max is at most 2^22).
+    let stale = cases.join(".c0001.json.4294967295.tmp");
+    std::fs::write(&stale, "{ \"id\": \"c00").unwrap();
+    let out = batch(&study, &root.join("out"), &["--jobs", "2", "--resume"]);
+    code(&out, &[0, 1]);
+    assert!(!stale.exists(), "the stale temporary file was removed");
+    let left: Vec<_> = std::fs::read_dir(&cases)
+        .unwrap()
+        .flatten()
+        .filter(|e| e.file_name().to_string_lossy().ends_with(".tmp"))
+        .collect();
+    assert!(left.is_empty(), "{left:?}");
+    assert!(
+        String::from_utf8_lossy(&out.stderr).contains("removed 1 temporary file(s)"),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
+
+#[test]
+fn sigint_keeps_finished_cases_and_resume_does_the_rest() {
+    let root = scratch("batch_sigint");
+    // Four cases of 0.3 s simulated (45,000 periods each), one at a time: the first
+    // is done and the second under way when the signal comes.
+    let study = write_study(
+        &root,
+        &json!({
+            "name": "sigint",
+            "base": base_scenario(),
+            "parameters": { "vin": "converter.input.voltage", "stop": "analysis.stop_time" },
+            "corners": { "vin": ["18 V", "24 V", "30 V", "36 V"], "stop": ["0.3 s"] },
+            "limits": { "startup_time": null }
+        }),
+    );
+    let out = root.join("out");
+    let child = stepflux()
+        .arg("batch")
+        .arg(&study)
+        .arg("--out")
+        .arg(&out)
+        .args(["--waveforms", "none", "--jobs", "1", "--quiet"])
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let cases = out.join("sigint/cases");
+    let first = cases.join("c0001.json");
+    let start = std::time::Instant::now();
+    while !first.exists() && start.elapsed() < std::time::Duration::from_secs(300) {
+        std::thread::sleep(std::time::Duration::from_millis(20));
+    }
+    std::thread::sleep(std::time::Duration::from_millis(200));
+    let sent = std::process::Command::new("kill")
+        .args(["-INT", &child.id().to_string()])
+        .status()
+        .unwrap();
+    assert!(sent.success());
+    let stopped = child.wait_with_output().unwrap();
+    let stderr = String::from_utf8_lossy(&stopped.stderr);
+    assert_eq!(stopped.status.code(), Some(4), "{stderr}");
+    assert!(stderr.contains("with --resume to do the rest"), "{stderr}");
+    let files = |dir: &Path| -> Vec<String> {
+        std::fs::read_dir(dir)
+            .unwrap()
+            .flatten()
+            .map(|e| e.file_name().to_string_lossy().into_owned())
+            .collect()
+    };
+    let kept = files(&cases);
+    assert!(
+        !kept.is_empty() && kept.len() < 4,
+        "some cases kept, some left: {kept:?}"
+    );
+    assert!(kept.iter().all(|f| !f.ends_with(".tmp")), "{kept:?}");
+    // Every kept file is a whole record of a finished case.
+    for f in &kept {
+        let text = std::fs::read_to_string(cases.join(f)).unwrap();
+        let v: Value = serde_json::from_str(&text).unwrap();
+        assert!(v["status"].is_string(), "{f}: {text}");
+    }
+    let resumed = batch(&study, &out, &["--jobs", "2", "--resume"]);
+    code(&resumed, &[0, 1]);
+    assert_eq!(files(&cases).len(), 4);
 }

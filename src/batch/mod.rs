@@ -57,6 +57,15 @@ pub struct BatchArgs {
     pub list: bool,
     /// No progress bar and no tally.
     pub quiet: bool,
+    /// Accept cases past the default cost bounds.
+    pub allow_large: bool,
+}
+
+/// Loads study `text` and expands its cases, as `batch --list` does; returns the case
+/// count. For the fuzz targets and tests that exercise study loading without files.
+pub fn plan_text(text: &str, dir: &Path, file: &str) -> Result<usize> {
+    let study = study::load_text(text, dir, file)?;
+    Ok(cases::plan(&study)?.len())
 }
 
 /// `stepflux batch`.
@@ -81,7 +90,16 @@ pub fn batch(args: &BatchArgs) -> Result<(), Failure> {
     let layout = Layout {
         dir: args.out.join(&study.name),
     };
-    let records = run(&study, &slice, &layout, &meta, args).exit_with(Exit::SimulationFailed)?;
+    let records = run(&study, &slice, &layout, &meta, args);
+    if crate::interrupt::requested() {
+        return Err(anyhow!(
+            "interrupted by SIGINT or SIGTERM: the finished cases' results are in {}; run \
+             the same command with --resume to do the rest",
+            layout.cases().display()
+        ))
+        .exit_with(Exit::Interrupted);
+    }
+    let records = records.exit_with(Exit::SimulationFailed)?;
     outcome(&layout.dir, &records, &[], args.quiet)
 }
 
@@ -137,6 +155,7 @@ fn run(
         waveforms: args.waveforms,
         resume: args.resume,
         quiet: args.quiet,
+        allow_large: args.allow_large,
     };
     let reused = runner::run_cases(study, slice, layout, settings)?;
     if reused > 0 && !args.quiet {

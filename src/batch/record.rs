@@ -6,7 +6,6 @@
 use std::collections::BTreeMap;
 use std::path::Path;
 
-use anyhow::{Context, Result};
 use serde::{Deserialize, Serialize};
 
 use crate::report::Summary;
@@ -58,6 +57,9 @@ pub struct Check {
     pub kind: String,
     /// Whether it held.
     pub pass: bool,
+    /// Why `value` is null; absent when there is a value.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub reason: Option<String>,
 }
 
 /// Contents of a case file.
@@ -132,6 +134,7 @@ impl CaseRecord {
                 bound: v.bound,
                 kind: v.kind.to_string(),
                 pass: v.pass,
+                reason: v.reason.clone(),
             })
             .collect();
         self.error = s.error.clone();
@@ -156,22 +159,4 @@ impl CaseRecord {
     }
 }
 
-/// Writes `bytes` to `path` through a temporary file in the same folder and a rename,
-/// so readers (and a resumed run) never see a partial file.
-pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
-    let name = path
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_default();
-    // The pid keeps two processes (shards sharing a folder) off each other's temp file.
-    let tmp = path.with_file_name(format!(".{name}.{}.tmp", std::process::id()));
-    std::fs::write(&tmp, bytes).with_context(|| format!("writing {}", tmp.display()))?;
-    std::fs::rename(&tmp, path).with_context(|| format!("renaming to {}", path.display()))
-}
-
-/// Writes a value as pretty JSON, atomically.
-pub fn write_json<T: Serialize>(path: &Path, value: &T) -> Result<()> {
-    let mut text = serde_json::to_string_pretty(value).context("formatting JSON")?;
-    text.push('\n');
-    write_atomic(path, text.as_bytes())
-}
+pub use crate::writers::atomic::{write_atomic, write_json};

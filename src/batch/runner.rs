@@ -5,7 +5,7 @@
 use std::any::Any;
 use std::panic::{catch_unwind, AssertUnwindSafe};
 use std::path::{Path, PathBuf};
-use std::sync::atomic::{AtomicUsize, Ordering};
+use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 use std::sync::Mutex;
 use std::time::Instant;
 
@@ -16,9 +16,11 @@ use rayon::prelude::*;
 use super::cases::{fingerprint, scenario_text, Case};
 use super::record::{write_json, CaseRecord, Status};
 use super::study::Study;
+use crate::budget;
 use crate::pipeline::{run_job_with, RunSettings};
 use crate::report::Summary;
 use crate::scenario;
+use crate::writers::atomic::remove_stale_temporaries;
 
 /// Which cases keep their waveform folder.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
@@ -42,6 +44,8 @@ pub struct Settings {
     pub resume: bool,
     /// No progress bar.
     pub quiet: bool,
+    /// Accept cases past the default cost bounds.
+    pub allow_large: bool,
 }
 
 /// Where a study's outputs go: `<out>/<study>/`.
@@ -101,9 +105,22 @@ impl Tally {
 pub fn run_cases(study: &Study, cases: &[Case], layout: &Layout, s: Settings) -> Result<usize> {
     std::fs::create_dir_all(layout.cases())
         .with_context(|| format!("creating {}", layout.cases().display()))?;
+    if s.resume {
+        let stale =
+            remove_stale_temporaries(&layout.cases())? + remove_stale_temporaries(&layout.dir)?;
+        if stale > 0 && !s.quiet {
+            eprintln!("removed {stale} temporary file(s) an earlier run left behind");
+        }
+    }
+    let stop = crate::interrupt::flag();
     let prepared: Vec<(&Case, Result<String, String>)> = cases
         .iter()
-        .map(|c| (c, scenario_text(study, c).map_err(|e| format!("{e:#}"))))
+        .map(|c| {
+            (
+                c,
+                scenario_text(study, c).map_err(|e| crate::text::one_line(&e)),
+            )
+        })
         .collect();
     let tally = Tally::default();
     let todo: Vec<_> = prepared
@@ -122,7 +139,14 @@ pub fn run_cases(study: &Study, cases: &[Case], layout: &Layout, s: Settings) ->
     let write_error: Mutex<Option<anyhow::Error>> = Mutex::new(None);
     pool.install(|| {
         todo.par_iter().for_each(|(case, text)| {
-            let record = run_case(study, case, text, layout, s.waveforms);
+            // After a stop request no case starts, and one cut short leaves no result
+            // file, so `--resume` runs it again.
+            if stop.load(Ordering::Relaxed) {
+                return;
+            }
+            let Some(record) = run_case(study, case, text, layout, s, stop) else {
+                return;
+            };
             tally.add(record.status);
             if let Err(e) = write_json(&layout.case_file(&case.id), &record) {
                 if let Ok(mut slot) = write_error.lock() {
@@ -179,8 +203,9 @@ fn run_case(
     case: &Case,
     text: &Result<String, String>,
     layout: &Layout,
-    waveforms: Waveforms,
-) -> CaseRecord {
+    s: Settings,
+    stop: &'static AtomicBool,
+) -> Option<CaseRecord> {
     let started = Instant::now();
     let parameters = study
         .parameters
@@ -201,26 +226,37 @@ fn run_case(
         Ok(text) => {
             let label = format!("{} case {}", study.file, case.id);
             let run = catch_unwind(AssertUnwindSafe(|| {
-                simulate(text, &label, &layout.waveforms(), waveforms)
+                simulate(text, &label, &layout.waveforms(), s, stop)
             }));
             match run {
+                Ok(Ok(summary)) if summary.interrupted.is_some() => return None,
                 Ok(Ok(summary)) => record.set_summary(&summary),
-                Ok(Err(e)) => record.set_error(format!("{e:#}")),
+                Ok(Err(e)) => record.set_error(crate::text::one_line(&e)),
                 Err(panic) => record.set_error(format!("panic: {}", panic_text(&*panic))),
             }
         }
     }
     record.run_time_s = started.elapsed().as_secs_f64();
-    record
+    Some(record)
 }
 
-fn simulate(text: &str, label: &str, waveform_root: &Path, policy: Waveforms) -> Result<Summary> {
+fn simulate(
+    text: &str,
+    label: &str,
+    waveform_root: &Path,
+    s: Settings,
+    stop: &'static AtomicBool,
+) -> Result<Summary> {
+    let policy = s.waveforms;
     let loaded = scenario::load_str(text, label).map_err(|e| anyhow!("{e}"))?;
+    budget::enforce(&loaded, s.allow_large).map_err(|e| anyhow!("{e}"))?;
     let settings = RunSettings {
         waveforms: policy != Waveforms::None,
+        stop: Some(stop),
     };
     let output = run_job_with(&loaded.job, waveform_root, &|_| {}, settings)?;
-    if policy == Waveforms::Failed && output.summary.passed {
+    if policy == Waveforms::Failed && output.summary.passed && output.summary.interrupted.is_none()
+    {
         std::fs::remove_dir_all(&output.dir)
             .with_context(|| format!("removing {}", output.dir.display()))?;
     }

@@ -27,6 +27,7 @@ use serde_json::Value;
 
 use super::path::JsonPath;
 use super::value::{compatible_units, StudyValue};
+use crate::scenario::document;
 
 /// Longest study name: leaves room for the case suffix within the 64 characters a
 /// scenario name may have.
@@ -199,15 +200,18 @@ pub struct Study {
 
 /// Reads and checks the study file at `path`.
 pub fn load(path: &Path) -> Result<Study> {
-    let text = std::fs::read_to_string(path)
-        .with_context(|| format!("reading study {}", path.display()))?;
-    let mut de = serde_json::Deserializer::from_str(&text);
-    let raw: StudyFile = serde_path_to_error::deserialize(&mut de)
-        .map_err(|e| anyhow!("{}: at {}: {}", path.display(), e.path(), e.inner()))?;
-    de.end()
-        .map_err(|e| anyhow!("{}: text after the study object: {e}", path.display()))?;
-    let dir = path.parent().unwrap_or(Path::new("."));
-    resolve(raw, dir, &path.display().to_string())
+    let bytes = std::fs::read(path).with_context(|| format!("reading study {}", path.display()))?;
+    let file = path.display().to_string();
+    let text = document::decode(bytes, &file)?;
+    load_text(&text, path.parent().unwrap_or(Path::new(".")), &file)
+}
+
+/// Checks study `text`; `dir` is where a base file path is relative to, `file` names
+/// the study in messages.
+pub fn load_text(text: &str, dir: &Path, file: &str) -> Result<Study> {
+    let schema = serde_json::to_value(schemars::schema_for!(StudyFile)).unwrap_or_default();
+    let raw: StudyFile = document::parse(text, file, "study", &schema)?;
+    resolve(raw, dir, file)
 }
 
 /// Checks a parsed study; `dir` is where a base file path is relative to.

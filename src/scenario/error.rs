@@ -31,6 +31,23 @@ pub enum ScenarioError {
         /// The parser's message.
         message: String,
     },
+    /// The file is not UTF-8 text.
+    #[error(
+        "{file}:{line}:{column}: not UTF-8 text: byte 0x{byte:02X} at byte offset {offset} \
+         does not start or continue a UTF-8 character; save the file as UTF-8"
+    )]
+    Encoding {
+        /// File name as given.
+        file: String,
+        /// 1-based line of the byte.
+        line: usize,
+        /// 1-based column (characters) of the byte.
+        column: usize,
+        /// 0-based byte offset in the file.
+        offset: usize,
+        /// The offending byte.
+        byte: u8,
+    },
     /// Well-formed JSON that does not fit the format: unknown or missing field, wrong
     /// type, wrong unit.
     #[error("{file}:{line}:{column}: {field}: {message}")]
@@ -49,7 +66,7 @@ pub enum ScenarioError {
     /// A value outside its allowed range.
     #[error("{file}: {field} = {value} is not allowed; expected {allowed}")]
     OutOfRange {
-        /// File name as given.
+        /// File name as given, then `:line:column` of the field once located.
         file: String,
         /// Dotted path of the field.
         field: String,
@@ -107,41 +124,20 @@ impl fmt::Display for Warning {
     }
 }
 
-/// Turns a parse failure into [`ScenarioError::Syntax`] or [`ScenarioError::Field`].
-pub(super) fn from_json(
-    file: &str,
-    err: serde_path_to_error::Error<serde_json::Error>,
-) -> ScenarioError {
-    let path = err.path().to_string();
-    let inner = err.into_inner();
-    // serde_json counts column 0 before a line's first character (at the end of a
-    // file ending in a newline); editors count from 1.
-    let (line, column) = (inner.line(), inner.column().max(1));
-    let message = strip_position(&inner.to_string(), inner.line(), inner.column());
-    match inner.classify() {
-        serde_json::error::Category::Data => ScenarioError::Field {
-            file: file.to_string(),
-            line,
-            column,
-            field: if path == "." {
-                "(top level)".into()
-            } else {
-                path
-            },
-            message,
-        },
-        _ => ScenarioError::Syntax {
-            file: file.to_string(),
-            line,
-            column,
-            message,
-        },
+impl ScenarioError {
+    /// The error with the line and column of its field in `text` joined to the file
+    /// name, for errors found after parsing (which know the field but not the spot).
+    pub(crate) fn located(mut self, text: &str) -> Self {
+        let (file, field) = match &mut self {
+            ScenarioError::OutOfRange { file, field, .. }
+            | ScenarioError::Infeasible { file, field, .. }
+            | ScenarioError::UnknownSignal { file, field, .. }
+            | ScenarioError::Model { file, field, .. } => (file, field.as_str()),
+            _ => return self,
+        };
+        if let Some((line, column)) = super::locate::locate(text, field) {
+            file.push_str(&format!(":{line}:{column}"));
+        }
+        self
     }
-}
-
-/// serde_json ends its messages with " at line L column C"; the position is reported
-/// separately, in the `file:line:column` form editors jump to.
-fn strip_position(message: &str, line: usize, column: usize) -> String {
-    let tail = format!(" at line {line} column {column}");
-    message.strip_suffix(&tail).unwrap_or(message).to_string()
 }

@@ -13,8 +13,11 @@
 //!
 //! `stepflux schema` prints the full JSON Schema; `scenarios/` has worked examples.
 
+pub mod document;
 mod error;
 mod feasibility;
+mod locate;
+mod practice;
 pub mod raw;
 mod validate;
 
@@ -44,19 +47,26 @@ pub struct Loaded {
     pub probes: Vec<String>,
     /// Its dynamic states by name, kind and unit, in the engine's order.
     pub states: Vec<stepflux_models::steady::names::StateName>,
+    /// The file name as given, for messages.
+    pub file: String,
 }
 
 /// Reads and validates the scenario file at `path`.
 pub fn load(path: &Path) -> Result<Loaded, ScenarioError> {
-    let text = std::fs::read_to_string(path).map_err(|source| ScenarioError::Read {
+    let bytes = std::fs::read(path).map_err(|source| ScenarioError::Read {
         path: path.to_path_buf(),
         source,
     })?;
-    load_str(&text, &path.display().to_string())
+    let file = path.display().to_string();
+    load_str(&document::decode(bytes, &file)?, &file)
 }
 
 /// Validates scenario `text`; `file` names it in messages.
 pub fn load_str(text: &str, file: &str) -> Result<Loaded, ScenarioError> {
+    validated(text, file).map_err(|e| e.located(text))
+}
+
+fn validated(text: &str, file: &str) -> Result<Loaded, ScenarioError> {
     let ctx = Ctx { file };
     let raw = parse(text, file)?;
     let design = validate::design(&ctx, &raw.converter)?;
@@ -74,6 +84,7 @@ pub fn load_str(text: &str, file: &str) -> Result<Loaded, ScenarioError> {
         bias_power: ctx.non_negative("bias_power", raw.bias_power.map_or(0.0, |w| w.si()))?,
         source_text: text.to_string(),
     };
+    practice::check(&ctx, &job)?;
     let built = feasibility::build(&job.design, &job.drive, &job.disturbances)
         .map_err(|e| ctx.model("converter", e, &|f| format!("converter.{f}")))?;
     feasibility::check_build(&ctx, &job, &built)?;
@@ -86,22 +97,13 @@ pub fn load_str(text: &str, file: &str) -> Result<Loaded, ScenarioError> {
         figures,
         probes: built.probes,
         states: built.states,
+        file: file.to_string(),
     })
 }
 
 /// First stage: JSON → raw types, with the field path of any error.
 fn parse(text: &str, file: &str) -> Result<raw::Scenario, ScenarioError> {
-    let mut de = serde_json::Deserializer::from_str(text);
-    let raw: raw::Scenario =
-        serde_path_to_error::deserialize(&mut de).map_err(|e| error::from_json(file, e))?;
-    // Trailing text after the object is malformed too.
-    de.end().map_err(|e| ScenarioError::Syntax {
-        file: file.to_string(),
-        line: e.line(),
-        column: e.column(),
-        message: "text after the end of the scenario object".into(),
-    })?;
-    Ok(raw)
+    document::parse(text, file, "scenario", &json_schema())
 }
 
 /// The JSON Schema of the format, generated from the same types the loader uses.

@@ -43,7 +43,7 @@ impl Ctx<'_> {
         ScenarioError::OutOfRange {
             file: self.file.to_string(),
             field: field.to_string(),
-            value: value.to_string(),
+            value: crate::text::shorten(&value.to_string()),
             allowed: allowed.to_string(),
         }
     }

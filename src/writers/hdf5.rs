@@ -193,6 +193,20 @@ impl Hdf5Writer {
             .with_context(|| format!("closing HDF5 file {}", self.path.display()))
     }
 
+    /// Writes the staged samples and flushes the file to disk, so the file as it
+    /// stands is readable should the process be killed before [`Self::finish`].
+    pub fn checkpoint(&mut self) -> Result<()> {
+        for signal in &mut self.signals {
+            signal.flush()?;
+        }
+        for column in &mut self.integers {
+            column.flush()?;
+        }
+        self.file
+            .flush()
+            .with_context(|| format!("flushing HDF5 file {}", self.path.display()))
+    }
+
     fn signal_mut(&mut self, id: SignalId) -> Result<&mut Column<f64>> {
         match self.signals.get_mut(id.0) {
             Some(signal) => Ok(signal),

@@ -13,7 +13,7 @@
 
 use std::path::Path;
 
-use anyhow::Result;
+use anyhow::{Context, Result};
 use stepflux_engine::{Sink, Topology};
 use stepflux_models::cycles::{CycleRecord, CycleSink};
 
@@ -50,6 +50,8 @@ pub struct WaveformSink {
     /// First write failure, reported when the run ends (cycle sinks cannot fail).
     failure: Option<String>,
     samples: usize,
+    /// The file, for messages.
+    path: String,
 }
 
 impl WaveformSink {
@@ -112,6 +114,7 @@ impl WaveformSink {
             cycles,
             failure: None,
             samples: 0,
+            path: path.display().to_string(),
         })
     }
 
@@ -120,12 +123,20 @@ impl WaveformSink {
         self.samples
     }
 
+    /// Writes what is staged and flushes the file to disk (see [`Hdf5Writer::checkpoint`]).
+    pub fn checkpoint(&mut self) -> Result<()> {
+        self.writer.checkpoint()
+    }
+
     /// Flushes and closes the file; reports any write failure met on the way.
     pub fn finish(self) -> Result<()> {
         if let Some(f) = self.failure {
-            anyhow::bail!("writing waveforms: {f}");
+            anyhow::bail!("writing {}: {f}", self.path);
         }
-        self.writer.finish()
+        let path = self.path;
+        self.writer
+            .finish()
+            .with_context(|| format!("writing {path}"))
     }
 
     fn write_cycle(&mut self, r: &CycleRecord) -> Result<()> {
@@ -153,7 +164,7 @@ impl Sink for WaveformSink {
             }
             Ok(())
         };
-        write().map_err(|e| format!("{e:#}"))?;
+        write().map_err(|e| format!("writing {}: {e:#}", self.path))?;
         self.samples += 1;
         Ok(())
     }
@@ -165,7 +176,7 @@ impl Sink for WaveformSink {
         after: Topology,
     ) -> Result<(), String> {
         self.write_event(time, before.0, after.0)
-            .map_err(|e| format!("{e:#}"))
+            .map_err(|e| format!("writing {}: {e:#}", self.path))
     }
 }
 
