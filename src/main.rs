@@ -6,12 +6,14 @@ mod batch;
 mod check;
 mod cli;
 mod demo;
+mod eng;
 mod exit;
 mod job;
 mod measurements;
 mod pipeline;
 mod plot_cmd;
 mod print;
+mod readout;
 mod report;
 mod run_cmd;
 mod scenario;
@@ -79,8 +81,16 @@ fn run(cli: Cli) -> Result<(), Failure> {
             file,
             signals,
             x,
+            from,
+            to,
             output,
-        } => plot_cmd::plot(&file, &signals, &x, &output),
+        } => plot_cmd::plot(
+            &file,
+            &signals,
+            &x,
+            (from.as_deref(), to.as_deref()),
+            &output,
+        ),
         Command::Demo { out } => {
             if out.exists() && !out.is_dir() {
                 return Err(anyhow::anyhow!(

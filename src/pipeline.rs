@@ -22,7 +22,7 @@ use stepflux_models::ModelError;
 use crate::job::{Drive, Job, Start};
 use crate::measurements::Plan;
 use crate::report::{design_figures, verdicts, Figure, Summary, CAUTION};
-use crate::writers::{plots, waveforms::WaveformSink};
+use crate::writers::{html, plots, waveforms::WaveformSink};
 
 /// Progress slices per run: often enough for a smooth bar, rare enough to cost nothing.
 const SLICES: usize = 200;
@@ -333,7 +333,8 @@ pub fn run_job_with(
         .with_context(|| format!("writing {}", summary_path.display()))?;
     outcome?;
     file_result?;
-    let plots = write_plots(&h5_path, &dir, &probes, &save)?;
+    let plots = write_plots(&h5_path, &dir, &probes, &save, job)?;
+    html::write_run_report(&dir, &summary, &plots, &job.source_text)?;
     Ok(RunOutput {
         dir,
         summary,
@@ -418,45 +419,82 @@ fn saved_indices(job: &Job, probes: &[(String, &str)]) -> Vec<usize> {
         .collect()
 }
 
-/// The standard plots, for whichever of their signals were saved.
+/// The standard plots, for whichever of their signals were saved, with the limits the
+/// design knows drawn on their panels (switch rating, Bsat, the reset duty limit).
 fn write_plots(
     h5: &Path,
     dir: &Path,
     probes: &[(String, &str)],
     save: &[usize],
+    job: &Job,
 ) -> Result<Vec<PathBuf>> {
     let saved = |name: &str| save.iter().any(|&k| probes[k].0 == name);
-    let sets: [(&str, &str, &str, Vec<&str>); 3] = [
+    let d = &job.design;
+    let marker = |value: f64, label: &str| plots::Marker {
+        value,
+        label: label.into(),
+    };
+    let reset_limit = stepflux_models::figures::DesignFigures::compute(
+        d,
+        &crate::scenario::design_point(job),
+    )
+    .reset_limit_duty;
+    let panel = |signal: &str, markers: Vec<plots::Marker>| plots::Panel {
+        signal: signal.into(),
+        markers,
+    };
+    let sets: [(&str, &str, &str, Vec<plots::Panel>); 3] = [
         (
             "output.svg",
             "time",
             "Output voltage and inductor current",
-            vec!["out.v", "lout.i"],
+            vec![plots::Panel::of("out.v"), plots::Panel::of("lout.i")],
         ),
         (
             "primary.svg",
             "time",
             "Drain voltage, magnetising current and flux density",
-            vec!["drain.v", "mag.i", "core.b"],
+            vec![
+                panel(
+                    "drain.v",
+                    vec![marker(d.switch.voltage_rating, "switch rating")],
+                ),
+                plots::Panel::of("mag.i"),
+                panel(
+                    "core.b",
+                    vec![marker(d.transformer.saturation_flux_density, "Bsat")],
+                ),
+            ],
         ),
         (
             "duty.svg",
             "cycles/start",
             "Duty per cycle",
-            vec!["cycles/duty"],
+            vec![panel(
+                "cycles/duty",
+                reset_limit
+                    .map(|v| marker(v, "reset limit"))
+                    .into_iter()
+                    .collect(),
+            )],
         ),
     ];
     let mut written = Vec::new();
-    for (file, x, title, signals) in sets {
-        let present: Vec<&str> = signals
+    for (file, x, title, panels) in sets {
+        let present: Vec<plots::Panel> = panels
             .into_iter()
-            .filter(|s| s.starts_with("cycles/") || saved(s))
+            .filter(|p| p.signal.starts_with("cycles/") || saved(&p.signal))
             .collect();
         if present.is_empty() {
             continue;
         }
         let path = dir.join("plots").join(file);
-        plots::plot(h5, x, &present, title, &path)?;
+        let what = plots::Plot {
+            x,
+            window: (None, None),
+            title,
+        };
+        plots::plot(h5, &what, &present, &path)?;
         written.push(path);
     }
     Ok(written)

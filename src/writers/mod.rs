@@ -1,5 +1,6 @@
-//! Output writers: waveforms (HDF5), plots (SVG).
+//! Output writers: waveforms (HDF5), plots (SVG), the run report (HTML).
 
 pub mod hdf5;
+pub mod html;
 pub mod plots;
 pub mod waveforms;
