@@ -127,9 +127,9 @@ fn x_range(x: &h5::Dataset, n: usize, window: (Option<f64>, Option<f64>)) -> Res
     let x1 = window.1.map_or(last[0], |t| t.min(last[0]));
     if !(x1 > x0) {
         bail!(
-            "the window holds no samples: the data run from {} to {} s",
-            first[0],
-            last[0]
+            "the window holds no samples: the data run from {} to {}",
+            crate::eng::eng(first[0], "s"),
+            crate::eng::eng(last[0], "s")
         );
     }
     Ok((x0, x1))
@@ -208,8 +208,8 @@ pub fn plot(h5_path: &Path, plot: &Plot<'_>, panels: &[Panel], out: &Path) -> Re
         top.titled(plot.title, ("sans-serif", 18))?;
         // Plots show samples; the exact peaks of each cycle are in the cycle table.
         top.draw(&Text::new(
-            "sampled waveforms (min/max per pixel); exact peaks: cycle table",
-            (WIDTH as i32 - 390, 18),
+            "sampled; exact peaks in the cycle table",
+            (WIDTH as i32 - 215, 20),
             ("sans-serif", 11).into_font().color(&RGBColor(90, 100, 110)),
         ))?;
         let areas = body.split_evenly((traces.len(), 1));
