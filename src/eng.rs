@@ -36,6 +36,16 @@ pub fn eng(value: f64, unit: &str) -> String {
     }
 }
 
+/// A value with an SI prefix but no unit, for a number whose unit is not known (a
+/// study parameter in SI units): 1.91e-4 → "191 µ".
+pub fn prefixed(value: f64) -> String {
+    if !value.is_finite() {
+        return NOT_AVAILABLE.to_string();
+    }
+    let (mantissa, prefix) = scaled(value);
+    format!("{mantissa} {prefix}").trim_end().to_string()
+}
+
 /// A fraction (unit "1") as a percentage: 0.117 → "11.7 %".
 pub fn percent(fraction: f64) -> String {
     eng(100.0 * fraction, "%")
@@ -192,6 +202,8 @@ mod tests {
         assert_eq!(count(1499.0), "1499");
         assert_eq!(count(f64::NAN), "n/a");
         assert_eq!(percent(0.9046097646113198), "90.5 %");
+        assert_eq!(prefixed(1.91e-4), "191 µ");
+        assert_eq!(prefixed(24.0), "24.0");
     }
 
     /// The axis prefix puts the largest tick in [1, 1000): 3.1 ms, not 0.0031 s.

@@ -434,11 +434,9 @@ fn write_plots(
         value,
         label: label.into(),
     };
-    let reset_limit = stepflux_models::figures::DesignFigures::compute(
-        d,
-        &crate::scenario::design_point(job),
-    )
-    .reset_limit_duty;
+    let reset_limit =
+        stepflux_models::figures::DesignFigures::compute(d, &crate::scenario::design_point(job))
+            .reset_limit_duty;
     let panel = |signal: &str, markers: Vec<plots::Marker>| plots::Panel {
         signal: signal.into(),
         markers,

@@ -137,7 +137,9 @@ fn reset_line(s: &Summary) -> Option<Line> {
         });
     }
     let why = criterion_text(s, "reset_check.first_failure").unwrap_or("a criterion".into());
-    let failed = s.get("reset_check.failed_cycles").map_or("n/a".into(), count);
+    let failed = s
+        .get("reset_check.failed_cycles")
+        .map_or("n/a".into(), count);
     Some(fail(format!(
         "core reset FAIL: {why}{} ({failed} of {cycles} cycles fail)",
         at_cycle(s, "reset_check.first_failure")
@@ -166,7 +168,9 @@ fn criterion_text(s: &Summary, prefix: &str) -> Option<String> {
     let get = |what: &str| s.get(&format!("{prefix}.{what}"));
     let cmp = if m < 0.0 { ">" } else { "≤" };
     let text = match name {
-        "reset_incomplete" => "reset not complete: a reset diode still conducts at the next turn-on".into(),
+        "reset_incomplete" => {
+            "reset not complete: a reset diode still conducts at the next turn-on".into()
+        }
         "reset_margin" => {
             let have = get("reset_margin_pct")?;
             let need = have - 100.0 * m;
@@ -291,16 +295,32 @@ const STEADY: [(&str, &str, Kind); 7] = [
     ("out.v.ripple_pp", "output ripple (p-p)", Kind::Value),
     ("lout.i.mean", "inductor current", Kind::Value),
     ("lout.i.ripple_pp", "inductor ripple (p-p)", Kind::Value),
-    ("efficiency.stage", "efficiency (power stage)", Kind::Percent),
-    ("efficiency.with_bias", "efficiency (with bias)", Kind::Percent),
+    (
+        "efficiency.stage",
+        "efficiency (power stage)",
+        Kind::Percent,
+    ),
+    (
+        "efficiency.with_bias",
+        "efficiency (with bias)",
+        Kind::Percent,
+    ),
     ("power.loss_total", "losses", Kind::Value),
 ];
 
 const RESET: [(&str, &str, Kind); 7] = [
     ("reset_check.worst.cycle", "cycle", Kind::Count),
     ("reset_check.worst.duty", "duty", Kind::Percent),
-    ("reset_check.worst.reset_margin_pct", "reset margin", Kind::Value),
-    ("reset_check.worst.flux_margin_pct", "flux margin", Kind::Value),
+    (
+        "reset_check.worst.reset_margin_pct",
+        "reset margin",
+        Kind::Value,
+    ),
+    (
+        "reset_check.worst.flux_margin_pct",
+        "flux margin",
+        Kind::Value,
+    ),
     ("reset_check.worst.b_peak", "peak flux density", Kind::Value),
     ("reset_check.worst.drain_peak", "drain peak", Kind::Value),
     (

@@ -57,7 +57,9 @@ fn a_failed_reset_check_says_why_in_one_line() {
                 .into()
         }]
     );
-    assert!(r.headline.starts_with("case: FAIL — 40 cycles, 10.0 ms simulated in 270 ms"));
+    assert!(r
+        .headline
+        .starts_with("case: FAIL — 40 cycles, 10.0 ms simulated in 270 ms"));
 }
 
 /// A limit that holds shows value, bound and margin in the limit's unit; one that

@@ -112,7 +112,9 @@ fn plot_writes_an_svg_of_named_signals() {
     let status = stepflux()
         .args(["plot"])
         .arg(dir.join("two-switch/waveforms.h5"))
-        .args(["--signal", "mag.i", "--from", "20 us", "--to", "40 us", "-o"])
+        .args([
+            "--signal", "mag.i", "--from", "20 us", "--to", "40 us", "-o",
+        ])
         .arg(&zoom)
         .status()
         .expect("binary runs");

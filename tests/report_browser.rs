@@ -53,7 +53,10 @@ fn screenshot(page: &Path, png: &Path, profile: &Path) -> String {
             // Our own child, stopped by its id.
             let _ = child.kill();
             let _ = child.wait();
-            panic!("chromium took longer than {BROWSER_TIMEOUT:?} on {}", page.display());
+            panic!(
+                "chromium took longer than {BROWSER_TIMEOUT:?} on {}",
+                page.display()
+            );
         }
         std::thread::sleep(Duration::from_millis(100));
     }
@@ -111,7 +114,11 @@ fn demo_report_renders_in_a_browser_without_script_errors() {
         "<!DOCTYPE html><html><body><script>throw new Error('control')</script></body></html>",
     )
     .expect("control page");
-    let control_log = screenshot(&control, &dir.join("control.png"), &dir.join("profile-control"));
+    let control_log = screenshot(
+        &control,
+        &dir.join("control.png"),
+        &dir.join("profile-control"),
+    );
     assert!(
         !console_errors(&control_log).is_empty(),
         "the control page's thrown error must show in the browser log; log:\n{control_log}"
@@ -121,7 +128,10 @@ fn demo_report_renders_in_a_browser_without_script_errors() {
     let png = dir.join("report.png");
     let log = screenshot(&report, &png, &dir.join("profile-report"));
     let errors = console_errors(&log);
-    assert!(errors.is_empty(), "script errors in report.html: {errors:#?}");
+    assert!(
+        errors.is_empty(),
+        "script errors in report.html: {errors:#?}"
+    );
     let shot = std::fs::read(&png).expect("report screenshot written");
     assert_eq!(png_size(&shot), Some((1200, 1600)), "a 1200×1600 PNG");
     // A single colour deflates to almost nothing (each row is one filter byte and 3600

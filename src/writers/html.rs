@@ -131,11 +131,7 @@ fn run_report(s: &Summary, plots: &[PathBuf], scenario_text: &str) -> Result<Str
         };
         let _ = write!(b, "<figure>{svg}</figure>");
     }
-    let _ = write!(
-        b,
-        "<h2>Scenario</h2><pre>{}</pre>",
-        escape(scenario_text)
-    );
+    let _ = write!(b, "<h2>Scenario</h2><pre>{}</pre>", escape(scenario_text));
     Ok(page(&format!("{} — stepflux report", s.scenario), &b, ""))
 }
 

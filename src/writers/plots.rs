@@ -195,7 +195,10 @@ fn read_trace(
 /// Plots each panel's signal against `plot.x`, stacked, into an SVG file.
 pub fn plot(h5_path: &Path, plot: &Plot<'_>, panels: &[Panel], out: &Path) -> Result<()> {
     let file = h5::File::open(h5_path).with_context(|| format!("opening {}", h5_path.display()))?;
-    let x_unit = file.dataset(plot.x).map(|d| unit_of(&d)).unwrap_or_default();
+    let x_unit = file
+        .dataset(plot.x)
+        .map(|d| unit_of(&d))
+        .unwrap_or_default();
     let traces: Vec<Trace> = panels
         .iter()
         .map(|p| read_trace(&file, plot.x, &p.signal, plot.window))
@@ -210,7 +213,9 @@ pub fn plot(h5_path: &Path, plot: &Plot<'_>, panels: &[Panel], out: &Path) -> Re
         top.draw(&Text::new(
             "sampled; exact peaks in the cycle table",
             (WIDTH as i32 - 215, 20),
-            ("sans-serif", 11).into_font().color(&RGBColor(90, 100, 110)),
+            ("sans-serif", 11)
+                .into_font()
+                .color(&RGBColor(90, 100, 110)),
         ))?;
         let areas = body.split_evenly((traces.len(), 1));
         for ((trace, panel), area) in traces.iter().zip(panels).zip(areas) {
@@ -247,7 +252,11 @@ where
     let x1 = t.buckets.last().map_or(1.0, |b| b.0);
     let (xs, xu) = axis_unit(x, x_unit, x1 - x0);
     let mut lo = t.buckets.iter().map(|b| b.1).fold(f64::INFINITY, f64::min);
-    let mut hi = t.buckets.iter().map(|b| b.2).fold(f64::NEG_INFINITY, f64::max);
+    let mut hi = t
+        .buckets
+        .iter()
+        .map(|b| b.2)
+        .fold(f64::NEG_INFINITY, f64::max);
     for m in &panel.markers {
         lo = lo.min(m.value);
         hi = hi.max(m.value);
@@ -312,7 +321,10 @@ mod tests {
     fn axes_read_in_engineering_units() {
         assert_eq!(axis_unit("time", "s", 10e-3), (1e3, "ms".to_string()));
         assert_eq!(axis_unit("time", "s", 20e-6), (1e6, "µs".to_string()));
-        assert_eq!(axis_unit("cycles/duty", "1", 0.45), (100.0, "%".to_string()));
+        assert_eq!(
+            axis_unit("cycles/duty", "1", 0.45),
+            (100.0, "%".to_string())
+        );
         assert_eq!(axis_desc("mag.i", "mA"), "magnetising current (mA)");
         assert_eq!(axis_desc("cycles/duty", "%"), "duty (%)");
         assert_eq!(tick_text(3.0, 10.0), "3");
