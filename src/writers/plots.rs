@@ -125,7 +125,8 @@ fn x_range(x: &h5::Dataset, n: usize, window: (Option<f64>, Option<f64>)) -> Res
     let last: Vec<f64> = x.read_slice_1d(n - 1..n)?.to_vec();
     let x0 = window.0.map_or(first[0], |f| f.max(first[0]));
     let x1 = window.1.map_or(last[0], |t| t.min(last[0]));
-    if !(x1 > x0) {
+    // NaN ends (a corrupt time column) count as an empty window too.
+    if x1.partial_cmp(&x0) != Some(std::cmp::Ordering::Greater) {
         bail!(
             "the window holds no samples: the data run from {} to {}",
             crate::eng::eng(first[0], "s"),
