@@ -210,14 +210,17 @@ pub fn plot(h5_path: &Path, plot: &Plot<'_>, panels: &[Panel], out: &Path) -> Re
         root.fill(&WHITE)?;
         let (top, body) = root.split_vertically(30);
         top.titled(plot.title, ("sans-serif", 18))?;
-        // Plots show samples; the exact peaks of each cycle are in the cycle table.
-        top.draw(&Text::new(
-            "sampled; exact peaks in the cycle table",
-            (WIDTH as i32 - 215, 20),
-            ("sans-serif", 11)
-                .into_font()
-                .color(&RGBColor(90, 100, 110)),
-        ))?;
+        // Waveforms are samples; the exact peaks of each cycle are in the cycle table
+        // (a plot of the cycle table itself needs no such note).
+        if !plot.x.starts_with("cycles/") {
+            top.draw(&Text::new(
+                "sampled; exact peaks in the cycle table",
+                (WIDTH as i32 - 215, 20),
+                ("sans-serif", 11)
+                    .into_font()
+                    .color(&RGBColor(90, 100, 110)),
+            ))?;
+        }
         let areas = body.split_evenly((traces.len(), 1));
         for ((trace, panel), area) in traces.iter().zip(panels).zip(areas) {
             draw_panel(&area, trace, panel, plot.x, &x_unit)?;
