@@ -143,6 +143,12 @@ pub enum Command {
         /// Dataset for the horizontal axis.
         #[arg(long, value_name = "NAME", default_value = "time")]
         x: String,
+        /// Start of the window on the horizontal axis, e.g. "2 ms" (default: first sample).
+        #[arg(long, value_name = "TIME")]
+        from: Option<String>,
+        /// End of the window, e.g. "2.1 ms" (default: last sample).
+        #[arg(long, value_name = "TIME")]
+        to: Option<String>,
         /// SVG file to write.
         #[arg(short = 'o', long = "output", value_name = "FILE.svg")]
         output: PathBuf,

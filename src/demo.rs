@@ -10,7 +10,7 @@ use stepflux_models::disturbance::Disturbance;
 use crate::job::{Analysis, Drive, Job, Limits, Start};
 use crate::pipeline::{run_job, RunOutput};
 
-/// The demo as a job: 10 ms with a 2 ms soft start, +2 A at 6 ms and back at 8 ms,
+/// The demo as a job: 10 ms with 1 ms duty and reference soft starts, +2 A at 6 ms and back at 8 ms,
 /// both at 1 A/µs.
 pub fn demo_job() -> Job {
     let disturbances = vec![

@@ -91,8 +91,16 @@ fn run(cli: Cli) -> Result<(), Failure> {
             file,
             signals,
             x,
+            from,
+            to,
             output,
-        } => plot_cmd::plot(&file, &signals, &x, &output),
+        } => plot_cmd::plot(
+            &file,
+            &signals,
+            &x,
+            (from.as_deref(), to.as_deref()),
+            &output,
+        ),
         Command::Demo { out } => {
             if out.exists() && !out.is_dir() {
                 return Err(anyhow::anyhow!(

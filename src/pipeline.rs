@@ -28,7 +28,7 @@ use crate::measurements::Plan;
 use crate::report::{design_figures, verdicts, Figure, Interruption, Summary, CAUTION};
 use crate::steady::SteadyReport;
 use crate::writers::atomic::write_json;
-use crate::writers::{plots, waveforms::WaveformSink};
+use crate::writers::{html, plots, waveforms::WaveformSink};
 
 /// Fewest progress slices per run: often enough for a smooth bar.
 const MIN_SLICES: f64 = 200.0;
@@ -406,13 +406,14 @@ pub fn run_job_with(
     let ended = outcome?;
     file_result?;
     let plots = match ended {
-        Ended::Finished => write_plots(&h5_path, &dir, &probes, &save)?,
+        Ended::Finished => write_plots(&h5_path, &dir, &probes, &save, job)?,
         // A run stopped early may hold too little to plot; the summary and the
         // waveform file are what matter then.
         Ended::Interrupted(_) | Ended::Runaway(_) => {
-            write_plots(&h5_path, &dir, &probes, &save).unwrap_or_default()
+            write_plots(&h5_path, &dir, &probes, &save, job).unwrap_or_default()
         }
     };
+    html::write_run_report(&dir, &summary, &plots, &job.source_text)?;
     Ok(RunOutput {
         dir,
         summary,
@@ -512,45 +513,80 @@ fn saved_indices(job: &Job, probes: &[(String, &str)]) -> Vec<usize> {
         .collect()
 }
 
-/// The standard plots, for whichever of their signals were saved.
+/// The standard plots, for whichever of their signals were saved, with the limits the
+/// design knows drawn on their panels (switch rating, Bsat, the reset duty limit).
 fn write_plots(
     h5: &Path,
     dir: &Path,
     probes: &[(String, &str)],
     save: &[usize],
+    job: &Job,
 ) -> Result<Vec<PathBuf>> {
     let saved = |name: &str| save.iter().any(|&k| probes[k].0 == name);
-    let sets: [(&str, &str, &str, Vec<&str>); 3] = [
+    let d = &job.design;
+    let marker = |value: f64, label: &str| plots::Marker {
+        value,
+        label: label.into(),
+    };
+    let reset_limit =
+        stepflux_models::figures::DesignFigures::compute(d, &crate::scenario::design_point(job))
+            .reset_limit_duty;
+    let panel = |signal: &str, markers: Vec<plots::Marker>| plots::Panel {
+        signal: signal.into(),
+        markers,
+    };
+    let sets: [(&str, &str, &str, Vec<plots::Panel>); 3] = [
         (
             "output.svg",
             "time",
             "Output voltage and inductor current",
-            vec!["out.v", "lout.i"],
+            vec![plots::Panel::of("out.v"), plots::Panel::of("lout.i")],
         ),
         (
             "primary.svg",
             "time",
             "Drain voltage, magnetising current and flux density",
-            vec!["drain.v", "mag.i", "core.b"],
+            vec![
+                panel(
+                    "drain.v",
+                    vec![marker(d.switch.voltage_rating, "switch rating")],
+                ),
+                plots::Panel::of("mag.i"),
+                panel(
+                    "core.b",
+                    vec![marker(d.transformer.saturation_flux_density, "Bsat")],
+                ),
+            ],
         ),
         (
             "duty.svg",
             "cycles/start",
             "Duty per cycle",
-            vec!["cycles/duty"],
+            vec![panel(
+                "cycles/duty",
+                reset_limit
+                    .map(|v| marker(v, "reset limit"))
+                    .into_iter()
+                    .collect(),
+            )],
         ),
     ];
     let mut written = Vec::new();
-    for (file, x, title, signals) in sets {
-        let present: Vec<&str> = signals
+    for (file, x, title, panels) in sets {
+        let present: Vec<plots::Panel> = panels
             .into_iter()
-            .filter(|s| s.starts_with("cycles/") || saved(s))
+            .filter(|p| p.signal.starts_with("cycles/") || saved(&p.signal))
             .collect();
         if present.is_empty() {
             continue;
         }
         let path = dir.join("plots").join(file);
-        plots::plot(h5, x, &present, title, &path)?;
+        let what = plots::Plot {
+            x,
+            window: (None, None),
+            title,
+        };
+        plots::plot(h5, &what, &present, &path)?;
         written.push(path);
     }
     Ok(written)

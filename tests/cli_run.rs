@@ -106,4 +106,28 @@ fn plot_writes_an_svg_of_named_signals() {
         .status()
         .expect("binary runs");
     assert_eq!(status.code(), Some(2), "unknown signal is bad input");
+    // A time window (README "Using it"): axes in engineering units with a readable
+    // label, not the dataset path; a window past the end of the run is bad input.
+    let zoom = dir.join("zoom.svg");
+    let status = stepflux()
+        .args(["plot"])
+        .arg(dir.join("two-switch/waveforms.h5"))
+        .args([
+            "--signal", "mag.i", "--from", "20 us", "--to", "40 us", "-o",
+        ])
+        .arg(&zoom)
+        .status()
+        .expect("binary runs");
+    assert_eq!(status.code(), Some(0));
+    let text = std::fs::read_to_string(&zoom).expect("svg written");
+    assert!(text.contains("time (µs)") && text.contains("magnetising current"));
+    let status = stepflux()
+        .args(["plot"])
+        .arg(dir.join("two-switch/waveforms.h5"))
+        .args(["--signal", "mag.i", "--from", "1000 s", "-o"])
+        .arg(dir.join("late.svg"))
+        .stderr(std::process::Stdio::null())
+        .status()
+        .expect("binary runs");
+    assert_eq!(status.code(), Some(2), "an empty window is bad input");
 }

@@ -107,7 +107,9 @@ pub fn demo_amplifier() -> Amplifier {
 }
 
 /// The demo controller: 150 kHz clock, 1–3 V ramp, 45 % duty clamp, 1 ms duty soft
-/// start, 2.5 V reference with a 3 ms soft start and a 1:1 divider for 5 V, type III compensation for a 15 kHz
+/// start, 2.5 V reference with a 1 ms soft start (as long as the duty soft start, so
+/// the reference keeps pace and the output rises monotonically; 3 ms made the two
+/// fight, see `scenarios/startup-fighting-soft-starts.json`) and a 1:1 divider for 5 V, type III compensation for a 15 kHz
 /// crossover (double zero near the output LC resonance of 2.8 kHz, poles at the
 /// output capacitor's ESR zero and at half the switching frequency), 8 A current
 /// limit, 16 V / 15 V lockout.
@@ -123,7 +125,7 @@ pub fn demo_controller() -> ControllerSpec {
         soft_start: 1e-3,
         voltage_loop: VoltageLoop {
             reference: 2.5,
-            reference_soft_start: 3e-3,
+            reference_soft_start: 1e-3,
             divider_top: 10e3,
             divider_bottom: 10e3,
             amplifier: demo_amplifier(),

@@ -4,7 +4,8 @@
 //! Output of `stepflux batch study.json --out DIR`, under `DIR/<study>/`:
 //! - `cases/<id>.json`, one per case, written as soon as it ends (see [`record`]);
 //! - `study.json` (name, plan fingerprint, case count, parameters) for `merge`;
-//! - `results.csv`, `results.json`, `worst.json` (see [`table`]);
+//! - `results.csv`, `results.json`, `worst.json` (see [`table`]) and `report.html`
+//!   for people (see [`study_report`]);
 //! - `waveforms/<study>-<id>/` per `--waveforms`: each case runs with its waveforms and
 //!   the folder of a passing case is deleted under `failed` (the default).
 //!
@@ -22,6 +23,7 @@ mod record;
 mod runner;
 mod shard;
 mod study;
+mod study_report;
 mod table;
 mod value;
 

@@ -1,7 +1,8 @@
 //! The study tables: `results.csv` and `results.json` (a row per case, sorted by case
 //! id) and `worst.json` (for each measurement, the case where it is worst). Nothing in
 //! them depends on the clock or on thread count, so two runs of one study compare
-//! byte for byte; run times stay in the case files.
+//! byte for byte; run times stay in the case files. `report.html` beside them is the
+//! same for people (see `study_report`).
 
 use std::collections::{BTreeMap, BTreeSet};
 use std::fmt::Write as _;
@@ -109,7 +110,8 @@ pub fn write_tables(
         &dir.join("results.json"),
         &results_json(meta, records, &units, missing),
     )?;
-    write_json(&dir.join("worst.json"), &worst_json(meta, records, &units))
+    write_json(&dir.join("worst.json"), &worst_json(meta, records, &units))?;
+    super::study_report::write(dir, meta, records)
 }
 
 /// Every measurement name with its unit, sorted by name.
@@ -251,7 +253,7 @@ fn worst_json(meta: &StudyMeta, records: &[CaseRecord], units: &BTreeMap<String,
 }
 
 /// The case with the worst value of `name` (the first by id on a tie) and that value.
-fn worst_case<'a>(
+pub(super) fn worst_case<'a>(
     ran: &[&'a CaseRecord],
     name: &str,
     rule: Worst,
