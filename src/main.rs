@@ -9,6 +9,7 @@ mod demo;
 mod efficiency_cmd;
 mod exit;
 mod job;
+mod loop_cmd;
 mod measurements;
 mod pipeline;
 mod plot_cmd;
@@ -84,6 +85,21 @@ fn run(cli: Cli) -> Result<(), Failure> {
             line,
             out,
             jobs,
+        }),
+        Command::Loop {
+            scenario,
+            points,
+            from,
+            to,
+            json,
+            out,
+        } => loop_cmd::run(&loop_cmd::LoopArgs {
+            scenario,
+            points,
+            from,
+            to,
+            json,
+            out,
         }),
         Command::Run {
             scenarios,
