@@ -97,6 +97,39 @@ pub enum Command {
         #[arg(long, value_name = "N", default_value_t = 0)]
         jobs: usize,
     },
+    /// Loop gain, crossover and margins at the steady state, switching and averaged model.
+    #[command(
+        after_help = "Example:\n  stepflux loop scenarios/demo-startup.json --points 200\n  \
+        stepflux loop scenarios/demo-startup.json --from 1kHz --to 75kHz --json\n\n\
+        The loop is broken in series at the modulator's control input (between the error \
+        amplifier output and the PWM comparator). The switching model's period map is \
+        linearised at its periodic steady state (a sampled-data model, evaluated at \
+        z = exp(j2πf/fs)); the state-space-averaged model of the same design and \
+        compensator is shown beside it. Writes DIR/<name>-loop/ with loop.csv and \
+        loop.json (hertz, dB, degrees) and loop.svg (Bode plot: switching model solid, \
+        averaged dashed, crossover and margins marked). Exits 2 for an open-loop \
+        scenario or a bad range, 3 when there is no steady state."
+    )]
+    Loop {
+        /// Scenario file (JSON; see `stepflux schema`).
+        #[arg(value_name = "SCENARIO")]
+        scenario: PathBuf,
+        /// Frequencies on the logarithmic grid.
+        #[arg(long, value_name = "N", default_value_t = 100)]
+        points: usize,
+        /// Lowest frequency (default: a thousandth of the switching frequency).
+        #[arg(long, value_name = "F")]
+        from: Option<String>,
+        /// Highest frequency, at most half the switching frequency (the default).
+        #[arg(long, value_name = "F")]
+        to: Option<String>,
+        /// Print one JSON object (SI units) instead of text.
+        #[arg(long)]
+        json: bool,
+        /// Directory that receives the `<name>-loop/` folder.
+        #[arg(long, value_name = "DIR", default_value = "out")]
+        out: PathBuf,
+    },
     /// Run one or more scenario files, in parallel, writing each run's outputs.
     #[command(
         after_help = "Example:\n  stepflux run scenarios/demo-startup.json scenarios/load-step.json --out results\n\n\

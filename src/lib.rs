@@ -14,6 +14,7 @@ pub mod eng;
 pub mod exit;
 pub mod interrupt;
 pub mod job;
+pub mod loop_cmd;
 pub mod measurements;
 pub mod pipeline;
 pub mod plot_cmd;

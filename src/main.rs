@@ -8,7 +8,9 @@ use clap::Parser;
 
 use stepflux::cli::{Cli, Command};
 use stepflux::exit::{Exit, ExitWith, Failure};
-use stepflux::{batch, check, demo, efficiency_cmd, plot_cmd, print, run_cmd, settle_cmd};
+use stepflux::{
+    batch, check, demo, efficiency_cmd, loop_cmd, plot_cmd, print, run_cmd, settle_cmd,
+};
 
 fn main() -> ExitCode {
     // Clap exits on its own with 2 for usage errors and 0 for --help,
@@ -72,6 +74,21 @@ fn run(cli: Cli) -> Result<(), Failure> {
             line,
             out,
             jobs,
+        }),
+        Command::Loop {
+            scenario,
+            points,
+            from,
+            to,
+            json,
+            out,
+        } => loop_cmd::run(&loop_cmd::LoopArgs {
+            scenario,
+            points,
+            from,
+            to,
+            json,
+            out,
         }),
         Command::Run {
             scenarios,

@@ -5,7 +5,7 @@
 //! circuit with named probes ([`template`]), the open-loop gate source ([`gate`]), the
 //! behavioural PWM controller ([`controller`]), load/line/reference steps
 //! ([`disturbance`]), the
-//! per-cycle core-reset table ([`cycles`]), and the closed-form design figures the
+//! per-cycle core-reset table ([`cycles`]), the sampled-data loop gain ([`loopgain`]), and the closed-form design figures the
 //! templates are checked against ([`figures`]).
 //!
 //! It depends on `stepflux-engine` only: no files, threads, terminals or serialisation.
@@ -21,6 +21,7 @@ pub mod disturbance;
 mod error;
 pub mod figures;
 pub mod gate;
+pub mod loopgain;
 pub mod measure;
 pub mod run;
 pub mod runaway;

@@ -1,7 +1,8 @@
-//! Output writers: waveforms (HDF5), plots (SVG), the efficiency plot (SVG), the run
-//! report (HTML), whole files written atomically.
+//! Output writers: waveforms (HDF5), plots (SVG), the efficiency and Bode plots (SVG),
+//! the run report (HTML), whole files written atomically.
 
 pub mod atomic;
+pub mod bode_plot;
 pub mod efficiency_plot;
 pub mod hdf5;
 pub mod html;

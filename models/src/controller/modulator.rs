@@ -51,6 +51,11 @@ pub struct ClosedLoop<S = Simulation> {
     complement_on: bool,
     /// Where the run ends inside a clock period being cut short (infinite otherwise).
     horizon: f64,
+    /// Volts added to the control voltage where the comparator and the skip test read
+    /// it (0 in normal runs): the small-signal injection point of the sampled-data loop
+    /// gain ([`crate::loopgain`]), between the error amplifier's output and the PWM
+    /// comparator. The caller holds it over whole periods; snapshots do not carry it.
+    pub control_offset: f64,
 }
 
 impl ClosedLoop<Simulation> {
@@ -112,6 +117,7 @@ impl<S: Stepper> ClosedLoop<S> {
             clock: 0,
             complement_on: false,
             horizon: f64::INFINITY,
+            control_offset: 0.0,
         })
     }
 
@@ -230,8 +236,9 @@ impl<S: Stepper> ClosedLoop<S> {
         o.peak - (o.peak - o.valley) * (t - t0) / self.spec.clock_period()
     }
 
+    /// The control voltage as the modulator sees it: the node plus the injection.
     fn control_voltage(&self) -> f64 {
-        self.run.sim.event_signal(CONTROL_SIGNAL)
+        self.run.sim.event_signal(CONTROL_SIGNAL) + self.control_offset
     }
 
     fn update_lockout(&mut self, t0: f64) {
@@ -376,7 +383,7 @@ impl<S: Stepper> ClosedLoop<S> {
         let o = &self.spec.oscillator;
         let slot = self.run.sim.arm(EventFn {
             signal: CONTROL_SIGNAL,
-            offset: -o.peak,
+            offset: self.control_offset - o.peak,
             rate: (o.peak - o.valley) / self.spec.clock_period(),
             t_ref: t0,
             direction: Direction::Rising,

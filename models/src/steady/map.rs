@@ -199,6 +199,12 @@ impl ClosedLoopMap {
     pub fn closed_loop(&self) -> &ClosedLoop {
         &self.lp
     }
+
+    /// Sets the volts added to the control voltage at the comparator for the periods
+    /// run from now on ([`ClosedLoop::control_offset`]).
+    pub fn set_control_offset(&mut self, volts: f64) {
+        self.lp.control_offset = volts;
+    }
 }
 
 impl PeriodMap for ClosedLoopMap {

@@ -1,0 +1,205 @@
+//! Small-signal loop gain from the switching model: the sampled-data model of
+//! Verghese, Elbuluk & Kassakian ("A general approach to sampled-data modeling for
+//! power electronic circuits", IEEE Trans. Power Electron. PE-1(2), 1986).
+//!
+//! **Method.** Around the periodic steady state x* (found by [`crate::steady`]), the
+//! closed-loop period map is linearised in the states and in one small-signal input u,
+//! held over the period:
+//!
+//! x̂ₖ₊₁ = Φ x̂ₖ + Γ ûₖ,  d̂ₖ = K x̂ₖ + k_u ûₖ,  v̂ₒ,ₖ₊₁ = C x̂ₖ + D ûₖ,
+//!
+//! Φ = ∂P/∂x, Γ = ∂P/∂u, K and k_u the duty of period k (turn-off command over the
+//! period, [`crate::cycles::CycleRecord::duty`]), C and D the output voltage at the end of
+//! the period. Every entry is a central difference of two period runs from the steady
+//! state's boundary (2·nx + 2 runs, the same snapshot/restore machinery as shooting),
+//! so diodes, the comparator and the sequential logic need no per-event bookkeeping.
+//!
+//! **Where the loop is broken.** u is a voltage in series at the modulator's control
+//! input, between the error amplifier's output and the PWM comparator
+//! ([`crate::controller::modulator::ClosedLoop::control_offset`]). The comparator reads
+//! its input once per period, at the turn-off instant: that is the loop's one sampler,
+//! and the loop gain is defined there. With v̂ₘ the modulator input at that instant,
+//! d̂ = k_u·v̂ₘ (k_u = ∂d/∂u at fixed states, ≈ −1/(peak − valley) with this project's
+//! falling ramp), and v̂ₘ = v̂_c + û, so the closed-loop duty response H_d(z) =
+//! K(zI − Φ)⁻¹Γ + k_u gives v̂ₘ/û = H_d/k_u = 1/(1 + T) (Middlebrook's injection
+//! relation, T = −v̂_c/v̂ₘ), i.e.
+//!
+//! T(z) = k_u / H_d(z) − 1,  z = e^{jωT_s}.
+//!
+//! T is positive real at DC, as the averaged model's [`crate::averaged::AveragedModel::loop_gain`].
+//! Reading v̂_c through the duty places it at the sampling instant; reading it at the
+//! clock edge instead would mix in the control voltage's motion between the edge and
+//! the turn-off (a lag of ωDT_s, 7° at fs/20 with D = 0.4) and give a different,
+//! wrong loop gain.
+//!
+//! **Control-to-output** v̂ₒ/v̂ₘ = k_u·H_o/H_d with H_o(z) = z⁻¹(C(zI − Φ)⁻¹Γ + D), the
+//! output sampled at the clock edge; multiplied by e^{jωDT_s} to refer the duty to its
+//! turn-off instant, so it compares with a continuous-time model.
+//!
+//! **Margins** ([`margins`]): crossover where |T| falls through 1, phase margin 180° +
+//! ∠T there (phase unwrapped from the lowest frequency), gain margin −20·log₁₀|T| where
+//! the phase first falls through −180°.
+
+mod response;
+#[cfg(test)]
+mod tests;
+
+use nalgebra::{DMatrix, DVector};
+
+pub use response::{log_grid, margins, Bode, BodePoint, Margins};
+
+use crate::controller::ControllerSpec;
+use crate::cycles::CycleRecord;
+use crate::error::ModelError;
+use crate::steady::map::trial_options;
+use crate::steady::map::{ClosedLoopMap, PeriodMap};
+use crate::steady::{shoot, ShootingOptions, SteadyError, SteadyState};
+use crate::template::ForwardDesign;
+
+/// Finite-difference steps of the linearisation.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct LinearOptions {
+    /// Relative step of each state: h_j = state_step·max(|x_j|, 1 unit).
+    pub state_step: f64,
+    /// Injection step as a fraction of the ramp amplitude (peak − valley).
+    pub injection_step: f64,
+}
+
+impl Default for LinearOptions {
+    /// 1e-6 of each state and of the ramp: a duty change of about 1e-6, a million ticks
+    /// of the trial grid (1e-12 of the period), so the event staircase is 1e-6 of the
+    /// difference, while the curvature error of a central difference is of order h²,
+    /// far below it.
+    fn default() -> Self {
+        LinearOptions {
+            state_step: 1e-6,
+            injection_step: 1e-6,
+        }
+    }
+}
+
+/// The linearised period map with the injection input, and the rows read from it.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SampledModel {
+    /// Φ = ∂P/∂x at the steady state.
+    pub phi: DMatrix<f64>,
+    /// Γ = ∂P/∂u, per volt of injection.
+    pub gamma: DVector<f64>,
+    /// K = ∂d/∂x of the period's duty.
+    pub duty_x: DVector<f64>,
+    /// k_u = ∂d/∂u, per volt.
+    pub duty_u: f64,
+    /// ∂v_o/∂x of the output voltage at the period's end.
+    pub out_x: DVector<f64>,
+    /// ∂v_o/∂u at the period's end, volts per volt.
+    pub out_u: f64,
+    /// Switching period T_s, seconds.
+    pub period: f64,
+    /// Steady duty.
+    pub duty: f64,
+}
+
+/// What one period from (x, u) gives: the next states, the duty and the output voltage.
+struct Sample {
+    x: Vec<f64>,
+    duty: f64,
+    out: f64,
+}
+
+fn sample(map: &mut ClosedLoopMap, x: &[f64], u: f64) -> Result<Sample, ModelError> {
+    map.set_control_offset(u);
+    let mut cycles: Vec<CycleRecord> = Vec::new();
+    let next = map.run_from(x, 1, &mut cycles);
+    map.set_control_offset(0.0);
+    let next = next?;
+    let duty = cycles
+        .last()
+        .map(|c| c.duty)
+        .ok_or_else(|| ModelError::Infeasible("loop gain: no pulse in the period".into()))?;
+    let out =
+        map.closed_loop().run.probe("out.v").ok_or_else(|| {
+            ModelError::Infeasible("loop gain: the converter has no out.v".into())
+        })?;
+    Ok(Sample { x: next, duty, out })
+}
+
+/// Central difference of two samples: (next states, duty, output) per unit of step.
+fn difference(plus: &Sample, minus: &Sample, h: f64) -> (Vec<f64>, f64, f64) {
+    let dx = plus
+        .x
+        .iter()
+        .zip(&minus.x)
+        .map(|(a, b)| (a - b) / (2.0 * h))
+        .collect();
+    (
+        dx,
+        (plus.duty - minus.duty) / (2.0 * h),
+        (plus.out - minus.out) / (2.0 * h),
+    )
+}
+
+/// Linearises `map` (a closed loop in single-ended mode) about `steady`.
+pub fn linearise(
+    map: &mut ClosedLoopMap,
+    spec: &ControllerSpec,
+    steady: &SteadyState,
+    opts: &LinearOptions,
+) -> Result<SampledModel, ModelError> {
+    if spec.mode != crate::controller::OutputMode::SingleEnded {
+        return Err(ModelError::Infeasible(
+            "loop gain: alternating outputs are not modelled yet (single-ended only)".into(),
+        ));
+    }
+    let n = steady.x.len();
+    let mut phi = DMatrix::zeros(n, n);
+    let mut duty_x = DVector::zeros(n);
+    let mut out_x = DVector::zeros(n);
+    for j in 0..n {
+        // 1 A, 1 V or 1 block unit for states that sit near zero, as in shooting.
+        let h = opts.state_step * steady.x[j].abs().max(1.0);
+        let mut xp = steady.x.clone();
+        xp[j] += h;
+        let plus = sample(map, &xp, 0.0)?;
+        xp[j] -= 2.0 * h;
+        let minus = sample(map, &xp, 0.0)?;
+        let (dx, dd, dout) = difference(&plus, &minus, h);
+        phi.set_column(j, &DVector::from_vec(dx));
+        duty_x[j] = dd;
+        out_x[j] = dout;
+    }
+    let o = &spec.oscillator;
+    let hu = opts.injection_step * (o.peak - o.valley);
+    let plus = sample(map, &steady.x, hu)?;
+    let minus = sample(map, &steady.x, -hu)?;
+    let (gamma, duty_u, out_u) = difference(&plus, &minus, hu);
+    let centre = sample(map, &steady.x, 0.0)?;
+    if duty_u >= 0.0 {
+        return Err(ModelError::Infeasible(format!(
+            "loop gain: the duty does not follow the control input (∂d/∂u = {duty_u:e} /V): \
+             the pulse ends at the duty clamp or is blanked, so the loop is open"
+        )));
+    }
+    Ok(SampledModel {
+        phi,
+        gamma: DVector::from_vec(gamma),
+        duty_x,
+        duty_u,
+        out_x,
+        out_u,
+        period: map.period(),
+        duty: centre.duty,
+    })
+}
+
+/// Shoots for the steady state of `design` under `spec` (soft starts over, on the trial
+/// grid, [`trial_options`]) and linearises the period map there.
+pub fn sampled_model(
+    design: &ForwardDesign,
+    spec: &ControllerSpec,
+    opts: &LinearOptions,
+) -> Result<(SteadyState, SampledModel), SteadyError> {
+    let mut map = ClosedLoopMap::new(design, spec, trial_options(spec.clock_period()))?;
+    let steady = shoot(&mut map, &ShootingOptions::default())?;
+    let model = linearise(&mut map, spec, &steady, opts)?;
+    Ok((steady, model))
+}

@@ -1,0 +1,208 @@
+//! Frequency responses of the sampled-data model and of the averaged model, and the
+//! crossover and margins read off any loop gain the same way.
+
+use nalgebra::{Complex, DMatrix, DVector};
+
+use super::SampledModel;
+use crate::averaged::{AveragedModel, Output};
+use crate::error::ModelError;
+
+const TAU: f64 = 2.0 * std::f64::consts::PI;
+
+type C64 = Complex<f64>;
+
+/// Loop gain and control-to-output at one frequency.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct BodePoint {
+    /// Hertz.
+    pub frequency: f64,
+    /// Loop gain T.
+    pub loop_gain: C64,
+    /// Output voltage per volt at the modulator's control input.
+    pub control_to_output: C64,
+}
+
+/// A response of one model on a frequency grid.
+pub type Bode = Vec<BodePoint>;
+
+impl SampledModel {
+    /// (zI − Φ)⁻¹Γ at z = e^{jωT_s}.
+    fn resolvent(&self, frequency: f64) -> Result<(C64, DVector<C64>), ModelError> {
+        let n = self.phi.nrows();
+        let z = C64::from_polar(1.0, TAU * frequency * self.period);
+        let m = DMatrix::from_fn(n, n, |i, j| {
+            let a = C64::new(-self.phi[(i, j)], 0.0);
+            if i == j {
+                a + z
+            } else {
+                a
+            }
+        });
+        let g = DVector::from_fn(n, |i, _| C64::new(self.gamma[i], 0.0));
+        let w = m.lu().solve(&g).ok_or_else(|| {
+            ModelError::Infeasible(format!(
+                "sampled-data model: a Floquet multiplier sits on the unit circle at {frequency} Hz"
+            ))
+        })?;
+        Ok((z, w))
+    }
+
+    /// T and v̂ₒ/v̂ₘ at `frequency` (see the module doc of [`super`]).
+    pub fn at(&self, frequency: f64) -> Result<BodePoint, ModelError> {
+        let (z, w) = self.resolvent(frequency)?;
+        let dot =
+            |row: &DVector<f64>| (0..row.len()).fold(C64::new(0.0, 0.0), |s, i| s + w[i] * row[i]);
+        let h_d = dot(&self.duty_x) + self.duty_u;
+        let h_o = (dot(&self.out_x) + self.out_u) / z;
+        let turn_off = C64::from_polar(1.0, TAU * frequency * self.duty * self.period);
+        Ok(BodePoint {
+            frequency,
+            loop_gain: self.duty_u / h_d - 1.0,
+            control_to_output: h_o * self.duty_u / h_d * turn_off,
+        })
+    }
+
+    /// [`SampledModel::at`] on every frequency of `grid`.
+    pub fn bode(&self, grid: &[f64]) -> Result<Bode, ModelError> {
+        grid.iter().map(|&f| self.at(f)).collect()
+    }
+}
+
+impl AveragedModel {
+    /// Output voltage per volt at the modulator's control input, −(m/V_m)·G_vd(s), the
+    /// loop opened at the same place as [`AveragedModel::loop_gain`].
+    pub fn control_to_output(&self, frequency: f64) -> Result<C64, ModelError> {
+        let ol = &self.open_loop;
+        let n = ol.a.nrows();
+        let duty = ol.b.ncols() - 1;
+        let s = C64::new(0.0, TAU * frequency);
+        let m = DMatrix::from_fn(n, n, |i, j| {
+            let a = C64::new(-ol.a[(i, j)], 0.0);
+            if i == j {
+                a + s
+            } else {
+                a
+            }
+        });
+        let b = DVector::from_fn(n, |i, _| C64::new(ol.b[(i, duty)], 0.0));
+        let x = m.lu().solve(&b).ok_or_else(|| {
+            ModelError::Infeasible(format!("averaged model: a pole sits at {frequency} Hz"))
+        })?;
+        let vo = Output::OutputVoltage as usize;
+        let g = (0..n).fold(C64::new(ol.d[(vo, duty)], 0.0), |g, i| {
+            g + x[i] * ol.c[(vo, i)]
+        });
+        Ok(-g * self.modulator_gain())
+    }
+
+    /// Loop gain and control-to-output on every frequency of `grid`.
+    pub fn bode(&self, grid: &[f64]) -> Result<Bode, ModelError> {
+        grid.iter()
+            .map(|&f| {
+                Ok(BodePoint {
+                    frequency: f,
+                    loop_gain: self.loop_gain(f)?,
+                    control_to_output: self.control_to_output(f)?,
+                })
+            })
+            .collect()
+    }
+}
+
+/// Crossover and margins of a loop gain.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Margins {
+    /// Where |T| first falls through 1, hertz (None: it does not in the range).
+    pub crossover: Option<f64>,
+    /// 180° plus the unwrapped phase of T at crossover, degrees.
+    pub phase_margin: Option<f64>,
+    /// Where the unwrapped phase first falls through −180°, hertz.
+    pub phase_crossover: Option<f64>,
+    /// −20·log₁₀|T| there, dB.
+    pub gain_margin: Option<f64>,
+}
+
+/// Points per decade of the search grid; each crossing is then bisected.
+const PER_DECADE: f64 = 200.0;
+
+/// An angle brought into (−π, π].
+fn wrap(a: f64) -> f64 {
+    let w = a.rem_euclid(TAU);
+    if w > std::f64::consts::PI {
+        w - TAU
+    } else {
+        w
+    }
+}
+
+/// Crossover and margins of `t` between `lo` and `hi` hertz: a log grid of
+/// [`PER_DECADE`] points per decade, the phase unwrapped from `lo` (where it is taken in
+/// (−180°, 180°]), each crossing bisected in log frequency to 1e-9 of a decade.
+pub fn margins(
+    lo: f64,
+    hi: f64,
+    t: impl Fn(f64) -> Result<C64, ModelError>,
+) -> Result<Margins, ModelError> {
+    let steps = ((hi / lo).log10() * PER_DECADE).ceil().max(1.0) as usize;
+    let freq = |k: f64| lo * (hi / lo).powf(k / steps as f64);
+    let mut out = Margins {
+        crossover: None,
+        phase_margin: None,
+        phase_crossover: None,
+        gain_margin: None,
+    };
+    let mut prev = t(lo)?;
+    let mut phase = prev.arg();
+    for k in 1..=steps {
+        let here = t(freq(k as f64))?;
+        let next_phase = phase + wrap(here.arg() - prev.arg());
+        if out.crossover.is_none() && prev.norm() >= 1.0 && here.norm() < 1.0 {
+            let f = bisect(k, &freq, |f| Ok(t(f)?.norm() >= 1.0))?;
+            let p = phase + wrap(t(f)?.arg() - prev.arg());
+            out.crossover = Some(f);
+            out.phase_margin = Some(180.0 + p.to_degrees());
+        }
+        if out.phase_crossover.is_none()
+            && phase > -std::f64::consts::PI
+            && next_phase <= -std::f64::consts::PI
+        {
+            let f = bisect(k, &freq, |f| {
+                Ok(phase + wrap(t(f)?.arg() - prev.arg()) > -std::f64::consts::PI)
+            })?;
+            out.phase_crossover = Some(f);
+            out.gain_margin = Some(-20.0 * t(f)?.norm().log10());
+        }
+        phase = next_phase;
+        prev = here;
+    }
+    Ok(out)
+}
+
+/// The frequency between grid points k − 1 and k where `above` turns false.
+fn bisect(
+    k: usize,
+    freq: &impl Fn(f64) -> f64,
+    above: impl Fn(f64) -> Result<bool, ModelError>,
+) -> Result<f64, ModelError> {
+    let (mut a, mut b) = ((k - 1) as f64, k as f64);
+    for _ in 0..40 {
+        let mid = 0.5 * (a + b);
+        if above(freq(mid))? {
+            a = mid;
+        } else {
+            b = mid;
+        }
+    }
+    Ok(freq(0.5 * (a + b)))
+}
+
+/// `n` frequencies spaced evenly in log from `lo` to `hi` hertz.
+pub fn log_grid(lo: f64, hi: f64, n: usize) -> Vec<f64> {
+    match n {
+        0 => Vec::new(),
+        1 => vec![lo],
+        _ => (0..n)
+            .map(|k| lo * (hi / lo).powf(k as f64 / (n - 1) as f64))
+            .collect(),
+    }
+}

@@ -1,0 +1,287 @@
+//! `stepflux loop SCENARIO [--points N] [--from F] [--to F] [--json]`: the loop gain of
+//! a scenario's controller at its steady operating point, from the switching model's
+//! sampled-data linearisation ([`stepflux_models::loopgain`]) and beside it from the
+//! state-space-averaged model ([`stepflux_models::averaged`]) of the same design and
+//! compensator. The loop is broken at the modulator's control input.
+//!
+//! Writes `DIR/<name>-loop/`: `loop.csv` and `loop.json` (SI units, degrees and dB) and
+//! `loop.svg` (Bode plot), and prints crossover and margins.
+
+use std::path::{Path, PathBuf};
+
+use anyhow::{anyhow, bail, Context, Result};
+use nalgebra::Complex;
+use serde::Serialize;
+use stepflux_models::averaged::AveragedModel;
+use stepflux_models::loopgain::{
+    log_grid, margins, sampled_model, Bode, LinearOptions, Margins, SampledModel,
+};
+
+use crate::check::eng;
+use crate::exit::{Exit, ExitWith, Failure};
+use crate::job::{Drive, Job};
+use crate::scenario;
+use crate::units::{self, Unit};
+use crate::writers::bode_plot;
+
+/// What the command was asked for.
+pub struct LoopArgs {
+    /// Scenario file.
+    pub scenario: PathBuf,
+    /// Frequencies on the grid.
+    pub points: usize,
+    /// Lowest frequency (default fs/1000).
+    pub from: Option<String>,
+    /// Highest frequency (default fs/2).
+    pub to: Option<String>,
+    /// Print JSON instead of text.
+    pub json: bool,
+    /// Output root.
+    pub out: PathBuf,
+}
+
+/// Crossover and margins in the report's units.
+#[derive(Clone, Copy, Debug, Serialize)]
+pub struct MarginReport {
+    /// Hertz.
+    pub crossover_hz: Option<f64>,
+    /// Degrees.
+    pub phase_margin_deg: Option<f64>,
+    /// Where the phase is −180°, hertz.
+    pub phase_crossover_hz: Option<f64>,
+    /// dB.
+    pub gain_margin_db: Option<f64>,
+}
+
+impl From<Margins> for MarginReport {
+    fn from(m: Margins) -> Self {
+        MarginReport {
+            crossover_hz: m.crossover,
+            phase_margin_deg: m.phase_margin,
+            phase_crossover_hz: m.phase_crossover,
+            gain_margin_db: m.gain_margin,
+        }
+    }
+}
+
+/// One model's curves on the grid: magnitude in dB, phase in degrees (unwrapped
+/// from the lowest frequency).
+#[derive(Clone, Debug, Serialize)]
+pub struct Curves {
+    /// Loop gain magnitude, dB.
+    pub loop_gain_db: Vec<f64>,
+    /// Loop gain phase, degrees.
+    pub loop_gain_deg: Vec<f64>,
+    /// Control-to-output magnitude, dB (volts of output per volt at the modulator).
+    pub control_to_output_db: Vec<f64>,
+    /// Control-to-output phase, degrees.
+    pub control_to_output_deg: Vec<f64>,
+    /// Crossover and margins.
+    pub margins: MarginReport,
+}
+
+/// The whole result.
+#[derive(Clone, Debug, Serialize)]
+pub struct LoopReport {
+    /// Scenario name.
+    pub scenario: String,
+    /// Switching frequency, hertz.
+    pub switching_frequency_hz: f64,
+    /// Steady duty of the switching model.
+    pub duty: f64,
+    /// Where the loop is broken.
+    pub break_point: &'static str,
+    /// Frequencies, hertz.
+    pub frequency_hz: Vec<f64>,
+    /// The switching model's sampled-data linearisation.
+    pub sampled: Curves,
+    /// The averaged model, if it applies to the design (None: why not in `averaged_error`).
+    pub averaged: Option<Curves>,
+    /// Why there is no averaged model.
+    pub averaged_error: Option<String>,
+}
+
+const BREAK_POINT: &str = "in series at the modulator's control input, between the error \
+amplifier output and the PWM comparator; T = -v_c/v_m";
+
+fn unwrap_deg(values: impl Iterator<Item = Complex<f64>>) -> Vec<f64> {
+    let mut out: Vec<f64> = Vec::new();
+    for c in values {
+        let p = c.arg().to_degrees();
+        let q = match out.last() {
+            Some(&prev) => p + 360.0 * ((prev - p) / 360.0).round(),
+            None => p,
+        };
+        out.push(q);
+    }
+    out
+}
+
+fn curves(bode: &Bode, m: Margins) -> Curves {
+    let db = |c: Complex<f64>| 20.0 * c.norm().log10();
+    Curves {
+        loop_gain_db: bode.iter().map(|p| db(p.loop_gain)).collect(),
+        loop_gain_deg: unwrap_deg(bode.iter().map(|p| p.loop_gain)),
+        control_to_output_db: bode.iter().map(|p| db(p.control_to_output)).collect(),
+        control_to_output_deg: unwrap_deg(bode.iter().map(|p| p.control_to_output)),
+        margins: m.into(),
+    }
+}
+
+fn range(args: &LoopArgs, fs: f64) -> Result<(f64, f64)> {
+    let parse = |t: &Option<String>, default: f64| match t {
+        Some(t) => units::parse(t.trim(), Unit::Hertz),
+        None => Ok(default),
+    };
+    let (lo, hi) = (parse(&args.from, fs / 1000.0)?, parse(&args.to, fs / 2.0)?);
+    if !(lo > 0.0 && hi > lo && hi <= fs / 2.0 * (1.0 + 1e-9)) {
+        bail!(
+            "--from {} --to {}: expected 0 < from < to ≤ fs/2 = {}",
+            eng(lo, "Hz"),
+            eng(hi, "Hz"),
+            eng(fs / 2.0, "Hz")
+        );
+    }
+    if args.points < 2 {
+        bail!("--points {}: at least 2", args.points);
+    }
+    Ok((lo, hi))
+}
+
+fn sampled(job: &Job, grid: &[f64], lo: f64, hi: f64) -> Result<(SampledModel, Curves)> {
+    let Drive::Controller(spec) = &job.drive else {
+        bail!("the loop gain needs a controller; this scenario runs open loop");
+    };
+    let (_, m) = sampled_model(&job.design, spec, &LinearOptions::default())
+        .map_err(|e| anyhow!(e))
+        .context("linearising the period map at the steady state")?;
+    let bode = m.bode(grid)?;
+    let mg = margins(lo, hi, |f| Ok(m.at(f)?.loop_gain))?;
+    Ok((m, curves(&bode, mg)))
+}
+
+fn averaged(job: &Job, grid: &[f64], lo: f64, hi: f64) -> Result<Curves> {
+    let Drive::Controller(spec) = &job.drive else {
+        bail!("no controller");
+    };
+    let avg = AveragedModel::new(&job.design, spec)?;
+    let bode = avg.bode(grid)?;
+    let mg = margins(lo, hi, |f| avg.loop_gain(f))?;
+    Ok(curves(&bode, mg))
+}
+
+/// Both models on the grid of `args`.
+pub fn analyse(job: &Job, args: &LoopArgs) -> Result<LoopReport, Failure> {
+    let Drive::Controller(spec) = &job.drive else {
+        return Err(anyhow!(
+            "the loop gain needs a controller; scenario '{}' runs open loop",
+            job.name
+        ))
+        .exit_with(Exit::BadInput);
+    };
+    let fs = spec.oscillator.frequency;
+    let (lo, hi) = range(args, fs).exit_with(Exit::BadInput)?;
+    let grid = log_grid(lo, hi, args.points);
+    let (m, s) = sampled(job, &grid, lo, hi).exit_with(Exit::SimulationFailed)?;
+    let (averaged, averaged_error) = match averaged(job, &grid, lo, hi) {
+        Ok(c) => (Some(c), None),
+        Err(e) => (None, Some(format!("{e:#}"))),
+    };
+    Ok(LoopReport {
+        scenario: job.name.clone(),
+        switching_frequency_hz: fs,
+        duty: m.duty,
+        break_point: BREAK_POINT,
+        frequency_hz: grid,
+        sampled: s,
+        averaged,
+        averaged_error,
+    })
+}
+
+/// The command.
+pub fn run(args: &LoopArgs) -> Result<(), Failure> {
+    let loaded = scenario::load(&args.scenario)
+        .context("scenario is not valid")
+        .exit_with(Exit::BadInput)?;
+    let report = analyse(&loaded.job, args)?;
+    let dir = args.out.join(format!("{}-loop", report.scenario));
+    write(&dir, &report).exit_with(Exit::SimulationFailed)?;
+    if args.json {
+        let text = serde_json::to_string_pretty(&report)
+            .context("formatting the report")
+            .exit_with(Exit::SimulationFailed)?;
+        println!("{text}");
+    } else {
+        print!("{}", report_text(&report));
+        println!("  table: {}", dir.join("loop.csv").display());
+        println!("  plot:  {}", dir.join("loop.svg").display());
+    }
+    Ok(())
+}
+
+fn write(dir: &Path, r: &LoopReport) -> Result<()> {
+    std::fs::create_dir_all(dir).with_context(|| format!("creating {}", dir.display()))?;
+    std::fs::write(dir.join("loop.csv"), csv(r))?;
+    std::fs::write(dir.join("loop.json"), serde_json::to_string_pretty(r)?)?;
+    bode_plot::plot(r, &dir.join("loop.svg"))
+}
+
+/// One row per frequency, SI units; empty averaged cells when there is no averaged
+/// model.
+pub fn csv(r: &LoopReport) -> String {
+    let mut out = String::from(
+        "frequency_hz,sampled_loop_gain_db,sampled_loop_gain_deg,\
+         sampled_control_to_output_db,sampled_control_to_output_deg,\
+         averaged_loop_gain_db,averaged_loop_gain_deg,\
+         averaged_control_to_output_db,averaged_control_to_output_deg\n",
+    );
+    let cells = |c: Option<&Curves>, k: usize| match c {
+        Some(c) => [
+            c.loop_gain_db[k],
+            c.loop_gain_deg[k],
+            c.control_to_output_db[k],
+            c.control_to_output_deg[k],
+        ]
+        .map(|v| format!("{v:e}"))
+        .join(","),
+        None => ",,,".into(),
+    };
+    for (k, f) in r.frequency_hz.iter().enumerate() {
+        out += &format!(
+            "{f:e},{},{}\n",
+            cells(Some(&r.sampled), k),
+            cells(r.averaged.as_ref(), k)
+        );
+    }
+    out
+}
+
+fn margin_line(label: &str, m: &MarginReport) -> String {
+    let opt = |v: Option<f64>, f: &dyn Fn(f64) -> String| v.map_or("-".to_string(), f);
+    format!(
+        "  {label:<10} crossover {:>10}  phase margin {:>7}  gain margin {:>8} (at {})\n",
+        opt(m.crossover_hz, &|v| eng(v, "Hz")),
+        opt(m.phase_margin_deg, &|v| format!("{v:.1}°")),
+        opt(m.gain_margin_db, &|v| format!("{v:.1} dB")),
+        opt(m.phase_crossover_hz, &|v| eng(v, "Hz")),
+    )
+}
+
+/// Crossover and margins of both models for people.
+pub fn report_text(r: &LoopReport) -> String {
+    let mut out = format!(
+        "{}: loop gain at the steady state (duty {:.4}), {} switching, broken {}\n",
+        r.scenario,
+        r.duty,
+        eng(r.switching_frequency_hz, "Hz"),
+        "at the modulator's control input"
+    );
+    out += &margin_line("sampled", &r.sampled.margins);
+    match (&r.averaged, &r.averaged_error) {
+        (Some(a), _) => out += &margin_line("averaged", &a.margins),
+        (None, Some(e)) => out += &format!("  averaged   not available: {e}\n"),
+        (None, None) => {}
+    }
+    out
+}

@@ -1,0 +1,179 @@
+//! The Bode plot of `stepflux loop`: loop-gain magnitude (dB) above phase (degrees)
+//! against log frequency; the switching model's sampled-data curve solid, the averaged
+//! model's dashed in a second colour; crossover and the phase crossover as thin
+//! vertical lines with the margins written beside them.
+
+use std::path::Path;
+
+use anyhow::Result;
+use plotters::coord::Shift;
+use plotters::prelude::*;
+
+use crate::check::eng;
+use crate::loop_cmd::{Curves, LoopReport, MarginReport};
+
+const SAMPLED: RGBColor = RGBColor(0, 110, 120);
+const AVERAGED: RGBColor = RGBColor(190, 80, 20);
+const MARK: RGBColor = RGBColor(120, 120, 120);
+
+type Panel<'a> = DrawingArea<SVGBackend<'a>, Shift>;
+
+/// Writes the SVG.
+pub fn plot(r: &LoopReport, out: &Path) -> Result<()> {
+    let root = SVGBackend::new(out, (900, 700)).into_drawing_area();
+    let draw = || -> std::result::Result<(), Box<dyn std::error::Error>> {
+        root.fill(&WHITE)?;
+        let root = root.titled(
+            &format!(
+                "{}: loop gain, broken at the modulator's control input",
+                r.scenario
+            ),
+            ("sans-serif", 18),
+        )?;
+        let (top, bottom) = root.split_vertically(340);
+        panel(&top, r, Which::Magnitude)?;
+        panel(&bottom, r, Which::Phase)?;
+        root.present()?;
+        Ok(())
+    };
+    draw().map_err(|e| anyhow::anyhow!("drawing {}: {e}", out.display()))
+}
+
+#[derive(Clone, Copy, PartialEq)]
+enum Which {
+    Magnitude,
+    Phase,
+}
+
+fn values(c: &Curves, w: Which) -> &[f64] {
+    match w {
+        Which::Magnitude => &c.loop_gain_db,
+        Which::Phase => &c.loop_gain_deg,
+    }
+}
+
+fn panel(
+    area: &Panel,
+    r: &LoopReport,
+    w: Which,
+) -> std::result::Result<(), Box<dyn std::error::Error>> {
+    let f = &r.frequency_hz;
+    let (f0, f1) = (f[0], f[f.len() - 1]);
+    let all: Vec<f64> = std::iter::once(&r.sampled)
+        .chain(r.averaged.as_ref())
+        .flat_map(|c| values(c, w).iter().copied())
+        .filter(|v| v.is_finite())
+        .collect();
+    let lo = all.iter().copied().fold(f64::INFINITY, f64::min);
+    let hi = all.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let (lo, hi) = match w {
+        Which::Magnitude => (lo.min(-10.0) - 5.0, hi.max(10.0) + 5.0),
+        Which::Phase => (lo.min(-180.0) - 15.0, hi + 15.0),
+    };
+    let mut chart = ChartBuilder::on(area)
+        .margin(12)
+        .x_label_area_size(40)
+        .y_label_area_size(60)
+        .build_cartesian_2d((f0..f1).log_scale(), lo..hi)?;
+    chart
+        .configure_mesh()
+        .x_desc("frequency (Hz)")
+        .y_desc(match w {
+            Which::Magnitude => "|T| (dB)",
+            Which::Phase => "phase of T (°)",
+        })
+        .x_label_formatter(&|v| eng(*v, "Hz"))
+        .draw()?;
+    let reference = match w {
+        Which::Magnitude => 0.0,
+        Which::Phase => -180.0,
+    };
+    chart.draw_series(LineSeries::new(
+        [(f0, reference), (f1, reference)],
+        MARK.stroke_width(1),
+    ))?;
+    let pts = |c: &Curves| -> Vec<(f64, f64)> {
+        f.iter()
+            .copied()
+            .zip(values(c, w).iter().copied())
+            .collect()
+    };
+    chart
+        .draw_series(LineSeries::new(pts(&r.sampled), SAMPLED.stroke_width(2)))?
+        .label("switching model (sampled-data)")
+        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], SAMPLED.stroke_width(2)));
+    if let Some(a) = &r.averaged {
+        chart
+            .draw_series(DashedLineSeries::new(
+                pts(a),
+                8,
+                5,
+                AVERAGED.stroke_width(2),
+            ))?
+            .label("averaged")
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 8, y)], AVERAGED.stroke_width(2)));
+    }
+    marks(&mut chart, &r.sampled.margins, SAMPLED, (lo, hi), w)?;
+    if let Some(a) = &r.averaged {
+        marks(&mut chart, &a.margins, AVERAGED, (lo, hi), w)?;
+    }
+    if w == Which::Magnitude {
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::UpperRight)
+            .background_style(WHITE.mix(0.85))
+            .border_style(BLACK)
+            .draw()?;
+    }
+    Ok(())
+}
+
+type Chart<'a, 'b> = ChartContext<
+    'a,
+    SVGBackend<'b>,
+    Cartesian2d<
+        plotters::coord::combinators::LogCoord<f64>,
+        plotters::coord::types::RangedCoordf64,
+    >,
+>;
+
+/// Thin vertical lines at crossover (with the phase margin written on the phase panel)
+/// and at the phase crossover (with the gain margin on the magnitude panel).
+fn marks(
+    chart: &mut Chart,
+    m: &MarginReport,
+    colour: RGBColor,
+    (lo, hi): (f64, f64),
+    w: Which,
+) -> std::result::Result<(), Box<dyn std::error::Error>> {
+    let style = colour.mix(0.6).stroke_width(1);
+    let text = ("sans-serif", 13).into_font().color(&colour);
+    let y_text = lo
+        + 0.08 * (hi - lo)
+        + if colour == SAMPLED {
+            0.0
+        } else {
+            0.07 * (hi - lo)
+        };
+    if let Some(fc) = m.crossover_hz {
+        chart.draw_series(LineSeries::new([(fc, lo), (fc, hi)], style))?;
+        if let (Which::Phase, Some(pm)) = (w, m.phase_margin_deg) {
+            chart.draw_series(std::iter::once(Text::new(
+                format!("{}  PM {pm:.1}°", eng(fc, "Hz")),
+                (fc * 1.05, y_text),
+                text.clone(),
+            )))?;
+        }
+    }
+    if let Some(fp) = m.phase_crossover_hz {
+        chart.draw_series(LineSeries::new([(fp, lo), (fp, hi)], style))?;
+        if let (Which::Magnitude, Some(gm)) = (w, m.gain_margin_db) {
+            chart.draw_series(std::iter::once(Text::new(
+                format!("GM {gm:.1} dB"),
+                (fp / 1.6, y_text),
+                text,
+            )))?;
+        }
+    }
+    Ok(())
+}
