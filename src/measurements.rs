@@ -22,6 +22,8 @@ use stepflux_models::ModelError;
 
 use crate::job::{Drive, Job};
 
+/// Probes whose ripple is measured over the steady window.
+const RIPPLE_PROBES: [&str; 2] = ["out.v", "lout.i"];
 /// Length of the steady window, switching periods.
 const STEADY_PERIODS: f64 = 20.0;
 /// Dips allowed below the running maximum before 90 % in a monotonic start-up, as a
@@ -152,7 +154,7 @@ impl Plan {
             true => window.1 - 1e-6 * period(job),
             false => window.1,
         };
-        let ripple = ["out.v", "lout.i"]
+        let ripple = RIPPLE_PROBES
             .iter()
             .map(|p| Ripple::new(probes, p, window.0, sample_end))
             .collect::<Result<_, _>>()?;
@@ -220,7 +222,7 @@ impl Plan {
             .map(|k| (k, Turning::Both))
             .collect();
         out.extend(
-            ["out.v", "lout.i"]
+            RIPPLE_PROBES
                 .iter()
                 .filter_map(|n| probes.iter().position(|p| p.name == *n))
                 .map(|k| (k, Turning::Both)),

@@ -60,7 +60,14 @@ impl TopologyData {
     /// Value of row `r` (see [`TopologyData::rows_t`]) at state `z`.
     #[inline]
     pub fn value(&self, r: usize, z: &nalgebra::DVector<f64>) -> f64 {
-        column_dot(&self.rows_t, r, z)
+        self.value_at(r, z.as_slice())
+    }
+
+    /// Value of row `r` at a state given as a slice (a state read inside a step).
+    #[inline]
+    pub fn value_at(&self, r: usize, z: &[f64]) -> f64 {
+        let n = self.rows_t.nrows();
+        kernel::dot(&self.rows_t.as_slice()[r * n..(r + 1) * n], z)
     }
 
     /// Time derivative of row `r` at state `z`, per second.
@@ -79,13 +86,6 @@ impl TopologyData {
     pub fn row_count(&self) -> usize {
         self.rows_t.ncols()
     }
-}
-
-/// Column `c` of `m` (stored column-major, so contiguous) dotted with `z`.
-#[inline]
-fn column_dot(m: &DMatrix<f64>, c: usize, z: &nalgebra::DVector<f64>) -> f64 {
-    let n = m.nrows();
-    kernel::dot(&m.as_slice()[c * n..(c + 1) * n], z.as_slice())
 }
 
 /// Bits per digit of the step table when the run has no meters: radix 16 halves the

@@ -17,7 +17,6 @@
 
 use crate::error::EngineError;
 use crate::event::{Sink, TraceKind, TracePoint, Turning};
-use crate::kernel;
 use crate::ladder::{Ladder, Tick};
 use crate::system::TopologyData;
 use crate::topology::Topology;
@@ -146,7 +145,7 @@ impl Simulation {
             self.peek_from.copy_from_slice(&self.peek_z);
             at = s;
             for k in 0..n {
-                self.values[k] = row_value(topo, first + k, &self.peek_z);
+                self.values[k] = topo.value_at(first + k, &self.peek_z);
             }
             let time = self.system.grid.time(s);
             sink.sample(time, &self.values[..n], false)
@@ -346,16 +345,9 @@ impl Simulation {
 /// Every probe's value and each traced probe's slope at state `z` in `topo`.
 fn fill_point(topo: &TopologyData, first: usize, z: &[f64], t: &mut TraceState) {
     for &k in &t.list {
-        t.values[k] = row_value(topo, first + k, z);
+        t.values[k] = topo.value_at(first + k, z);
         t.slopes[k] = topo.slope(first + k, z);
     }
-}
-
-/// Row `r` of `topo` at state `z`.
-#[inline]
-fn row_value(topo: &TopologyData, r: usize, z: &[f64]) -> f64 {
-    let n = topo.rows_t.nrows();
-    kernel::dot(&topo.rows_t.as_slice()[r * n..(r + 1) * n], z)
 }
 
 /// z after `n` more ticks from `from` on `ladder`'s table, into `out` (one product per

@@ -94,6 +94,14 @@ pub(crate) fn probe_index(probes: &[Probe], name: &str) -> Result<usize, ModelEr
         .ok_or_else(|| ModelError::Infeasible(format!("measurement needs probe '{name}'")))
 }
 
+/// Time, value and slope (NaN when not traced) of probe `column` at a trace point,
+/// or `None` when the point does not carry it.
+pub(crate) fn at_point(point: &TracePoint<'_>, column: usize) -> Option<(f64, f64, f64)> {
+    let v = *point.values.get(column)?;
+    let slope = point.slopes.get(column).copied().unwrap_or(f64::NAN);
+    Some((point.time, v, slope))
+}
+
 /// Value as a percentage of `of`.
 pub(crate) fn percent(value: f64, of: f64) -> f64 {
     100.0 * value / of

@@ -4,7 +4,7 @@
 use stepflux_engine::TracePoint;
 
 use super::window::{WindowExtremes, WindowMean};
-use super::{probe_index, Figure, Measurement};
+use super::{at_point, probe_index, Figure, Measurement};
 use crate::error::ModelError;
 use crate::template::{Probe, Unit};
 
@@ -71,10 +71,9 @@ impl Measurement for Ripple {
     }
 
     fn trace(&mut self, point: &TracePoint<'_>) {
-        if let Some(&v) = point.values.get(self.column) {
-            let slope = point.slopes.get(self.column).copied().unwrap_or(f64::NAN);
-            self.mean.add_with_slope(point.time, v, slope);
-            self.extremes.add(point.time, v);
+        if let Some((time, v, slope)) = at_point(point, self.column) {
+            self.mean.add_with_slope(time, v, slope);
+            self.extremes.add(time, v);
         }
     }
 

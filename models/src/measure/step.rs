@@ -4,7 +4,7 @@
 use stepflux_engine::TracePoint;
 
 use super::window::{crossing, CycleRange, WindowExtremes, WindowMean};
-use super::{percent, probe_index, Figure, Measurement};
+use super::{at_point, percent, probe_index, Figure, Measurement};
 use crate::cycles::CycleRecord;
 use crate::error::ModelError;
 use crate::template::Probe;
@@ -228,9 +228,8 @@ impl Measurement for StepResponse {
     }
 
     fn trace(&mut self, point: &TracePoint<'_>) {
-        if let Some(&v) = point.values.get(self.column) {
-            let slope = point.slopes.get(self.column).copied().unwrap_or(f64::NAN);
-            self.observe(point.time, v, slope);
+        if let Some((time, v, slope)) = at_point(point, self.column) {
+            self.observe(time, v, slope);
         }
     }
 
