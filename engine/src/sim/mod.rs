@@ -159,7 +159,7 @@ impl Simulation {
         let nz = run.z.len();
         let n_rows = topo.row_count();
         let n_events = system.diode_count() + MAX_ARMED;
-        let (ext_rows, topo_events) = (topo.ladder.rows, topo.ladder.n_events);
+        let (ext_rows, topo_events) = (topo.ladder_rows(), topo.event_rows());
         let n_meters = system.observation.meters.len();
         let n_probes = system.observation.probes.len();
         let storm_ticks = grid.tick(options.storm.window).max(1);

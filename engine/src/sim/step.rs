@@ -53,7 +53,13 @@ impl Simulation {
         self.start_tick = self.tick;
         self.start_z.copy_from(&self.run.z);
         let topo = Arc::clone(&self.run.topo);
-        let (topology, ladder) = (topo.topology, &topo.ladder);
+        let (topology, ladder) = (topo.topology, topo.ladder());
+        if !ladder.finite {
+            return Err(EngineError::NonFinite {
+                time: self.time(),
+                topology: self.run.describe_topology(),
+            });
+        }
         let n = nd + self.armed_len;
         let ev = ladder.nx..ladder.u_row();
         let span = target - self.tick;
@@ -127,7 +133,7 @@ impl Simulation {
     /// Moves the run by table entry (j, d) of the present topology `topo`: meters,
     /// state, sources' part and tick; the step's output stays in `ext`.
     fn advance_by(&mut self, topo: &Arc<TopologyData>, j: u32, d: u64) {
-        let ladder = &topo.ladder;
+        let ladder = topo.ladder();
         let entry = ladder.index(j, d);
         self.meters.add(topo, entry, self.run.z.as_slice());
         table_step(
@@ -148,7 +154,7 @@ impl Simulation {
     /// a shorter step to try instead. Fills `d_hi` with every function's slope at the
     /// step's end. See [`hidden_crossing`] for the test and why it suffices.
     fn hidden(&mut self, topo: &TopologyData, len: Tick, n: usize) -> Option<Tick> {
-        let ladder = &topo.ladder;
+        let ladder = topo.ladder();
         ladder.state_from(&self.ext, &mut self.peek_z);
         let nd = self.run.system.diode_count();
         let armed = &self.armed[..self.armed_len];
@@ -191,7 +197,7 @@ impl Simulation {
         // Only the functions that crossed over the whole step can cross first, so only
         // they are evaluated on the way down; each is ≤ 0 at the bracket's left end.
         let nd = self.run.system.diode_count();
-        let ladder = &topo.ladder;
+        let ladder = topo.ladder();
         for j in (0..=j0).rev() {
             let (mut lo, mut hi) = (0, if j == j0 { d0 } else { 1 << ladder.bits });
             let armed = &self.armed[..self.armed_len];

@@ -135,7 +135,7 @@ impl Simulation {
         while self.next_sample < self.tick {
             let s = self.next_sample;
             peek(
-                &topo.ladder,
+                topo.ladder(),
                 &self.peek_from,
                 s - at,
                 &mut self.peek_z,
@@ -249,7 +249,7 @@ impl Simulation {
     /// Locates where probe `k`'s slope, `s0` at the step's start and `s1` at its end,
     /// changes sign; records the tick and the state there in `trace.found`.
     fn find_extremum(&mut self, topo: &TopologyData, k: usize, s0: f64, s1: f64) {
-        let ladder = &topo.ladder;
+        let ladder = topo.ladder();
         let row = self.first_probe_row() + k;
         let n = self.tick - self.start_tick;
         let width = (n >> EXTREMUM_BRACKET_SHIFT).max(1);
@@ -292,7 +292,7 @@ impl Simulation {
             let m = ((hi - lo) as f64 * frac)
                 .round()
                 .clamp(1.0, (hi - lo - 1) as f64) as Tick;
-            let ladder = &topo.ladder;
+            let ladder = topo.ladder();
             peek(
                 ladder,
                 &self.peek_from,
@@ -324,7 +324,7 @@ impl Simulation {
             self.peek_z.copy_from_slice(&self.peek_from);
         } else {
             peek(
-                &topo.ladder,
+                topo.ladder(),
                 &self.peek_from,
                 at - lo,
                 &mut self.peek_z,
