@@ -340,6 +340,7 @@ pub fn run_job_with(
     };
     let mut plan =
         Plan::new(job, driver.run_ref().probes(), Some(losses)).map_err(|e| anyhow::anyhow!(e))?;
+    plan.watch_main_switch(driver.run_ref());
     let traced = plan.traced_probes(driver.run_ref().probes());
     driver
         .run_mut()

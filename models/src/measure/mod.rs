@@ -20,6 +20,7 @@
 mod coss;
 mod efficiency;
 mod losses;
+mod part_losses;
 mod reset_check;
 mod ripple;
 mod startup;
@@ -30,6 +31,7 @@ mod window;
 pub use coss::CossTurnOn;
 pub use efficiency::LossReport;
 pub use losses::{EnergySnapshot, LossClass, LossMeters};
+pub use part_losses::{PartEnergies, PartLosses};
 pub use reset_check::{Criterion, CycleCheck, ResetCheck, ResetLimits, ResetVerdict};
 pub use ripple::{Ripple, RippleResult};
 pub use startup::{StartUp, StartUpResult};
