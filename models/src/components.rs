@@ -336,7 +336,10 @@ impl Switch {
         }
         if let Some(g) = &self.gate_drive {
             positive(&format!("{field}.gate_drive.charge"), g.charge)?;
-            positive(&format!("{field}.gate_drive.drive_voltage"), g.drive_voltage)?;
+            positive(
+                &format!("{field}.gate_drive.drive_voltage"),
+                g.drive_voltage,
+            )?;
         }
         Ok(())
     }

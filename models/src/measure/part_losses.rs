@@ -227,7 +227,7 @@ mod tests {
 
     use super::*;
     use crate::demo_design::demo_design;
-    use stepflux_engine::{TraceKind, Topology};
+    use stepflux_engine::{Topology, TraceKind};
 
     const BIT: usize = 3;
     const T: f64 = 1.0 / 150e3;
@@ -238,7 +238,7 @@ mod tests {
     /// from `-b` to `+b` while on. Then the cycle record and the next turn-on.
     fn one_cycle(m: &mut PartLosses, v_on: f64, i_on: f64, i_off: f64, v_off: f64, b: f64) {
         let [d, c, f] = m.probes();
-        let mut point = |m: &mut PartLosses, t: f64, on: bool, drain: f64, i: f64, flux: f64| {
+        let point = |m: &mut PartLosses, t: f64, on: bool, drain: f64, i: f64, flux: f64| {
             let mut values = vec![f64::NAN; 20];
             values[d] = drain;
             values[c] = i;
