@@ -173,8 +173,7 @@ pub fn margins(
             && next_phase <= -std::f64::consts::PI + PHASE_ROUNDING
         {
             let f = bisect(k, &freq, |f| {
-                Ok(phase + wrap(t(f)?.arg() - prev.arg())
-                    > -std::f64::consts::PI + PHASE_ROUNDING)
+                Ok(phase + wrap(t(f)?.arg() - prev.arg()) > -std::f64::consts::PI + PHASE_ROUNDING)
             })?;
             out.phase_crossover = Some(f);
             out.gain_margin = Some(-20.0 * t(f)?.norm().log10());
