@@ -18,6 +18,7 @@
 //! failed a limit, else 0.
 
 mod cases;
+mod histogram;
 mod path;
 mod record;
 mod runner;

@@ -8,9 +8,10 @@ use std::path::Path;
 
 use anyhow::Result;
 
+use super::histogram;
 use super::record::{write_atomic, CaseRecord, Status};
 use super::table::{worst_case, worst_of, StudyMeta};
-use crate::eng::{count, eng, pass_fail, prefixed};
+use crate::eng::{count, eng, pass_fail, percent, prefixed};
 use crate::writers::html::{caution, escape, page};
 
 /// Figures shown per case and in the worst-case table, with a label.
@@ -89,8 +90,67 @@ fn html(dir: &Path, meta: &StudyMeta, records: &[CaseRecord]) -> String {
     );
     b.push_str(&caution());
     worst_table(&mut b, dir, records);
+    pass_rate(&mut b, records);
     cases_table(&mut b, dir, meta, records);
     page(&format!("{} — stepflux study", meta.study), &b, SORT)
+}
+
+/// The estimated pass rate with its 95 % Wilson interval (errored cases count as not
+/// passing), then a histogram per limit across the cases that measured it.
+fn pass_rate(b: &mut String, records: &[CaseRecord]) {
+    let passed = records
+        .iter()
+        .filter(|r| r.status == Status::Passed)
+        .count();
+    let Some((lo, hi)) = histogram::wilson(passed, records.len(), histogram::Z95) else {
+        return;
+    };
+    let _ = write!(
+        b,
+        "<h2>Pass rate</h2><p>{passed} of {} cases passed: estimated pass rate {}, 95 % \
+         confidence interval {} to {} (Wilson score interval, Wilson 1927).</p>",
+        records.len(),
+        percent(passed as f64 / records.len() as f64),
+        percent(lo),
+        percent(hi)
+    );
+    let mut limits: Vec<(&str, f64)> = Vec::new();
+    for v in records.iter().flat_map(|r| &r.verdicts) {
+        if !limits.iter().any(|(l, _)| *l == v.limit) {
+            limits.push((v.limit.as_str(), v.bound));
+        }
+    }
+    for (limit, bound) in limits {
+        let mut unit = if limit.ends_with("percent") { "%" } else { "1" };
+        let values: Vec<f64> = records
+            .iter()
+            .flat_map(|r| {
+                r.verdicts
+                    .iter()
+                    .filter(|v| v.limit == limit)
+                    .map(move |v| (r, v))
+            })
+            .filter_map(|(r, v)| {
+                let value = v.value?;
+                if let Some(m) = r.measurements.iter().find(|m| m.value == value) {
+                    if unit == "1" {
+                        unit = if m.unit == "1" { unit } else { m.unit.as_str() };
+                    }
+                }
+                Some(value)
+            })
+            .collect();
+        if values.len() < 2 {
+            continue;
+        }
+        let title = format!("{limit} across {} cases", values.len());
+        let _ = write!(
+            b,
+            "<figure>{}<figcaption>{}</figcaption></figure>",
+            histogram::svg(&title, &values, unit, bound),
+            escape(&title)
+        );
+    }
 }
 
 fn worst_table(b: &mut String, dir: &Path, records: &[CaseRecord]) {
