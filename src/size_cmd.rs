@@ -78,6 +78,18 @@ fn spec(a: &SizeArgs<'_>) -> anyhow::Result<SizingSpec> {
     })
 }
 
+/// A round sample interval (1, 2 or 5 × a power of ten) of at least 40 samples a
+/// period, so the waveforms show each pulse; no figure depends on it.
+fn sample_interval(frequency: f64) -> f64 {
+    let most = 1.0 / (40.0 * frequency);
+    let decade = 10f64.powf(most.log10().floor());
+    [5.0, 2.0, 1.0]
+        .iter()
+        .map(|m| m * decade)
+        .find(|dt| *dt <= most)
+        .unwrap_or(decade)
+}
+
 /// A JSON string literal.
 fn q(text: &str) -> String {
     serde_json::Value::String(text.to_string()).to_string()
@@ -231,8 +243,7 @@ pub fn scenario_text(name: &str, spec: &SizingSpec, s: &Sized) -> String {
         p0 = v(s.poles[0], "Hz"),
         p1 = v(s.poles[1], "Hz"),
         threshold = v(0.1 * s.current_limit, "V"),
-        // About 150 samples a period: waveforms show each pulse; figures do not depend on it.
-        dt = v(1.0 / (fs * 150.0), "s"),
+        dt = v(sample_interval(fs), "s"),
         ripple = v(spec.ripple, "V"),
     )
 }
