@@ -66,12 +66,14 @@ pub fn svg(title: &str, values: &[f64], unit: &str, limit: f64) -> String {
         );
     }
     let lx = x(limit);
+    // The label reads away from the nearer edge so it is never cut off.
+    let anchor = if lx > w / 2.0 { "end" } else { "start" };
     let _ = write!(
         s,
         "<line x1=\"{left}\" y1=\"{bottom}\" x2=\"{}\" y2=\"{bottom}\" stroke=\"#555\"/>\
          <line x1=\"{lx:.1}\" y1=\"15\" x2=\"{lx:.1}\" y2=\"{bottom}\" stroke=\"#b0402a\" \
          stroke-dasharray=\"5,3\"/><text x=\"{lx:.1}\" y=\"12\" font-size=\"11\" \
-         text-anchor=\"middle\" fill=\"#b0402a\">limit {}</text>\
+         text-anchor=\"{anchor}\" fill=\"#b0402a\">limit {}</text>\
          <text x=\"{left}\" y=\"188\" font-size=\"11\">{}</text>\
          <text x=\"{}\" y=\"188\" font-size=\"11\" text-anchor=\"end\">{}</text>\
          <text x=\"4\" y=\"30\" font-size=\"11\">{}</text></svg>",
