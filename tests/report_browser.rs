@@ -170,7 +170,10 @@ fn demo_report_renders_in_a_browser_without_script_errors() {
     let png = dir.join("study.png");
     let log = screenshot(&study, &png, &dir.join("profile-study"));
     let errors = console_errors(&log);
-    assert!(errors.is_empty(), "script errors in the study report: {errors:#?}");
+    assert!(
+        errors.is_empty(),
+        "script errors in the study report: {errors:#?}"
+    );
     let shot = std::fs::read(&png).expect("study screenshot written");
     assert!(
         shot.len() > 10 * blank.len(),
