@@ -32,6 +32,12 @@ pub struct Scenario {
     /// Free text for reports.
     #[serde(default)]
     pub description: String,
+    /// Why each value was chosen: field path → reason (free text for reports; written
+    /// by `stepflux size`).
+    #[serde(default)]
+    #[allow(dead_code)]
+    // Read by people, not by stepflux.
+    pub design_notes: BTreeMap<String, String>,
     /// The power stage.
     pub converter: Converter,
     /// How the switches are driven.
