@@ -43,13 +43,10 @@ pub struct Built {
     pub states: Vec<StateName>,
 }
 
-/// Builds the power stage, the controller's parts and the disturbance branches.
-pub fn build(
-    job_design: &ForwardDesign,
-    drive: &Drive,
-    events: &[Disturbance],
-) -> Result<Built, ModelError> {
-    let converter = stepflux_models::job::build::Built::new(job_design, drive, events)?;
+/// Builds the power stage, the controller's parts and the disturbance branches, as
+/// the run will.
+pub fn build(job: &Job) -> Result<Built, ModelError> {
+    let converter = stepflux_models::job::build::Built::for_job(job)?;
     Ok(Built {
         probes: converter.probe_names(),
         states: converter.states()?,

@@ -87,7 +87,7 @@ fn validated(text: &str, file: &str) -> Result<Loaded, ScenarioError> {
         source_text: text.to_string(),
     };
     practice::check(&ctx, &job)?;
-    let built = feasibility::build(&job.design, &job.drive, &job.disturbances)
+    let built = feasibility::build(&job)
         .map_err(|e| ctx.model("converter", e, &|f| format!("converter.{f}")))?;
     feasibility::check_build(&ctx, &job, &built)?;
     let figures = DesignFigures::compute(&job.design, &design_point(&job));

@@ -2,7 +2,7 @@
 //! analogue parts, the disturbance branches — built once: `check` reads its probes and
 //! states from it, and the run goes on from the same build.
 
-use super::Drive;
+use super::{Drive, Job};
 use crate::controller::ControllerParts;
 use crate::disturbance::{prepare, Disturbance};
 use crate::run::Action;
@@ -22,6 +22,12 @@ pub struct Built {
 }
 
 impl Built {
+    /// Builds `job`'s power stage, its controller's parts as simulated
+    /// ([`Job::simulated_drive`]) and the disturbance branches.
+    pub fn for_job(job: &Job) -> Result<Self, ModelError> {
+        Self::new(&job.design, &job.simulated_drive(), &job.disturbances)
+    }
+
     /// Builds the power stage, the controller's parts under `drive` and the
     /// disturbance branches.
     pub fn new(

@@ -110,3 +110,16 @@ pub struct Job {
     /// The scenario as given, echoed into outputs.
     pub source_text: String,
 }
+
+impl Job {
+    /// The drive as the run simulates it: started in steady state, the controller has
+    /// been running for ever, so its soft starts are over (their parts are left out).
+    pub fn simulated_drive(&self) -> Drive {
+        match (&self.drive, &self.analysis.start) {
+            (Drive::Controller(spec), Start::Steady) => {
+                Drive::Controller(crate::steady::map::settled_spec(spec))
+            }
+            (drive, _) => drive.clone(),
+        }
+    }
+}

@@ -20,7 +20,6 @@ use crate::gate::OpenLoopGate;
 use crate::measure::{Figure, LossMeters};
 use crate::run::ConverterRun;
 use crate::runaway::{Runaway, RunawayGuard};
-use crate::steady::map::settled_spec;
 use crate::steady::names::{place, state_names};
 use crate::steady::SteadyState;
 use crate::template::{Converter, Probe};
@@ -85,7 +84,7 @@ impl JobRun {
     /// sets its initial state (`steady`: the periodic steady state the caller found for
     /// `analysis.start: "steady"`).
     pub fn new(job: &Job, steady: Option<&SteadyState>) -> Result<Self, ModelError> {
-        let built = Built::new(&job.design, &job.drive, &job.disturbances)?;
+        let built = Built::for_job(job)?;
         Self::from_built(job, built, steady)
     }
 
@@ -230,15 +229,9 @@ impl Driver {
             actions,
             parts,
         } = built;
-        let driver = match (&job.drive, parts) {
+        let driver = match (&job.simulated_drive(), parts) {
             (Drive::Controller(spec), Some(parts)) => {
                 let options = options(spec.clock_period());
-                // Started in steady state, the controller has been running for ever:
-                // its soft starts are over.
-                let spec = &match job.analysis.start {
-                    Start::Steady => settled_spec(spec),
-                    _ => spec.clone(),
-                };
                 let meters = |conv: &Converter| {
                     let l = LossMeters::new(conv)?;
                     let m = l.meters();
