@@ -20,6 +20,9 @@ pub fn band(unit: Unit) -> (f64, f64, &'static str) {
         Unit::Tesla => (1e-6, 100.0, "1 µT to 100 T"),
         Unit::SquareMetre => (1e-12, 1.0, "1 µm² to 1 m²"),
         Unit::Watt => (1e-9, 1e9, "1 nW to 1 GW"),
+        Unit::Joule => (1e-15, 1e6, "1 fJ to 1 MJ"),
+        Unit::Coulomb => (1e-15, 1.0, "1 fC to 1 C"),
+        Unit::CubicMetre => (1e-15, 1.0, "1e-6 mm³ to 1 m³"),
         Unit::AmperePerSecond => (1e-3, 1e15, "1 mA/s to 1e15 A/s"),
         Unit::VoltPerSecond => (1e-3, 1e15, "1 mV/s to 1e15 V/s"),
         // Gains, turns, duties and percentages share this type; each has its own rule.

@@ -165,10 +165,10 @@ impl Cost {
     /// The estimate as `check` prints it.
     pub fn text(&self) -> String {
         format!(
-            "run cost estimate: {:.3e} switching periods, {:.3e} samples per signal × {} \
+            "run cost estimate: {} switching periods, {} samples per signal × {} \
              signals, about {} of waveforms, run time {} on the reference machine",
-            self.periods,
-            self.samples_per_signal,
+            crate::eng::prefixed(self.periods),
+            crate::eng::prefixed(self.samples_per_signal),
             self.signals,
             bytes(self.output_bytes),
             duration(self.seconds)

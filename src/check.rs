@@ -8,6 +8,7 @@ use serde_json::json;
 use stepflux_models::figures::{DesignFigures, DesignPoint};
 
 use crate::budget;
+use crate::eng::percent;
 use crate::exit::{Exit, ExitWith, Failure};
 use crate::job::Drive;
 use crate::scenario::{self, design_point, sample_interval_on_grid, Loaded};
@@ -118,9 +119,12 @@ pub fn report_text(l: &Loaded) -> String {
     if let Some((actual, tick)) = sample_interval_on_grid(&l.job) {
         // The grid's tick is a few picoseconds, so only ten figures show the rounding.
         let value = match actual == requested {
-            true => format!("{requested:e} s, on the time grid"),
+            true => format!("{}, on the time grid", eng(requested, "s")),
             false => format!(
-                "{requested:e} s requested, {actual:.10e} s on the time grid (tick {tick:.4e} s)"
+                "{} requested, {} shorter on the time grid (tick {})",
+                eng(requested, "s"),
+                eng(requested - actual, "s"),
+                eng(tick, "s")
             ),
         };
         out.push_str(&format!("  {:<44} {value}\n", "sample interval"));
@@ -149,6 +153,8 @@ pub fn report_text(l: &Loaded) -> String {
             out.push_str(&format!("  warning: {w}\n"));
         }
     }
+    out.push_str(crate::report::CAUTION);
+    out.push('\n');
     out
 }
 
@@ -160,10 +166,7 @@ fn figure_lines(
     let vin = d.input.voltage;
     let bsat = d.transformer.saturation_flux_density;
     let mut lines = vec![
-        (
-            "turns ratio Ns/Np".to_string(),
-            format!("{:.4}", f.secondary_ratio),
-        ),
+        ("turns ratio Ns/Np".to_string(), eng(f.secondary_ratio, "1")),
         ("switching frequency".into(), eng(p.frequency, "Hz")),
         (
             "line: nominal / low / high".into(),
@@ -184,23 +187,23 @@ fn figure_lines(
         ("load current".into(), eng(f.load_current, "A")),
         (
             format!("duty at nominal line {}", eng(vin, "V")),
-            format!("{:.4}", f.nominal_duty),
+            percent(f.nominal_duty),
         ),
     ];
     if let Some(r) = f.reset_ratio {
-        lines.insert(1, ("turns ratio Nr/Np".into(), format!("{r:.4}")));
+        lines.insert(1, ("turns ratio Nr/Np".into(), eng(r, "1")));
     }
     if let Some(needed) = f.low_line_duty_needed {
         lines.push((
             format!("duty needed at low line {}", eng(p.low_line, "V")),
-            format!("{needed:.4}"),
+            percent(needed),
         ));
     }
-    lines.push(("maximum duty".into(), format!("{:.4}", p.max_duty)));
+    lines.push(("maximum duty".into(), percent(p.max_duty)));
     lines.push((
         "reset-limit duty".into(),
         f.reset_limit_duty
-            .map_or("none below 1".into(), |v| format!("{v:.4}")),
+            .map_or("none below 100 %".into(), percent),
     ));
     lines.push((
         "magnetising peak (max duty, low line)".into(),
@@ -240,41 +243,5 @@ fn figure_lines(
     lines
 }
 
-/// `value` with an SI prefix and four significant figures, e.g. "220 µF".
-pub fn eng(value: f64, unit: &str) -> String {
-    const PREFIXES: [(f64, &str); 7] = [
-        (1e9, "G"),
-        (1e6, "M"),
-        (1e3, "k"),
-        (1.0, ""),
-        (1e-3, "m"),
-        (1e-6, "µ"),
-        (1e-9, "n"),
-    ];
-    if value == 0.0 || !value.is_finite() {
-        return format!("{value} {unit}");
-    }
-    let (scale, prefix) = PREFIXES
-        .iter()
-        .copied()
-        .find(|(s, _)| value.abs() >= *s * 0.9995)
-        .unwrap_or((1e-12, "p"));
-    let scaled = value / scale;
-    let decimals = 3usize.saturating_sub(scaled.abs().log10().floor().max(0.0) as usize);
-    format!("{scaled:.decimals$} {prefix}{unit}")
-}
-
-#[cfg(test)]
-mod tests {
-    use super::eng;
-
-    #[test]
-    fn engineering_notation_picks_the_prefix_and_four_figures() {
-        assert_eq!(eng(220e-6, "F"), "220.0 µF");
-        assert_eq!(eng(150e3, "Hz"), "150.0 kHz");
-        assert_eq!(eng(4.0, "A"), "4.000 A");
-        assert_eq!(eng(0.0123, "V"), "12.30 mV");
-        assert_eq!(eng(-48.0, "V"), "-48.00 V");
-        assert_eq!(eng(0.0, "V"), "0 V");
-    }
-}
+/// Engineering notation, shared with every person-facing output (see [`crate::eng`]).
+pub use crate::eng::eng;

@@ -186,6 +186,57 @@ pub enum Command {
         #[arg(short = 'o', long = "output", value_name = "FILE.svg")]
         output: PathBuf,
     },
+    /// Size a forward converter from its specification and write a complete scenario.
+    #[command(
+        after_help = "Example:\n  stepflux size --vin 36V..72V --vout 5V --iout 4A --frequency 150kHz \
+        --reset reset-winding -o my-design.json\n\n\
+        Turns, magnetising inductance, output L and C, ratings and a first-cut voltage-mode \
+        compensation (two zeros at the LC resonance, crossover at a tenth of the switching \
+        frequency) from textbook relations; each choice is explained in the file's \
+        design_notes. Then checks the file like `stepflux check` (and exits like it)."
+    )]
+    Size {
+        /// Input voltage range, e.g. 36V..72V (or one voltage).
+        #[arg(long, value_name = "A..B")]
+        vin: String,
+        /// Output voltage.
+        #[arg(long, value_name = "V")]
+        vout: String,
+        /// Full-load output current.
+        #[arg(long, value_name = "A")]
+        iout: String,
+        /// Switching frequency.
+        #[arg(long, value_name = "F")]
+        frequency: String,
+        /// Reset scheme: reset-winding or two-switch.
+        #[arg(long, value_name = "SCHEME", default_value = "reset-winding")]
+        reset: String,
+        /// Output ripple target, peak to peak (default 1 % of the output voltage).
+        #[arg(long, value_name = "V")]
+        ripple: Option<String>,
+        /// Scenario file to write; its stem is the scenario name.
+        #[arg(short = 'o', long = "output", value_name = "FILE.json")]
+        output: PathBuf,
+    },
+    /// Compare two runs (summary.json) or two studies (results.json), figure by figure.
+    #[command(
+        after_help = "Example:\n  stepflux compare out/demo out/two-switch --html compare.html\n\n\
+        Each side is a run folder or its summary.json, or a study folder or its \
+        results.json. Prints every figure of either side with both values, the difference \
+        and the relative difference; changed figures are marked. --html writes the same as \
+        one self-contained page."
+    )]
+    Compare {
+        /// First run or study (folder or file).
+        #[arg(value_name = "A")]
+        a: PathBuf,
+        /// Second run or study (folder or file).
+        #[arg(value_name = "B")]
+        b: PathBuf,
+        /// Also write the comparison as an HTML page.
+        #[arg(long, value_name = "FILE.html")]
+        html: Option<PathBuf>,
+    },
     /// Print the JSON Schema of the scenario file format.
     #[command(after_help = "Example:\n  stepflux schema > stepflux.schema.json\n\n\
         Point an editor at the schema (or put \"$schema\" in a scenario) for completion \

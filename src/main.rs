@@ -9,7 +9,8 @@ use clap::Parser;
 use stepflux::cli::{Cli, Command};
 use stepflux::exit::{Exit, ExitWith, Failure};
 use stepflux::{
-    batch, check, demo, efficiency_cmd, loop_cmd, plot_cmd, print, run_cmd, settle_cmd,
+    batch, check, compare_cmd, demo, efficiency_cmd, loop_cmd, plot_cmd, print, run_cmd,
+    settle_cmd, size_cmd,
 };
 
 fn main() -> ExitCode {
@@ -118,6 +119,24 @@ fn run(cli: Cli) -> Result<(), Failure> {
             (from.as_deref(), to.as_deref()),
             &output,
         ),
+        Command::Size {
+            vin,
+            vout,
+            iout,
+            frequency,
+            reset,
+            ripple,
+            output,
+        } => size_cmd::size(&size_cmd::SizeArgs {
+            vin: &vin,
+            vout: &vout,
+            iout: &iout,
+            frequency: &frequency,
+            reset: &reset,
+            ripple: ripple.as_deref(),
+            output: &output,
+        }),
+        Command::Compare { a, b, html } => compare_cmd::compare(&a, &b, html.as_deref()),
         Command::Demo { out } => {
             if out.exists() && !out.is_dir() {
                 return Err(anyhow::anyhow!(

@@ -189,11 +189,12 @@ fn run(
     let ended = outcome?;
     file_result?;
     let plots = match ended {
-        Ended::Finished => write_plots(&h5_path, &dir, &probes, &save, job)?,
+        Ended::Finished => write_plots(&h5_path, &dir, &probes, &save, job, worst_reset(&summary))?,
         // A run stopped early may hold too little to plot; the summary and the
         // waveform file are what matter then.
         Ended::Interrupted(_) | Ended::Runaway(_) => {
-            write_plots(&h5_path, &dir, &probes, &save, job).unwrap_or_default()
+            write_plots(&h5_path, &dir, &probes, &save, job, worst_reset(&summary))
+                .unwrap_or_default()
         }
     };
     html::write_run_report(&dir, &summary, &plots, &job.source_text)?;
@@ -272,6 +273,7 @@ fn write_plots(
     probes: &[(String, &str)],
     save: &[usize],
     job: &Job,
+    worst: Option<(f64, u64)>,
 ) -> Result<Vec<PathBuf>> {
     let saved = |name: &str| save.iter().any(|&k| probes[k].0 == name);
     let d = &job.design;
@@ -286,6 +288,19 @@ fn write_plots(
         signal: signal.into(),
         markers,
     };
+    let primary = || {
+        vec![
+            panel(
+                "drain.v",
+                vec![marker(d.switch.voltage_rating, "switch rating")],
+            ),
+            plots::Panel::of("mag.i"),
+            panel(
+                "core.b",
+                vec![marker(d.transformer.saturation_flux_density, "Bsat")],
+            ),
+        ]
+    };
     let sets: [(&str, &str, &str, Vec<plots::Panel>); 3] = [
         (
             "output.svg",
@@ -297,17 +312,7 @@ fn write_plots(
             "primary.svg",
             "time",
             "Drain voltage, magnetising current and flux density",
-            vec![
-                panel(
-                    "drain.v",
-                    vec![marker(d.switch.voltage_rating, "switch rating")],
-                ),
-                plots::Panel::of("mag.i"),
-                panel(
-                    "core.b",
-                    vec![marker(d.transformer.saturation_flux_density, "Bsat")],
-                ),
-            ],
+            primary(),
         ),
         (
             "duty.svg",
@@ -340,5 +345,33 @@ fn write_plots(
         plots::plot(h5, &what, &present, &path)?;
         written.push(path);
     }
+    if let Some((time, cycle)) = worst {
+        // Two periods before the tightest cycle's turn-on and three after: its reset
+        // and the cycles either side.
+        let period = 1.0 / crate::scenario::design_point(job).frequency;
+        let present: Vec<plots::Panel> =
+            primary().into_iter().filter(|p| saved(&p.signal)).collect();
+        if !present.is_empty() {
+            let path = dir.join("plots").join("worst-reset.svg");
+            let title = format!(
+                "Tightest reset: cycle {cycle}, t = {}",
+                crate::eng::eng(time, "s")
+            );
+            let what = plots::Plot {
+                x: "time",
+                window: (Some(time - 2.0 * period), Some(time + 3.0 * period)),
+                title: &title,
+            };
+            plots::plot(h5, &what, &present, &path)?;
+            written.push(path);
+        }
+    }
     Ok(written)
+}
+
+/// Where the tightest reset cycle starts and its number, from the run's figures.
+fn worst_reset(summary: &Summary) -> Option<(f64, u64)> {
+    let time = summary.get("reset_check.worst.time")?;
+    let cycle = summary.get("reset_check.worst.cycle")?;
+    Some((time, cycle as u64))
 }

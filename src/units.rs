@@ -44,6 +44,12 @@ pub enum Unit {
     SquareMetre,
     /// Power.
     Watt,
+    /// Energy.
+    Joule,
+    /// Charge.
+    Coulomb,
+    /// Volume.
+    CubicMetre,
     /// Current slew rate.
     AmperePerSecond,
     /// Voltage slew rate.
@@ -54,7 +60,7 @@ pub enum Unit {
 
 /// Every unit: for matching a wrong symbol to what it measures, and for reading a
 /// value in whatever unit it carries.
-pub const ALL: [Unit; 13] = [
+pub const ALL: [Unit; 16] = [
     Unit::Farad,
     Unit::Henry,
     Unit::Volt,
@@ -65,6 +71,9 @@ pub const ALL: [Unit; 13] = [
     Unit::Tesla,
     Unit::SquareMetre,
     Unit::Watt,
+    Unit::Joule,
+    Unit::Coulomb,
+    Unit::CubicMetre,
     Unit::AmperePerSecond,
     Unit::VoltPerSecond,
     Unit::Ratio,
@@ -84,6 +93,9 @@ impl Unit {
             Unit::Tesla => "flux density",
             Unit::SquareMetre => "area",
             Unit::Watt => "power",
+            Unit::Joule => "energy",
+            Unit::Coulomb => "charge",
+            Unit::CubicMetre => "volume",
             Unit::AmperePerSecond => "current slew rate",
             Unit::VoltPerSecond => "voltage slew rate",
             Unit::Ratio => "plain number",
@@ -103,6 +115,9 @@ impl Unit {
             Unit::Tesla => "tesla (T)",
             Unit::SquareMetre => "square metres (m2 or m²)",
             Unit::Watt => "watts (W)",
+            Unit::Joule => "joules (J)",
+            Unit::Coulomb => "coulombs (C)",
+            Unit::CubicMetre => "cubic metres (m3 or m³)",
             Unit::AmperePerSecond => "amperes per second (A/s)",
             Unit::VoltPerSecond => "volts per second (V/s)",
             Unit::Ratio => "no unit",
@@ -122,6 +137,9 @@ impl Unit {
             Unit::Tesla => "300 mT",
             Unit::SquareMetre => "40 mm2",
             Unit::Watt => "150 mW",
+            Unit::Joule => "2 uJ",
+            Unit::Coulomb => "15 nC",
+            Unit::CubicMetre => "1600 mm3",
             Unit::AmperePerSecond => "1 A/us",
             Unit::VoltPerSecond => "10 V/ms",
             Unit::Ratio => "10k",
@@ -142,7 +160,20 @@ impl Unit {
             Unit::Tesla => &["T"],
             Unit::SquareMetre => &["m2", "m²"],
             Unit::Watt => &["W"],
+            Unit::Joule => &["J"],
+            Unit::Coulomb => &["C"],
+            Unit::CubicMetre => &["m3", "m³"],
             Unit::AmperePerSecond | Unit::VoltPerSecond | Unit::Ratio => &[],
+        }
+    }
+
+    /// Power of the metre in an area or volume unit, whose prefix is raised to it
+    /// (mm² = 1e-6 m², mm³ = 1e-9 m³).
+    fn metre_power(self) -> Option<i32> {
+        match self {
+            Unit::SquareMetre => Some(2),
+            Unit::CubicMetre => Some(3),
+            _ => None,
         }
     }
 
@@ -258,10 +289,10 @@ pub fn parse(text: &str, unit: Unit) -> Result<f64, UnitError> {
 
 /// The IEC 60062 letter-and-digit code (`4k7`, `R47`, `2u2F`): digits, a multiplier
 /// letter in place of the decimal point, digits, then an optional unit. Returns the
-/// decimal mantissa, the letter's power of ten and the rest. Not tried for areas,
-/// where `50m2` would read as a code.
+/// decimal mantissa, the letter's power of ten and the rest. Not tried for areas and
+/// volumes, where `50m2` would read as a code.
 fn code_form(s: &str, unit: Unit) -> Option<(String, i64, &str)> {
-    if unit == Unit::SquareMetre {
+    if unit.metre_power().is_some() {
         return None;
     }
     let lead = s.find(|c: char| !c.is_ascii_digit()).unwrap_or(s.len());
@@ -361,10 +392,10 @@ fn own_exponent(suffix: &str, unit: Unit) -> Option<i32> {
     let mut chars = suffix.chars();
     let first = chars.next()?;
     let rest = chars.as_str();
-    // Centi is used with areas only (core areas are quoted in cm²), and only with the
-    // symbol: a lone "c" is no prefix anywhere else.
+    // Centi is used with areas and volumes only (core areas are quoted in cm², volumes
+    // in cm³), and only with the symbol: a lone "c" is no prefix anywhere else.
     let p = match first {
-        'c' if unit == Unit::SquareMetre && !rest.is_empty() => -2,
+        'c' if unit.metre_power().is_some() && !rest.is_empty() => -2,
         _ => prefix(first)?,
     };
     if rest.is_empty() {
@@ -372,7 +403,7 @@ fn own_exponent(suffix: &str, unit: Unit) -> Option<i32> {
         Some(p)
     } else if unit.symbols().contains(&rest) {
         // An area prefix scales the metre, and the metre is squared: mm² = 1e-6 m².
-        Some(if unit == Unit::SquareMetre { 2 * p } else { p })
+        Some(unit.metre_power().map_or(p, |k| k * p))
     } else {
         None
     }
@@ -420,6 +451,7 @@ fn pattern_for(unit: Unit) -> String {
     let units = match unit.rate_of() {
         Some(top) => format!("[pnuµμmkMG]?{top}\\/[pnuµμm]?s"),
         None if unit == Unit::SquareMetre => "([pnuµμmkMG]|[pnuµμmkMGc](m2|m²))?".to_string(),
+        None if unit == Unit::CubicMetre => "([pnuµμmkMG]|[pnuµμmkMGc](m3|m³))?".to_string(),
         None => {
             let list: Vec<String> = unit.symbols().iter().map(|s| escape(s)).collect();
             format!("[pnuµμmkMG]?({})?", list.join("|"))
@@ -428,7 +460,7 @@ fn pattern_for(unit: Unit) -> String {
     let number = r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?";
     let code = format!(r"\d*[pnuµμmkMGR]\d+\s*({units})?");
     match unit {
-        Unit::SquareMetre => format!(r"^\s*{number}\s*{units}\s*$"),
+        Unit::SquareMetre | Unit::CubicMetre => format!(r"^\s*{number}\s*{units}\s*$"),
         Unit::Ratio => format!(r"^\s*({number}\s*[pnuµμmkMG]?|\d*[pnuµμmkMGR]\d+)\s*$"),
         _ => format!(r"^\s*({number}\s*{units}|{code})\s*$"),
     }
@@ -556,6 +588,21 @@ quantity!(
     /// Power, watts.
     Watts,
     Unit::Watt
+);
+quantity!(
+    /// Energy, joules.
+    Joules,
+    Unit::Joule
+);
+quantity!(
+    /// Charge, coulombs.
+    Coulombs,
+    Unit::Coulomb
+);
+quantity!(
+    /// Volume, cubic metres.
+    CubicMetres,
+    Unit::CubicMetre
 );
 quantity!(
     /// Current slew rate, amperes per second.

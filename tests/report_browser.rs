@@ -147,4 +147,41 @@ fn demo_report_renders_in_a_browser_without_script_errors() {
         png.display()
     );
     eprintln!("screenshot: {}", png.display());
+    let html = std::fs::read_to_string(&report).expect("report");
+    assert!(
+        html.contains("Tightest reset: cycle"),
+        "the worst reset cycle's plot is in the report"
+    );
+
+    // The example study's report, the same checks: it renders, its sorting script runs
+    // without an error, and it holds the pass rate and the limit histograms.
+    let status = Command::new(env!("CARGO_BIN_EXE_stepflux"))
+        .args(["batch", "--quiet", "--jobs", "2", "--out"])
+        .arg(dir.join("study"))
+        .arg(Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios/study_corners.json"))
+        .status()
+        .expect("binary runs");
+    assert!(status.code().is_some_and(|c| c <= 1), "the study runs");
+    let study = std::fs::read_dir(dir.join("study"))
+        .expect("study folder")
+        .filter_map(|e| e.ok().map(|e| e.path().join("report.html")))
+        .find(|p| p.is_file())
+        .expect("the study writes report.html");
+    let png = dir.join("study.png");
+    let log = screenshot(&study, &png, &dir.join("profile-study"));
+    let errors = console_errors(&log);
+    assert!(
+        errors.is_empty(),
+        "script errors in the study report: {errors:#?}"
+    );
+    let shot = std::fs::read(&png).expect("study screenshot written");
+    assert!(
+        shot.len() > 10 * blank.len(),
+        "study screenshot {} bytes is blank-like against {} bytes",
+        shot.len(),
+        blank.len()
+    );
+    let html = std::fs::read_to_string(&study).expect("study report");
+    assert!(html.contains("Wilson score interval"), "pass rate shown");
+    eprintln!("screenshot: {}", png.display());
 }

@@ -37,6 +37,7 @@ mod ladder;
 mod layout;
 mod nodal;
 pub mod reference;
+mod run;
 mod sim;
 mod stepper;
 mod system;

@@ -18,8 +18,9 @@
 //! so every state used is as accurate as the integrator and the event time is within
 //! `event_tolerance` of the integrated trajectory's crossing. Steps are capped at
 //! [`ReferenceOptions::max_step`] so a function that crosses and re-crosses within a
-//! step is not missed. After each event the diodes are settled by the exact path's own
-//! rule (the shared settling function).
+//! step is not missed. After each event the diodes are settled by the problem's rule
+//! ([`crate::run`]: which diodes conduct at a state is part of the problem, not of a
+//! method), applied to this path's own state.
 //!
 //! Meters, fixed-interval samples and allocation-free stepping are not offered: this is
 //! a reference, not a production stepper (the integrator allocates on every stage).
@@ -27,25 +28,23 @@
 //! one flagged sample per event, gate or source change.
 
 use std::collections::VecDeque;
-use std::sync::Arc;
 
 use nalgebra::DVector;
 use ode_solvers::dop_shared::IntegrationError;
 use ode_solvers::{Dop853, OutputType};
 
-use crate::circuit::{Circuit, ElementId, ElementKind};
+use crate::circuit::{Circuit, ElementId};
 use crate::error::EngineError;
 use crate::event::{
     free_slot, Direction, EventFn, EventSlot, NullSink, Sink, StepOutcome, Stop, MAX_ARMED,
 };
 use crate::ladder::TimeGrid;
-use crate::sim::{initial_state, initial_topology, settle_diodes, source_waveform, StormGuard};
+use crate::run::RunState;
+use crate::sim::StormGuard;
 use crate::system::{Observation, System, TopologyData};
 use crate::topology::Topology;
 
 mod stepper;
-#[cfg(test)]
-mod tests;
 
 /// Options of the reference integrator.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -115,17 +114,13 @@ impl ReferenceOptions {
 /// A run of the reference path. Mirrors [`crate::Simulation`]: the caller advances
 /// time, changes gates and sources between advances, and reads probes.
 pub struct ReferenceRun {
-    system: System,
+    /// The problem, state, topology and breakpoint schedule, shared with the exact
+    /// path.
+    run: RunState,
     options: ReferenceOptions,
     time: f64,
-    z: DVector<f64>,
-    topo: Arc<TopologyData>,
     armed: [Option<EventFn>; MAX_ARMED],
-    /// Per source: next breakpoint time (seconds) of its waveform.
-    breaks: Vec<Option<f64>>,
     recent: VecDeque<f64>,
-    visited: Vec<Topology>,
-    flipped: Vec<ElementId>,
     /// Event values at the previous and present accepted step, for the watcher.
     watch_prev: Vec<f64>,
     watch_now: Vec<f64>,
@@ -157,28 +152,15 @@ impl ReferenceRun {
         // A one-rung grid: the system's cached exponentials are not used here, so
         // build as few as possible.
         let grid = TimeGrid::new(options.max_step, options.max_step)?;
-        let mut system = System::new(circuit, observation, grid, options.cache_limit)?;
-        let topo = system.topology(initial_topology(&system))?;
-        let z = initial_state(&system);
-        let breaks = system
-            .layout
-            .sources
-            .iter()
-            .map(|s| source_waveform(&system.circuit, *s).segment(0.0).until)
-            .collect();
+        let system = System::new(circuit, observation, grid, options.cache_limit)?;
         let n_events = system.diode_count() + MAX_ARMED;
         let n_probes = system.observation.probes.len();
         let mut run = ReferenceRun {
-            system,
+            run: RunState::new(system, 0)?,
             options,
             time: 0.0,
-            z,
-            topo,
             armed: [None; MAX_ARMED],
-            breaks,
             recent: VecDeque::with_capacity(options.storm.max_events + 1),
-            visited: Vec::new(),
-            flipped: Vec::new(),
             watch_prev: vec![0.0; n_events],
             watch_now: vec![0.0; n_events],
             pending_flagged: false,
@@ -196,38 +178,27 @@ impl ReferenceRun {
 
     /// The problem being integrated.
     pub fn system(&self) -> &System {
-        &self.system
+        &self.run.system
     }
 
     /// Augmented state z = [x; 1; w; s] (see [`crate::Layout`]).
     pub fn state(&self) -> &DVector<f64> {
-        &self.z
+        &self.run.z
     }
 
     /// Present topology.
     pub fn topology(&self) -> Topology {
-        self.topo.topology
+        self.run.topo.topology
     }
 
     /// Present value of probe `k`, in the probe's own units.
     pub fn probe(&self, k: usize) -> f64 {
-        let r = self.system.diode_count() + self.system.observation.event_signals.len() + k;
-        self.topo.value(r, &self.z)
+        self.run.probe(k)
     }
 
     /// Turns a switch on or off now, then settles the diodes.
     pub fn set_gate(&mut self, switch: ElementId, on: bool) -> Result<(), EngineError> {
-        let circuit = &self.system.circuit;
-        let bit = match (
-            circuit.elements.get(switch.0),
-            self.system.layout.bit_of.get(switch.0),
-        ) {
-            (Some(e), Some(Some(bit))) if matches!(e.kind, ElementKind::Switch { .. }) => *bit,
-            _ => return Err(not_a(circuit, "switch", switch)),
-        };
-        let t = self.topo.topology.with(bit, on);
-        if t != self.topo.topology {
-            self.topo = self.system.topology(t)?;
+        if self.run.set_gate(switch, on)? {
             self.settle()?;
         }
         Ok(())
@@ -241,26 +212,17 @@ impl ReferenceRun {
         value: f64,
         slope: f64,
     ) -> Result<(), EngineError> {
-        let l = &self.system.layout;
-        let Some(k) = l.sources.iter().position(|&s| s == source) else {
-            return Err(not_a(&self.system.circuit, "independent source", source));
-        };
-        if !(value.is_finite() && slope.is_finite()) {
-            return Err(EngineError::BadOption {
-                what: "source value",
-                value,
-                allowed: "finite value and slope",
-            });
-        }
-        let (w, s) = (l.w(k), l.s(k));
-        self.z[w] = value;
-        self.z[s] = slope;
+        self.run.set_source(source, value, slope)?;
         self.settle()
     }
 
     /// Arms an event; returns its slot.
     pub fn arm(&mut self, f: EventFn) -> Result<EventSlot, EngineError> {
-        let slot = free_slot(&f, self.system.observation.event_signals.len(), &self.armed)?;
+        let slot = free_slot(
+            &f,
+            self.run.system.observation.event_signals.len(),
+            &self.armed,
+        )?;
         self.armed[slot] = Some(f);
         Ok(EventSlot(slot as u8))
     }
@@ -296,15 +258,16 @@ impl ReferenceRun {
     fn step_with(&mut self, until: f64, sink: &mut dyn Sink) -> Result<StepOutcome, EngineError> {
         self.flush(sink)?;
         while self.time < until {
-            let next_break = (self.breaks.iter().flatten()).fold(f64::INFINITY, |a, &b| a.min(b));
+            let next_break =
+                (self.run.breaks.iter().flatten()).fold(f64::INFINITY, |a, &b| a.min(b));
             let target = until.min(next_break);
-            let span = self.integrate(self.time, &self.z.clone(), target, true)?;
+            let span = self.integrate(self.time, &self.run.z.clone(), target, true)?;
             if let Some((t_lo, z_lo)) = span.fired_from {
                 let outcome = self.locate(t_lo, z_lo, span.t, span.z)?;
                 self.flush(sink)?;
                 return Ok(outcome);
             }
-            (self.time, self.z) = (target, span.z);
+            (self.time, self.run.z) = (target, span.z);
             if target == next_break {
                 self.apply_breakpoints()?;
             }
@@ -324,9 +287,9 @@ impl ReferenceRun {
     ) -> Result<StepOutcome, EngineError> {
         let n = self.watch_prev.len();
         let (mut g_lo, mut g_hi, mut g_mid) = (vec![0.0; n], vec![0.0; n], vec![0.0; n]);
-        let nd = self.system.diode_count();
-        eval_events(&self.topo, &self.armed, nd, a, &z_a, &mut g_lo);
-        eval_events(&self.topo, &self.armed, nd, b, &z_b, &mut g_hi);
+        let nd = self.run.system.diode_count();
+        eval_events(&self.run.topo, &self.armed, nd, a, &z_a, &mut g_lo);
+        eval_events(&self.run.topo, &self.armed, nd, b, &z_b, &mut g_hi);
         loop {
             let mid = a + 0.5 * (b - a);
             // Stop at the tolerance, or when the bracket is down to adjacent floats.
@@ -335,7 +298,7 @@ impl ReferenceRun {
             }
             // Unwatched, the integration always reaches `mid`.
             let z_mid = self.integrate(a, &z_a, mid, false)?.z;
-            eval_events(&self.topo, &self.armed, nd, mid, &z_mid, &mut g_mid);
+            eval_events(&self.run.topo, &self.armed, nd, mid, &z_mid, &mut g_mid);
             if fired(&g_lo, &g_mid) {
                 (b, z_b) = (mid, z_mid);
                 std::mem::swap(&mut g_hi, &mut g_mid);
@@ -348,13 +311,13 @@ impl ReferenceRun {
         let armed = slots.fold(0u64, |m, (k, (&lo, &hi))| {
             m | u64::from(lo <= 0.0 && hi > 0.0) << k
         });
-        (self.time, self.z) = (b, z_b);
+        (self.time, self.run.z) = (b, z_b);
         self.settle()?;
         self.record_event()?;
         Ok(StepOutcome::Event {
             time: b,
             armed,
-            diode: self.flipped.first().copied(),
+            diode: self.run.flipped.first().copied(),
         })
     }
 
@@ -371,7 +334,7 @@ impl ReferenceRun {
         if span <= 16.0 * f64::EPSILON * t0.abs().max(t1.abs()) {
             // Too short for the integrator's step-size floor (0.1·h > ε·|t|); one
             // Euler step is exact to O(span²), far below any tolerance here.
-            let z = z0 + &self.topo.m * z0 * span;
+            let z = z0 + &self.run.topo.m * z0 * span;
             let fired_from = None;
             return Ok(Span {
                 t: t1,
@@ -380,9 +343,9 @@ impl ReferenceRun {
             });
         }
         let mut watcher = Watcher {
-            topo: &self.topo,
+            topo: &self.run.topo,
             armed: &self.armed,
-            nd: self.system.diode_count(),
+            nd: self.run.system.diode_count(),
             g_prev: std::mem::take(&mut self.watch_prev),
             g_now: std::mem::take(&mut self.watch_now),
             watch,
@@ -434,32 +397,14 @@ impl ReferenceRun {
     }
 
     fn apply_breakpoints(&mut self) -> Result<(), EngineError> {
-        for k in 0..self.breaks.len() {
-            let Some(tb) = self.breaks[k] else { continue };
-            if tb > self.time {
-                continue;
-            }
-            let src = self.system.layout.sources[k];
-            let seg = source_waveform(&self.system.circuit, src).segment(tb);
-            let (w, s) = (self.system.layout.w(k), self.system.layout.s(k));
-            self.z[w] = seg.value;
-            self.z[s] = seg.slope;
-            self.breaks[k] = seg.until;
-        }
+        let time = self.time;
+        self.run.apply_breakpoints(|tb| tb <= time);
         self.settle()
     }
 
     fn settle(&mut self) -> Result<(), EngineError> {
         self.pending_flagged = true;
-        settle_diodes(
-            &mut self.system,
-            &mut self.topo,
-            &self.z,
-            self.time,
-            &mut self.visited,
-            &mut self.flipped,
-            &mut self.watch_now,
-        )
+        self.run.settle(self.time, &mut self.watch_now)
     }
 
     /// Storm guard: `max_events` events within `window` seconds is an error.
@@ -473,13 +418,17 @@ impl ReferenceRun {
         if self.recent.len() < guard.max_events || self.time - oldest >= guard.window {
             return Ok(());
         }
-        let c = &self.system.circuit;
-        let names = self.flipped.iter().map(|e| c.elements[e.0].name.clone());
+        let c = &self.run.system.circuit;
+        let names = self
+            .run
+            .flipped
+            .iter()
+            .map(|e| c.elements[e.0].name.clone());
         Err(EngineError::EventStorm {
             time: self.time,
             count: guard.max_events,
             window: guard.window,
-            topology: self.topo.topology.describe(c, &self.system.layout),
+            topology: self.run.describe_topology(),
             elements: names.chain(["(armed events)".to_string()]).collect(),
         })
     }
@@ -553,16 +502,5 @@ fn integrator_error(e: IntegrationError, t0: f64) -> EngineError {
     EngineError::ReferenceIntegrator {
         time: if time.is_finite() { time } else { t0 },
         reason: e.to_string(),
-    }
-}
-
-fn not_a(circuit: &Circuit, what: &str, id: ElementId) -> EngineError {
-    let element = circuit
-        .elements
-        .get(id.0)
-        .map_or_else(|| format!("element #{}", id.0), |e| e.name.clone());
-    EngineError::BadReference {
-        element,
-        problem: format!("is not a {what}"),
     }
 }

@@ -127,3 +127,85 @@ pub(crate) fn check_handover(from: &Handover, nz: usize) -> Result<(), EngineErr
     }
     Ok(())
 }
+
+/// The [`Stepper`] methods both paths implement inherently (with the same names and
+/// signatures), forwarded to those methods; used inside `impl Stepper for ...`.
+macro_rules! forward_to_inherent {
+    ($ty:ty) => {
+        #[inline]
+        fn time(&self) -> f64 {
+            <$ty>::time(self)
+        }
+
+        #[inline]
+        fn system(&self) -> &crate::system::System {
+            <$ty>::system(self)
+        }
+
+        #[inline]
+        fn state(&self) -> &nalgebra::DVector<f64> {
+            <$ty>::state(self)
+        }
+
+        #[inline]
+        fn topology(&self) -> crate::topology::Topology {
+            <$ty>::topology(self)
+        }
+
+        #[inline]
+        fn probe(&self, k: usize) -> f64 {
+            <$ty>::probe(self, k)
+        }
+
+        #[inline]
+        fn event_signal(&self, k: usize) -> f64 {
+            <$ty>::event_signal(self, k)
+        }
+
+        #[inline]
+        fn set_gate(
+            &mut self,
+            switch: crate::circuit::ElementId,
+            on: bool,
+        ) -> Result<(), crate::error::EngineError> {
+            <$ty>::set_gate(self, switch, on)
+        }
+
+        fn set_source(
+            &mut self,
+            source: crate::circuit::ElementId,
+            value: f64,
+            slope: f64,
+        ) -> Result<(), crate::error::EngineError> {
+            <$ty>::set_source(self, source, value, slope)
+        }
+
+        fn set_states(&mut self, x: &[f64]) -> Result<(), crate::error::EngineError> {
+            <$ty>::set_states(self, x)
+        }
+
+        fn arm(
+            &mut self,
+            f: crate::event::EventFn,
+        ) -> Result<crate::event::EventSlot, crate::error::EngineError> {
+            <$ty>::arm(self, f)
+        }
+
+        #[inline]
+        fn disarm(&mut self, slot: crate::event::EventSlot) {
+            <$ty>::disarm(self, slot)
+        }
+
+        fn handover(&self) -> crate::stepper::Handover {
+            <$ty>::handover(self)
+        }
+
+        fn take_over(
+            &mut self,
+            from: &crate::stepper::Handover,
+        ) -> Result<(), crate::error::EngineError> {
+            <$ty>::take_over(self, from)
+        }
+    };
+}
+pub(crate) use forward_to_inherent;

@@ -2,7 +2,7 @@
 //! lazily built, bounded cache of per-topology matrices.
 
 use std::collections::HashMap;
-use std::sync::Arc;
+use std::sync::{Arc, OnceLock};
 
 use nalgebra::DMatrix;
 
@@ -44,8 +44,12 @@ pub struct TopologyData {
     pub m: DMatrix<f64>,
     /// Exact propagators with the event rows carried along (an event function one
     /// step ahead of z is one dot product, which is what bisection mostly needs), and
-    /// meter integrals.
-    pub ladder: Ladder,
+    /// meter integrals: built when a step first needs them ([`TopologyData::ladder`]),
+    /// so a topology only passed through while the diodes settle costs a nodal
+    /// analysis, never exponentials.
+    ladder: OnceLock<Ladder>,
+    /// What the ladder is built from.
+    recipe: LadderRecipe,
     /// Rows over z, stored as columns so each is contiguous: diode switching
     /// functions (one per diode), then event signals, then probes.
     pub rows_t: DMatrix<f64>,
@@ -56,7 +60,36 @@ pub struct TopologyData {
     pub slopes: DMatrix<f64>,
 }
 
+/// The inputs of a topology's [`Ladder`] besides M.
+struct LadderRecipe {
+    nx: usize,
+    grid: TimeGrid,
+    /// Event rows (diode functions, then event signals) over z.
+    events: DMatrix<f64>,
+    /// Quadratic forms of the meters.
+    forms: Vec<DMatrix<f64>>,
+    bits: u32,
+}
+
 impl TopologyData {
+    /// The propagator ladder, built on first use (the same matrices whenever that is).
+    pub(crate) fn ladder(&self) -> &Ladder {
+        self.ladder.get_or_init(|| {
+            let r = &self.recipe;
+            Ladder::build(&self.m, r.nx, &r.grid, &r.events, &r.forms, r.bits)
+        })
+    }
+
+    /// Rows of a ladder entry's output (see [`Ladder::rows`]), known without building.
+    pub(crate) fn ladder_rows(&self) -> usize {
+        (self.m.nrows() + self.recipe.events.nrows()).div_ceil(4) * 4
+    }
+
+    /// Event rows in a ladder entry (see [`Ladder::n_events`]).
+    pub(crate) fn event_rows(&self) -> usize {
+        self.recipe.events.nrows()
+    }
+
     /// Value of row `r` (see [`TopologyData::rows_t`]) at state `z`.
     #[inline]
     pub fn value(&self, r: usize, z: &nalgebra::DVector<f64>) -> f64 {
@@ -242,23 +275,19 @@ impl System {
         // Meters multiply the memory of every entry, so runs that have them step on
         // binary rungs only.
         let bits = if forms.is_empty() { RADIX_BITS } else { 1 };
-        let ladder = Ladder::build(&m, self.layout.nx(), &self.grid, &events, &forms, bits);
-        if ladder
-            .steps
-            .iter()
-            .any(|p| p.iter().any(|v| !v.is_finite()))
-        {
-            return Err(EngineError::NonFinite {
-                time: f64::NAN,
-                topology: t.describe(&self.circuit, &self.layout),
-            });
-        }
         let rows_t = rows.transpose();
         Ok(TopologyData {
             topology: t,
             slopes: &rows * &m,
             m,
-            ladder,
+            ladder: OnceLock::new(),
+            recipe: LadderRecipe {
+                nx: self.layout.nx(),
+                grid: self.grid,
+                events,
+                forms,
+                bits,
+            },
             rows_t,
         })
     }

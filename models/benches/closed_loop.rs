@@ -5,6 +5,11 @@
 //! the figure is the steady per-period cost: clock, gate delay, blanking, comparator
 //! event, turn-off, reset and rectifier events, plain steps in between.
 //!
+//! A second figure is the cost of one start-up case from cold: build the converter and
+//! controller, then 5 ms (the corners study's start-up window), every topology built
+//! on the way (no meters, no output). It is what each case of a study pays before its
+//! measurements.
+//!
 //! `cargo bench -p stepflux-models --bench closed_loop`
 
 use std::hint::black_box;
@@ -66,5 +71,40 @@ fn bench(c: &mut Criterion) {
     }
 }
 
-criterion_group!(benches, bench);
+/// Simulated time of one start-up case, seconds (as the corners study).
+const START_UP: f64 = 5e-3;
+
+fn start_up(c: &mut Criterion) {
+    let (design, spec) = (demo_design(), demo_controller());
+    let options = ClosedLoop::default_options(&spec);
+    let mut group = c.benchmark_group("closed_loop_demo");
+    group.sample_size(10);
+    group.warm_up_time(Duration::from_secs(1));
+    group.measurement_time(Duration::from_secs(5));
+    let (mut total, mut cases) = (Duration::ZERO, 0u64);
+    group.bench_function("start_up_5ms", |b| {
+        b.iter_custom(|iters| {
+            let start = Instant::now();
+            for _ in 0..iters {
+                let mut cl = ClosedLoop::new(&design, &spec, &[], options).expect("demo builds");
+                cl.advance_to(START_UP, &mut NullSink, &mut NoCycles)
+                    .expect("demo starts");
+                black_box(cl.run.probe("out.v"));
+            }
+            let elapsed = start.elapsed();
+            total += elapsed;
+            cases += iters;
+            elapsed
+        })
+    });
+    group.finish();
+    if cases > 0 {
+        eprintln!(
+            "closed_loop_demo: {:.2} ms per 5 ms start-up case from cold (mean over {cases})",
+            total.as_secs_f64() * 1e3 / cases as f64
+        );
+    }
+}
+
+criterion_group!(benches, bench, start_up);
 criterion_main!(benches);

@@ -36,6 +36,51 @@ pub struct Transformer {
     /// Optional two-slope saturation: incremental inductance above the knee, henries.
     /// The knee is where B reaches Bsat: i_knee = Bsat·Np·Ae / Lm.
     pub saturated_inductance: Option<f64>,
+    /// Optional core loss by the Steinmetz equation (None = no core loss).
+    pub core_loss: Option<CoreLoss>,
+}
+
+/// Core loss by the Steinmetz equation, P = k·f^α·B̂^β·V_core (C. P. Steinmetz, "On the
+/// law of hysteresis", Trans. AIEE 9, 1892, with the frequency term of later practice).
+///
+/// Form used: the classical one, per switching cycle, with f = 1/T of that cycle and B̂
+/// half the peak-to-peak swing of the simulated flux density over the cycle (its exact
+/// extremes from the trace). It is the form core data sheets fit k, α, β to under
+/// sinusoidal flux; for the triangular flux of a forward converter it is a first
+/// estimate (it leaves out the dependence on the duty that the improved generalized
+/// form of Venkatachalam et al., COMPEL 2002, adds), which is not adopted here.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct CoreLoss {
+    /// Coefficient k, watts per cubic metre at f = 1 Hz and B̂ = 1 T.
+    pub k: f64,
+    /// Frequency exponent α.
+    pub alpha: f64,
+    /// Flux-density exponent β.
+    pub beta: f64,
+    /// Effective core volume V_core, cubic metres.
+    pub volume: f64,
+}
+
+impl CoreLoss {
+    /// Loss power at frequency `f` hertz and peak flux density `b_peak` tesla, watts.
+    pub fn power(&self, f: f64, b_peak: f64) -> f64 {
+        self.k * f.powf(self.alpha) * b_peak.abs().powf(self.beta) * self.volume
+    }
+
+    pub(crate) fn validate(&self, field: &str) -> Result<(), ModelError> {
+        positive(&format!("{field}.k"), self.k)?;
+        positive(&format!("{field}.volume"), self.volume)?;
+        for (name, v) in [("alpha", self.alpha), ("beta", self.beta)] {
+            if !(v.is_finite() && v > 0.0 && v <= 4.0) {
+                return Err(ModelError::OutOfRange {
+                    field: format!("{field}.{name}"),
+                    value: v,
+                    allowed: "an exponent above 0 and at most 4".into(),
+                });
+            }
+        }
+        Ok(())
+    }
 }
 
 impl Transformer {
@@ -77,6 +122,9 @@ impl Transformer {
             "transformer.saturation_flux_density",
             self.saturation_flux_density,
         )?;
+        if let Some(c) = &self.core_loss {
+            c.validate("transformer.core_loss")?;
+        }
         if let Some(ls) = self.saturated_inductance {
             positive("transformer.saturated_inductance", ls)?;
             if ls >= self.magnetising_inductance {
@@ -104,6 +152,53 @@ pub struct Switch {
     pub body_diode: Option<Diode>,
     /// Drain–source voltage rating, volts (for checks).
     pub voltage_rating: f64,
+    /// Optional switching-transition loss of the main switch (None = none). The
+    /// simulated switch changes state in one tick; this accounts for the overlap of
+    /// voltage and current a real device has while it changes.
+    pub transitions: Option<Transitions>,
+    /// Optional gate-drive loss of the main switch (None = none).
+    pub gate_drive: Option<GateDrive>,
+}
+
+/// How the main switch's transition loss is figured, per turn-on and turn-off.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum Transitions {
+    /// From the transition times, by the linear-ramp overlap of common practice:
+    /// E = ½·V·I·t per transition, so ½·V·I·(t_r + t_f)·f per pair at equal V and I.
+    /// V and I are the simulated switch's own at each instant (see
+    /// [`crate::measure::PartLosses`]).
+    Times {
+        /// Turn-on (current rise, voltage fall) time, seconds.
+        rise_time: f64,
+        /// Turn-off (voltage rise, current fall) time, seconds.
+        fall_time: f64,
+    },
+    /// A fixed energy per transition, joules (from a device's switching-energy figures
+    /// at the operating point).
+    Energy {
+        /// Energy per turn-on, joules.
+        turn_on: f64,
+        /// Energy per turn-off, joules.
+        turn_off: f64,
+    },
+}
+
+/// The gate driver: each turn-on charges the gate with Qg from V_drive, and the charge
+/// is dumped at turn-off, so the driver supplies Qg·V_drive per cycle: P = Qg·V_drive·f
+/// (common practice).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct GateDrive {
+    /// Total gate charge Qg at V_drive, coulombs.
+    pub charge: f64,
+    /// Gate drive voltage, volts.
+    pub drive_voltage: f64,
+}
+
+impl GateDrive {
+    /// Energy the driver supplies per switching cycle, joules.
+    pub fn energy_per_cycle(&self) -> f64 {
+        self.charge * self.drive_voltage
+    }
 }
 
 /// A diode: reset, rectifier, freewheel, clamp or body diode.
@@ -224,6 +319,47 @@ impl Switch {
         positive(&format!("{field}.voltage_rating"), self.voltage_rating)?;
         if let Some(d) = &self.body_diode {
             d.validate(&format!("{field}.body_diode"))?;
+        }
+        match self.transitions {
+            Some(Transitions::Times {
+                rise_time,
+                fall_time,
+            }) => {
+                non_negative(&format!("{field}.transitions.times.rise_time"), rise_time)?;
+                non_negative(&format!("{field}.transitions.times.fall_time"), fall_time)?;
+            }
+            Some(Transitions::Energy { turn_on, turn_off }) => {
+                non_negative(&format!("{field}.transitions.energy.turn_on"), turn_on)?;
+                non_negative(&format!("{field}.transitions.energy.turn_off"), turn_off)?;
+            }
+            None => {}
+        }
+        if let Some(g) = &self.gate_drive {
+            positive(&format!("{field}.gate_drive.charge"), g.charge)?;
+            positive(
+                &format!("{field}.gate_drive.drive_voltage"),
+                g.drive_voltage,
+            )?;
+        }
+        Ok(())
+    }
+}
+
+impl Switch {
+    /// As [`Switch::validate`] for a switch other than the main one (a high-side or
+    /// auxiliary switch), whose transition and gate losses are not modelled: asking
+    /// for them is refused rather than ignored.
+    pub(crate) fn validate_other(&self, field: &str) -> Result<(), ModelError> {
+        self.validate(field)?;
+        for (name, given) in [
+            ("transitions", self.transitions.is_some()),
+            ("gate_drive", self.gate_drive.is_some()),
+        ] {
+            if given {
+                return Err(ModelError::Infeasible(format!(
+                    "{field}.{name}: transition and gate-drive losses are modelled for the                      main switch only; remove it here"
+                )));
+            }
         }
         Ok(())
     }

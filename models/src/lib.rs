@@ -6,7 +6,8 @@
 //! behavioural PWM controller ([`controller`]), load/line/reference steps
 //! ([`disturbance`]), the
 //! per-cycle core-reset table ([`cycles`]), the sampled-data loop gain ([`loopgain`]), and the closed-form design figures the
-//! templates are checked against ([`figures`]).
+//! templates are checked against ([`figures`]) and the first-cut sizing of a design
+//! from its specification ([`sizing`]).
 //!
 //! It depends on `stepflux-engine` only: no files, threads, terminals or serialisation.
 //! Everything here is deterministic.
@@ -26,6 +27,7 @@ pub mod loopgain;
 pub mod measure;
 pub mod run;
 pub mod runaway;
+pub mod sizing;
 pub mod steady;
 pub mod template;
 

@@ -23,6 +23,8 @@ fn buck_built_from_forward_components_meets_volt_second_balance() {
         output_capacitance: 0.0,
         body_diode: None,
         voltage_rating: 30.0,
+        transitions: None,
+        gate_drive: None,
     };
     let fw = Diode {
         vf: 0.4,

@@ -18,6 +18,7 @@
 //! failed a limit, else 0.
 
 mod cases;
+mod histogram;
 mod path;
 mod record;
 mod runner;
@@ -259,8 +260,19 @@ fn print_tally(dir: &Path, n: usize, c: &BTreeMap<&str, usize>, missing: usize) 
         "{n} cases: {} passed, {} failed a limit, {} errored{missing}",
         c["passed"], c["failed"], c["errored"]
     );
+    let ran = c["passed"] + c["failed"] + c["errored"];
+    if let Some((lo, hi)) = histogram::wilson(c["passed"], ran, histogram::Z95) {
+        println!(
+            "  pass rate {} (95 % Wilson interval {} to {})",
+            crate::eng::percent(c["passed"] as f64 / ran as f64),
+            crate::eng::percent(lo),
+            crate::eng::percent(hi)
+        );
+    }
+    println!("  report:  {}", dir.join("report.html").display());
     println!("  results: {}", dir.join("results.csv").display());
     println!("  worst:   {}", dir.join("worst.json").display());
+    println!("  {}", crate::report::CAUTION);
 }
 
 /// The study folders among `dirs`, all of one plan.

@@ -8,11 +8,13 @@ use std::path::Path;
 
 use anyhow::Result;
 
+use super::histogram;
 use super::record::{write_atomic, CaseRecord, Status};
 use super::table::{worst_case, worst_of, StudyMeta};
+use stepflux_models::job::verdict::LimitDef;
 use stepflux_models::measure::Kind;
 
-use crate::eng::{count, eng, pass_fail, prefixed};
+use crate::eng::{count, eng, pass_fail, percent, prefixed};
 use crate::writers::html::{caution, escape, page};
 
 /// Figures shown per case and in the worst-case table, with a label.
@@ -92,8 +94,55 @@ fn html(dir: &Path, meta: &StudyMeta, records: &[CaseRecord]) -> String {
     );
     b.push_str(&caution());
     worst_table(&mut b, dir, records);
+    pass_rate(&mut b, records);
     cases_table(&mut b, dir, meta, records);
     page(&format!("{} — stepflux study", meta.study), &b, SORT)
+}
+
+/// The estimated pass rate with its 95 % Wilson interval (errored cases count as not
+/// passing), then a histogram per limit across the cases that measured it.
+fn pass_rate(b: &mut String, records: &[CaseRecord]) {
+    let passed = records
+        .iter()
+        .filter(|r| r.status == Status::Passed)
+        .count();
+    let Some((lo, hi)) = histogram::wilson(passed, records.len(), histogram::Z95) else {
+        return;
+    };
+    let _ = write!(
+        b,
+        "<h2>Pass rate</h2><p>{passed} of {} cases passed: estimated pass rate {}, 95 % \
+         confidence interval {} to {} (Wilson score interval, Wilson 1927).</p>",
+        records.len(),
+        percent(passed as f64 / records.len() as f64),
+        percent(lo),
+        percent(hi)
+    );
+    let mut limits: Vec<(&'static LimitDef, f64)> = Vec::new();
+    for v in records.iter().flat_map(|r| &r.verdicts) {
+        if !limits.iter().any(|(l, _)| l.field == v.limit.field) {
+            limits.push((v.limit, v.bound));
+        }
+    }
+    for (limit, bound) in limits {
+        let unit = limit.unit;
+        let values: Vec<f64> = records
+            .iter()
+            .flat_map(|r| &r.verdicts)
+            .filter(|v| v.limit.field == limit.field)
+            .filter_map(|v| v.value)
+            .collect();
+        if values.len() < 2 {
+            continue;
+        }
+        let title = format!("{} across {} cases", limit.label, values.len());
+        let _ = write!(
+            b,
+            "<figure>{}<figcaption>{}</figcaption></figure>",
+            histogram::svg(&title, &values, unit, bound),
+            escape(&title)
+        );
+    }
 }
 
 fn worst_table(b: &mut String, dir: &Path, records: &[CaseRecord]) {

@@ -12,8 +12,8 @@ use schemars::JsonSchema;
 use serde::Deserialize;
 
 use crate::units::{
-    Amperes, AmperesPerSecond, Farads, Henries, Hertz, Ohms, Ratio, Seconds, SquareMetres, Tesla,
-    Volts, VoltsPerSecond, Watts,
+    Amperes, AmperesPerSecond, Coulombs, CubicMetres, Farads, Henries, Hertz, Joules, Ohms, Ratio,
+    Seconds, SquareMetres, Tesla, Volts, VoltsPerSecond, Watts,
 };
 
 /// A stepflux scenario: one forward converter, how it is driven, what happens to it
@@ -32,6 +32,12 @@ pub struct Scenario {
     /// Free text for reports.
     #[serde(default)]
     pub description: String,
+    /// Why each value was chosen: field path → reason (free text for reports; written
+    /// by `stepflux size`).
+    #[serde(default)]
+    #[allow(dead_code)]
+    // Read by people, not by stepflux.
+    pub design_notes: BTreeMap<String, String>,
     /// The power stage.
     pub converter: Converter,
     /// How the switches are driven.
@@ -128,6 +134,24 @@ pub struct Transformer {
     /// Incremental inductance above the saturation knee; omit for a core that does not
     /// saturate in the model.
     pub saturated_inductance: Option<Henries>,
+    /// Core loss by the Steinmetz equation P = k·f^α·B̂^β·V_core, with f the switching
+    /// frequency and B̂ half the simulated peak-to-peak flux swing of each cycle (omit
+    /// for none).
+    pub core_loss: Option<CoreLoss>,
+}
+
+/// Steinmetz coefficients of the core material and the core's volume.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct CoreLoss {
+    /// Coefficient k: watts per cubic metre at 1 Hz and 1 T (a plain number).
+    pub k: Ratio,
+    /// Frequency exponent α.
+    pub alpha: Ratio,
+    /// Flux-density exponent β.
+    pub beta: Ratio,
+    /// Effective core volume Ve.
+    pub volume: CubicMetres,
 }
 
 /// A primary or clamp switch.
@@ -144,6 +168,51 @@ pub struct Switch {
     pub body_diode: Option<Diode>,
     /// Drain–source voltage rating.
     pub voltage_rating: Volts,
+    /// Transition loss of the main switch, from its rise and fall times or an energy per
+    /// transition (omit for none).
+    pub transitions: Option<Transitions>,
+    /// Gate-drive loss of the main switch, Qg·Vdrive·f (omit for none).
+    pub gate_drive: Option<GateDrive>,
+}
+
+/// How the main switch's transition loss is figured.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(rename_all = "kebab-case")]
+pub enum Transitions {
+    /// ½·V·I·t per transition from the simulated voltage and current.
+    Times(TransitionTimes),
+    /// A fixed energy per turn-on and per turn-off.
+    Energy(TransitionEnergy),
+}
+
+/// Switching times of the main switch.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct TransitionTimes {
+    /// Turn-on time (current rise, voltage fall).
+    pub rise_time: Seconds,
+    /// Turn-off time (voltage rise, current fall).
+    pub fall_time: Seconds,
+}
+
+/// Switching energies of the main switch.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct TransitionEnergy {
+    /// Energy per turn-on.
+    pub turn_on: Joules,
+    /// Energy per turn-off.
+    pub turn_off: Joules,
+}
+
+/// The main switch's gate drive.
+#[derive(Debug, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct GateDrive {
+    /// Total gate charge Qg at the drive voltage.
+    pub charge: Coulombs,
+    /// Gate drive voltage.
+    pub drive_voltage: Volts,
 }
 
 /// A diode.

@@ -7,7 +7,8 @@
 //! models leave to the caller is checked here.
 
 use stepflux_models::components::{
-    Capacitor, Diode, Inductor, InputFilter, InputSource, Load, Switch, Transformer,
+    Capacitor, CoreLoss, Diode, GateDrive, Inductor, InputFilter, InputSource, Load, Switch,
+    Transformer, Transitions,
 };
 use stepflux_models::controller::{
     Amplifier, Compensation, ControllerSpec, CurrentLimit, IsolatedFeedback, Lockout, Oscillator,
@@ -152,6 +153,20 @@ fn switch(s: &raw::Switch) -> Switch {
         output_capacitance: or_zero(s.output_capacitance, |c| c.si()),
         body_diode: s.body_diode.as_ref().map(diode),
         voltage_rating: s.voltage_rating.si(),
+        transitions: s.transitions.as_ref().map(|t| match t {
+            raw::Transitions::Times(t) => Transitions::Times {
+                rise_time: t.rise_time.si(),
+                fall_time: t.fall_time.si(),
+            },
+            raw::Transitions::Energy(e) => Transitions::Energy {
+                turn_on: e.turn_on.si(),
+                turn_off: e.turn_off.si(),
+            },
+        }),
+        gate_drive: s.gate_drive.as_ref().map(|g| GateDrive {
+            charge: g.charge.si(),
+            drive_voltage: g.drive_voltage.si(),
+        }),
     }
 }
 
@@ -191,6 +206,12 @@ pub fn design(ctx: &Ctx, c: &raw::Converter) -> Result<ForwardDesign, ScenarioEr
         core_area: t.core_area.si(),
         saturation_flux_density: t.saturation_flux_density.si(),
         saturated_inductance: t.saturated_inductance.map(|v| v.si()),
+        core_loss: t.core_loss.as_ref().map(|c| CoreLoss {
+            k: c.k.si(),
+            alpha: c.alpha.si(),
+            beta: c.beta.si(),
+            volume: c.volume.si(),
+        }),
     };
     let (reset, scheme) = match &c.reset {
         raw::Reset::ResetWinding(w) => {

@@ -34,6 +34,9 @@ pub struct Ladder {
     /// W per meter and entry (Van Loan integral over that entry's step), over z in its
     /// own order.
     pub meters: Vec<Vec<DMatrix<f64>>>,
+    /// Whether every entry is finite (a propagator overflows on a topology with a fast
+    /// unstable mode and a long rung).
+    pub finite: bool,
 }
 
 impl Ladder {
@@ -74,7 +77,9 @@ impl Ladder {
             }
         }
         let top = oscillation_limit(m, nx, grid);
+        let finite = steps.iter().all(|p| p.iter().all(|v| v.is_finite()));
         Ladder {
+            finite,
             bits,
             nz,
             nx,

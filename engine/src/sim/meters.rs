@@ -85,7 +85,7 @@ impl MeterSums {
                 self.index.insert(moved.topo.topology.0, oldest);
             }
         }
-        let entries = topo.ladder.steps.len();
+        let entries = topo.ladder().steps.len();
         self.sums.push(Sums {
             topo: Arc::clone(topo),
             sums: vec![0.0; entries * self.nz * self.nz],
@@ -109,7 +109,7 @@ impl MeterSums {
 /// Adds tr(W·S) = Σ W_ij·S_ij (both symmetric) of every entry of `s` to each meter's
 /// total.
 fn fold(s: &Sums, nz: usize, out: &mut [f64]) {
-    for (total, w) in out.iter_mut().zip(&s.topo.ladder.meters) {
+    for (total, w) in out.iter_mut().zip(&s.topo.ladder().meters) {
         for (entry, we) in w.iter().enumerate() {
             let block = &s.sums[entry * nz * nz..(entry + 1) * nz * nz];
             *total += kernel::dot(block, we.as_slice());

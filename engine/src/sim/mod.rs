@@ -5,17 +5,15 @@
 //! The stepping loop allocates nothing: every vector it touches is allocated when the
 //! simulation is built.
 
-use std::sync::Arc;
-
 use nalgebra::DVector;
 
-use crate::circuit::{Circuit, ElementId, ElementKind};
+use crate::circuit::{Circuit, ElementId};
 use crate::error::EngineError;
 use crate::event::{free_slot, EventFn, EventSlot, Sink, StepOutcome, Stop, MAX_ARMED};
 use crate::ladder::{Tick, TimeGrid};
-use crate::system::{Observation, System, TopologyData};
+use crate::run::RunState;
+use crate::system::{Observation, System};
 use crate::topology::Topology;
-use crate::waveform::Waveform;
 use meters::MeterSums;
 use sources::SourceParts;
 use spans::Spans;
@@ -74,10 +72,10 @@ struct Armed {
 
 /// A running simulation: the problem, its present state and preallocated work space.
 pub struct Simulation {
-    system: System,
+    /// The problem, state, topology and breakpoint schedule, shared with the
+    /// reference path.
+    run: RunState,
     tick: Tick,
-    z: DVector<f64>,
-    topo: Arc<TopologyData>,
     armed: [Option<Armed>; MAX_ARMED],
     /// Bumped whenever the state, topology or armed events change outside a plain
     /// step, so event values cached for a tick are known to be stale.
@@ -90,8 +88,6 @@ pub struct Simulation {
     armed_len: usize,
     sample_every: Option<Tick>,
     next_sample: Tick,
-    /// Per source: next breakpoint time (seconds) of its waveform.
-    breaks: Vec<Option<f64>>,
     next_break: Tick,
     pending_flagged: bool,
     meters: MeterSums,
@@ -107,8 +103,6 @@ pub struct Simulation {
     spans: Spans,
     sources: SourceParts,
     values: Vec<f64>,
-    visited: Vec<Topology>,
-    flipped: Vec<ElementId>,
     /// Event functions' slopes at the present state and at a step's end.
     d_lo: Vec<f64>,
     d_hi: Vec<f64>,
@@ -159,27 +153,19 @@ impl Simulation {
                 })
             }
         };
-        let mut system = System::new(circuit, observation, grid, options.cache_limit)?;
-        let topo = system.topology(initial_topology(&system))?;
-        let z = initial_state(&system);
-        let nz = z.len();
+        let system = System::new(circuit, observation, grid, options.cache_limit)?;
+        let run = RunState::new(system, 4 * MAX_ARMED)?;
+        let (system, topo) = (&run.system, &run.topo);
+        let nz = run.z.len();
         let n_rows = topo.row_count();
         let n_events = system.diode_count() + MAX_ARMED;
-        let (ext_rows, topo_events) = (topo.ladder.rows, topo.ladder.n_events);
-        let breaks = system
-            .layout
-            .sources
-            .iter()
-            .map(|s| source_waveform(&system.circuit, *s).segment(0.0).until)
-            .collect();
+        let (ext_rows, topo_events) = (topo.ladder_rows(), topo.event_rows());
         let n_meters = system.observation.meters.len();
         let n_probes = system.observation.probes.len();
         let storm_ticks = grid.tick(options.storm.window).max(1);
         let mut sim = Simulation {
-            system,
+            run,
             tick: 0,
-            z,
-            topo,
             armed: [None; MAX_ARMED],
             armed_len: 0,
             reported: Topology::default(),
@@ -187,7 +173,6 @@ impl Simulation {
             g_lo_at: None,
             sample_every,
             next_sample: 0,
-            breaks,
             next_break: Tick::MAX,
             pending_flagged: true,
             meters: MeterSums::new(n_meters, nz, options.cache_limit),
@@ -200,8 +185,6 @@ impl Simulation {
             spans: Spans::new(ext_rows, nz),
             sources: SourceParts::new(ext_rows),
             values: vec![0.0; n_rows],
-            visited: Vec::with_capacity(4 * MAX_ARMED),
-            flipped: Vec::with_capacity(4 * MAX_ARMED),
             d_lo: vec![0.0; n_events],
             d_hi: vec![0.0; n_events],
             raw_d: vec![0.0; topo_events],
@@ -223,37 +206,29 @@ impl Simulation {
     /// Present time, seconds.
     #[inline]
     pub fn time(&self) -> f64 {
-        self.system.grid.time(self.tick)
+        self.run.system.grid.time(self.tick)
     }
 
     /// The time grid.
     pub fn grid(&self) -> &TimeGrid {
-        &self.system.grid
+        &self.run.system.grid
     }
 
     /// The problem being simulated.
     #[inline]
     pub fn system(&self) -> &System {
-        &self.system
+        &self.run.system
     }
 
     /// Augmented state z = [x; 1; w; s] (see [`crate::layout`]).
     #[inline]
     pub fn state(&self) -> &DVector<f64> {
-        &self.z
+        &self.run.z
     }
 
     /// Replaces the dynamic states x (length nx) and settles the diodes.
     pub fn set_states(&mut self, x: &[f64]) -> Result<(), EngineError> {
-        let nx = self.system.layout.nx();
-        if x.len() != nx || x.iter().any(|v| !v.is_finite()) {
-            return Err(EngineError::BadOption {
-                what: "initial state length",
-                value: x.len() as f64,
-                allowed: "one finite value per state",
-            });
-        }
-        self.z.rows_mut(0, nx).copy_from_slice(x);
+        self.run.set_states(x)?;
         self.pending_flagged = true;
         self.settle()
     }
@@ -261,7 +236,7 @@ impl Simulation {
     /// Present topology.
     #[inline]
     pub fn topology(&self) -> Topology {
-        self.topo.topology
+        self.run.topo.topology
     }
 
     /// Integrals of the meters so far, in the order of the observation (formed from
@@ -274,28 +249,18 @@ impl Simulation {
     /// Present value of event signal `k` (without offset or rate).
     #[inline]
     pub fn event_signal(&self, k: usize) -> f64 {
-        self.topo.value(self.system.diode_count() + k, &self.z)
+        self.run.event_signal(k)
     }
 
     /// Present value of probe `k`.
     #[inline]
     pub fn probe(&self, k: usize) -> f64 {
-        let r = self.system.diode_count() + self.system.observation.event_signals.len() + k;
-        self.topo.value(r, &self.z)
+        self.run.probe(k)
     }
 
     /// Turns a switch on or off now, then settles the diodes.
     pub fn set_gate(&mut self, switch: ElementId, on: bool) -> Result<(), EngineError> {
-        let bit = match (
-            self.system.circuit.elements.get(switch.0),
-            self.system.layout.bit_of.get(switch.0),
-        ) {
-            (Some(e), Some(Some(bit))) if matches!(e.kind, ElementKind::Switch { .. }) => *bit,
-            _ => return Err(self.not_a("switch", switch)),
-        };
-        let t = self.topo.topology.with(bit, on);
-        if t != self.topo.topology {
-            self.topo = self.system.topology(t)?;
+        if self.run.set_gate(switch, on)? {
             self.pending_flagged = true;
             self.settle()?;
         }
@@ -310,42 +275,20 @@ impl Simulation {
         value: f64,
         slope: f64,
     ) -> Result<(), EngineError> {
-        let Some(k) = self.system.layout.sources.iter().position(|&s| s == source) else {
-            return Err(self.not_a("independent source", source));
-        };
-        if !(value.is_finite() && slope.is_finite()) {
-            return Err(EngineError::BadOption {
-                what: "source value",
-                value,
-                allowed: "finite value and slope",
-            });
-        }
-        let l = &self.system.layout;
-        let (w, s) = (l.w(k), l.s(k));
-        self.z[w] = value;
-        self.z[s] = slope;
+        self.run.set_source(source, value, slope)?;
         self.sources_changed();
         self.pending_flagged = true;
         self.settle()
     }
 
-    fn not_a(&self, what: &str, id: ElementId) -> EngineError {
-        let element = self
-            .system
-            .circuit
-            .elements
-            .get(id.0)
-            .map_or_else(|| format!("element #{}", id.0), |e| e.name.clone());
-        EngineError::BadReference {
-            element,
-            problem: format!("is not a {what}"),
-        }
-    }
-
     /// Arms an event; returns its slot.
     pub fn arm(&mut self, f: EventFn) -> Result<EventSlot, EngineError> {
-        let slot = free_slot(&f, self.system.observation.event_signals.len(), &self.armed)?;
-        let nd = self.system.diode_count();
+        let slot = free_slot(
+            &f,
+            self.run.system.observation.event_signals.len(),
+            &self.armed,
+        )?;
+        let nd = self.run.system.diode_count();
         let armed = Armed {
             f,
             row: nd + f.signal,
@@ -354,9 +297,9 @@ impl Simulation {
         self.armed_len = self.armed_len.max(slot + 1);
         if self.g_lo_at == Some((self.tick, self.generation)) {
             // The cached event values stay good: only the new slot's is missing.
-            let raw = self.topo.value(armed.row, &self.z);
+            let raw = self.run.topo.value(armed.row, &self.run.z);
             self.g_lo[nd + slot] = step::armed_value(&armed, raw, self.time());
-            let slope = self.topo.slope(armed.row, self.z.as_slice()) + f.rate;
+            let slope = self.run.topo.slope(armed.row, self.run.z.as_slice()) + f.rate;
             self.d_lo[nd + slot] = match f.direction {
                 crate::event::Direction::Rising => slope,
                 crate::event::Direction::Falling => -slope,
@@ -381,7 +324,7 @@ impl Simulation {
 
     /// Runs until `until` seconds or until an armed event crosses.
     pub fn advance(&mut self, until: f64, sink: &mut dyn Sink) -> Result<Stop, EngineError> {
-        let stop = self.system.grid.tick(until);
+        let stop = self.run.system.grid.tick(until);
         loop {
             match self.step(stop, sink)? {
                 StepOutcome::StopTime => return Ok(Stop::Reached),
@@ -395,7 +338,7 @@ impl Simulation {
 
     /// One internal step towards tick `stop`: a grid step, an event, or the stop time.
     pub fn step_to(&mut self, stop: f64, sink: &mut dyn Sink) -> Result<StepOutcome, EngineError> {
-        let stop = self.system.grid.tick(stop);
+        let stop = self.run.system.grid.tick(stop);
         self.step(stop, sink)
     }
 
@@ -411,63 +354,6 @@ impl Simulation {
             }
         }
         Ok(())
-    }
-}
-
-pub(crate) fn initial_topology(system: &System) -> Topology {
-    let mut t = Topology::default();
-    for (bit, id) in system.layout.switchable.iter().enumerate() {
-        if let ElementKind::Switch {
-            initially_on: true, ..
-        } = system.circuit.elements[id.0].kind
-        {
-            t = t.with(bit, true);
-        }
-    }
-    t
-}
-
-pub(crate) fn initial_state(system: &System) -> DVector<f64> {
-    let l = &system.layout;
-    let mut z = DVector::zeros(l.nz());
-    for (i, e) in system.circuit.elements.iter().enumerate() {
-        match (&e.kind, l.state_of[i]) {
-            (
-                ElementKind::Inductor {
-                    initial_current, ..
-                },
-                Some(k),
-            ) => z[k] = *initial_current,
-            (
-                ElementKind::Capacitor {
-                    initial_voltage, ..
-                },
-                Some(k),
-            ) => z[k] = *initial_voltage,
-            _ => {}
-        }
-    }
-    for (b, block) in system.circuit.blocks.iter().enumerate() {
-        for (k, v) in block.initial_state.iter().enumerate() {
-            z[l.block_offset[b] + k] = *v;
-        }
-    }
-    z[l.one()] = 1.0;
-    for (k, src) in l.sources.iter().enumerate() {
-        let seg = source_waveform(&system.circuit, *src).segment(0.0);
-        z[l.w(k)] = seg.value;
-        z[l.s(k)] = seg.slope;
-    }
-    z
-}
-
-/// The waveform of an independent source (layout guarantees the kind).
-pub(crate) fn source_waveform(circuit: &Circuit, id: ElementId) -> &Waveform {
-    match &circuit.elements[id.0].kind {
-        ElementKind::VoltageSource { waveform } | ElementKind::CurrentSource { waveform } => {
-            waveform
-        }
-        _ => &Waveform::Constant(0.0),
     }
 }
 
@@ -509,4 +395,3 @@ mod step;
 mod stepper;
 mod support;
 mod trace;
-pub(crate) use support::settle_diodes;

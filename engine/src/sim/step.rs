@@ -33,10 +33,10 @@ impl Simulation {
         // its drive and the stop time alone (samples inside a step are read off it
         // afterwards, see `trace.rs`).
         let target = stop.min(self.next_break);
-        let nd = self.system.diode_count();
+        let nd = self.run.system.diode_count();
         if self.g_lo_at != Some((self.tick, self.generation)) {
             let armed = &self.armed[..self.armed_len];
-            let (topo, z) = (&*self.topo, &self.z);
+            let (topo, z) = (&*self.run.topo, &self.run.z);
             for (r, v) in self.raw.iter_mut().enumerate() {
                 *v = topo.value(r, z);
             }
@@ -51,9 +51,15 @@ impl Simulation {
             );
         }
         self.start_tick = self.tick;
-        self.start_z.copy_from(&self.z);
-        let topo = Arc::clone(&self.topo);
-        let (topology, ladder) = (topo.topology, &topo.ladder);
+        self.start_z.copy_from(&self.run.z);
+        let topo = Arc::clone(&self.run.topo);
+        let (topology, ladder) = (topo.topology, topo.ladder());
+        if !ladder.finite {
+            return Err(EngineError::NonFinite {
+                time: self.time(),
+                topology: self.run.describe_topology(),
+            });
+        }
         let n = nd + self.armed_len;
         let ev = ladder.nx..ladder.u_row();
         let span = target - self.tick;
@@ -62,13 +68,13 @@ impl Simulation {
         // the span is stepped digit by digit instead so the event is located as usual.
         if span <= 1 << ladder.top && self.meters.is_empty() && Spans::worth_it(ladder, span) {
             if let Some((stacked, id)) = self.spans.get(topology, span, ladder) {
-                let z = self.z.as_slice();
+                let z = self.run.z.as_slice();
                 let b = self
                     .sources
                     .get(topology, id, ladder, stacked, &z[ladder.nx..]);
                 ladder.step(stacked, z, b, &mut self.ext);
                 let armed = &self.armed[..self.armed_len];
-                let t_hi = self.system.grid.time(self.tick + span);
+                let t_hi = self.run.system.grid.time(self.tick + span);
                 all_events(&self.ext[ev.clone()], armed, nd, t_hi, &mut self.g_hi);
                 if crossed(&self.g_lo[..n], &self.g_hi[..n]) == 0
                     && self.hidden(&topo, span, n).is_none()
@@ -88,11 +94,11 @@ impl Simulation {
                     topology,
                     entry,
                     &mut self.sources,
-                    &self.z,
+                    &self.run.z,
                     &mut self.ext,
                 );
                 let armed = &self.armed[..self.armed_len];
-                let t_hi = self.system.grid.time(self.tick + len);
+                let t_hi = self.run.system.grid.time(self.tick + len);
                 all_events(&self.ext[ev.clone()], armed, nd, t_hi, &mut self.g_hi);
                 let candidates = crossed(&self.g_lo[..n], &self.g_hi[..n]);
                 if candidates != 0 {
@@ -105,10 +111,10 @@ impl Simulation {
             }
             let (j, d) = ladder.longest_within(len);
             self.meters
-                .add(&self.topo, ladder.index(j, d), self.z.as_slice());
+                .add(&self.run.topo, ladder.index(j, d), self.run.z.as_slice());
             self.ramp = self.ramp.saturating_mul(RAMP_GROWTH);
         }
-        ladder.state_from(&self.ext, self.z.as_mut_slice());
+        ladder.state_from(&self.ext, self.run.z.as_mut_slice());
         self.sources.stepped();
         std::mem::swap(&mut self.g_lo, &mut self.g_hi);
         std::mem::swap(&mut self.d_lo, &mut self.d_hi);
@@ -124,14 +130,33 @@ impl Simulation {
         })
     }
 
+    /// Moves the run by table entry (j, d) of the present topology `topo`: meters,
+    /// state, sources' part and tick; the step's output stays in `ext`.
+    fn advance_by(&mut self, topo: &Arc<TopologyData>, j: u32, d: u64) {
+        let ladder = topo.ladder();
+        let entry = ladder.index(j, d);
+        self.meters.add(topo, entry, self.run.z.as_slice());
+        table_step(
+            ladder,
+            topo.topology,
+            entry,
+            &mut self.sources,
+            &self.run.z,
+            &mut self.ext,
+        );
+        ladder.state_from(&self.ext, self.run.z.as_mut_slice());
+        self.sources.stepped();
+        self.tick += ladder.ticks(j, d);
+    }
+
     /// Whether an event function that is ≤ 0 at both ends of the step just computed
     /// (`self.ext`, `len` ticks) may have crossed zero and come back inside it; if so,
     /// a shorter step to try instead. Fills `d_hi` with every function's slope at the
     /// step's end. See [`hidden_crossing`] for the test and why it suffices.
     fn hidden(&mut self, topo: &TopologyData, len: Tick, n: usize) -> Option<Tick> {
-        let ladder = &topo.ladder;
+        let ladder = topo.ladder();
         ladder.state_from(&self.ext, &mut self.peek_z);
-        let nd = self.system.diode_count();
+        let nd = self.run.system.diode_count();
         let armed = &self.armed[..self.armed_len];
         all_slopes(
             topo,
@@ -141,7 +166,7 @@ impl Simulation {
             &mut self.raw_d,
             &mut self.d_hi,
         );
-        let q = self.system.grid.quantum;
+        let q = self.run.system.grid.quantum;
         let h = len as f64 * q;
         let mut shortest: Option<f64> = None;
         for i in 0..n {
@@ -171,16 +196,16 @@ impl Simulation {
     ) -> Result<StepOutcome, EngineError> {
         // Only the functions that crossed over the whole step can cross first, so only
         // they are evaluated on the way down; each is ≤ 0 at the bracket's left end.
-        let nd = self.system.diode_count();
-        let ladder = &topo.ladder;
-        let armed = &self.armed[..self.armed_len];
+        let nd = self.run.system.diode_count();
+        let ladder = topo.ladder();
         for j in (0..=j0).rev() {
             let (mut lo, mut hi) = (0, if j == j0 { d0 } else { 1 << ladder.bits });
+            let armed = &self.armed[..self.armed_len];
             while hi - lo > 1 {
                 let mid = (lo + hi) / 2;
                 let entry = ladder.index(j, mid);
-                let t_mid = self.system.grid.time(self.tick + ladder.ticks(j, mid));
-                let z = self.z.as_slice();
+                let t_mid = self.run.system.grid.time(self.tick + ladder.ticks(j, mid));
+                let z = self.run.z.as_slice();
                 let rows = |r| ladder.event_ahead(entry, r, z);
                 event_values(rows, armed, nd, t_mid, &mut self.g_mid, candidates);
                 if positive(&self.g_mid, candidates) != 0 {
@@ -191,46 +216,21 @@ impl Simulation {
             }
             if lo > 0 {
                 // Crossing beyond lo·R^j: move there (the only product of this digit).
-                let entry = ladder.index(j, lo);
-                self.meters.add(&self.topo, entry, self.z.as_slice());
-                let topology = topo.topology;
-                table_step(
-                    ladder,
-                    topology,
-                    entry,
-                    &mut self.sources,
-                    &self.z,
-                    &mut self.ext,
-                );
-                ladder.state_from(&self.ext, self.z.as_mut_slice());
-                self.sources.stepped();
-                self.tick += ladder.ticks(j, lo);
+                self.advance_by(topo, j, lo);
             }
         }
-        let entry = ladder.index(0, 1);
-        let topology = topo.topology;
-        table_step(
-            ladder,
-            topology,
-            entry,
-            &mut self.sources,
-            &self.z,
-            &mut self.ext,
-        );
-        let t_hi = self.system.grid.time(self.tick + 1);
+        self.advance_by(topo, 0, 1);
+        let armed = &self.armed[..self.armed_len];
+        let t_hi = self.run.system.grid.time(self.tick);
         let raw = &self.ext[ladder.nx..];
         let rows = |r: usize| raw[r];
         event_values(rows, armed, nd, t_hi, &mut self.g_hi, candidates);
-        self.meters.add(topo, entry, self.z.as_slice());
-        ladder.state_from(&self.ext, self.z.as_mut_slice());
-        self.sources.stepped();
-        self.tick += 1;
         self.check_finite()?;
         self.read_stretch(topo, sink)?;
         let armed = (positive(&self.g_hi, candidates) >> nd) as u64;
-        self.flipped.clear();
+        self.run.flipped.clear();
         self.settle()?;
-        let diode = self.flipped.first().copied();
+        let diode = self.run.flipped.first().copied();
         self.storm
             .record(self.tick)
             .map_err(|count| self.storm_error(count))?;

@@ -67,7 +67,7 @@ impl Simulation {
     /// ([`Sink::traces`]). Every probe's value is in every trace point regardless.
     /// A probe named twice gets the union of its turning points.
     pub fn trace_probes(&mut self, probes: &[(usize, Turning)]) -> Result<(), EngineError> {
-        let n = self.system.observation.probes.len();
+        let n = self.run.system.observation.probes.len();
         if let Some(&(bad, _)) = probes.iter().find(|&&(k, _)| k >= n) {
             return Err(EngineError::BadOption {
                 what: "traced probe index",
@@ -86,7 +86,7 @@ impl Simulation {
         t.list = (0..n).filter(|&k| t.traced[k].is_some()).collect();
         t.values.iter_mut().for_each(|v| *v = f64::NAN);
         t.slopes.iter_mut().for_each(|v| *v = f64::NAN);
-        t.states = vec![0.0; n * self.z.len()];
+        t.states = vec![0.0; n * self.run.z.len()];
         t.prev_at = None;
         Ok(())
     }
@@ -129,13 +129,13 @@ impl Simulation {
             return Ok(());
         }
         let first = self.first_probe_row();
-        let n = self.system.observation.probes.len();
+        let n = self.run.system.observation.probes.len();
         self.peek_from.copy_from_slice(self.start_z.as_slice());
         let mut at = self.start_tick;
         while self.next_sample < self.tick {
             let s = self.next_sample;
             peek(
-                &topo.ladder,
+                topo.ladder(),
                 &self.peek_from,
                 s - at,
                 &mut self.peek_z,
@@ -147,7 +147,7 @@ impl Simulation {
             for k in 0..n {
                 self.values[k] = topo.value_at(first + k, &self.peek_z);
             }
-            let time = self.system.grid.time(s);
+            let time = self.run.system.grid.time(s);
             sink.sample(time, &self.values[..n], false)
                 .map_err(|message| EngineError::Sink { time, message })?;
             self.next_sample += every;
@@ -171,7 +171,7 @@ impl Simulation {
                     continue;
                 };
                 let s0 = self.trace.prev_slopes[k];
-                let s1 = topo.slope(first + k, self.z.as_slice());
+                let s1 = topo.slope(first + k, self.run.z.as_slice());
                 let wanted = match turning {
                     Turning::Maxima => s0 > 0.0 && s1 < 0.0,
                     Turning::Minima => s0 < 0.0 && s1 > 0.0,
@@ -184,13 +184,13 @@ impl Simulation {
         }
         let mut found = std::mem::take(&mut self.trace.found);
         found.sort_unstable_by_key(|&(t, k)| (t, k));
-        let nz = self.z.len();
+        let nz = self.run.z.len();
         for &(tick, k) in &found {
             let state = &self.trace.states[k * nz..(k + 1) * nz];
             self.peek_z.copy_from_slice(state);
             fill_point(topo, first, &self.peek_z, &mut self.trace);
             let point = TracePoint {
-                time: self.system.grid.time(tick),
+                time: self.run.system.grid.time(tick),
                 values: &self.trace.values,
                 slopes: &self.trace.slopes,
                 kind: TraceKind::Extremum(k),
@@ -202,7 +202,7 @@ impl Simulation {
             })?;
         }
         self.trace.found = found;
-        self.peek_z.copy_from_slice(self.z.as_slice());
+        self.peek_z.copy_from_slice(self.run.z.as_slice());
         self.trace_point(topo, sink, TraceKind::Step)
     }
 
@@ -216,8 +216,8 @@ impl Simulation {
         if !sink.traces() {
             return Ok(());
         }
-        let topo = std::sync::Arc::clone(&self.topo);
-        self.peek_z.copy_from_slice(self.z.as_slice());
+        let topo = std::sync::Arc::clone(&self.run.topo);
+        self.peek_z.copy_from_slice(self.run.z.as_slice());
         self.trace_point(&topo, sink, kind)
     }
 
@@ -249,7 +249,7 @@ impl Simulation {
     /// Locates where probe `k`'s slope, `s0` at the step's start and `s1` at its end,
     /// changes sign; records the tick and the state there in `trace.found`.
     fn find_extremum(&mut self, topo: &TopologyData, k: usize, s0: f64, s1: f64) {
-        let ladder = &topo.ladder;
+        let ladder = topo.ladder();
         let row = self.first_probe_row() + k;
         let n = self.tick - self.start_tick;
         let width = (n >> EXTREMUM_BRACKET_SHIFT).max(1);
@@ -292,7 +292,7 @@ impl Simulation {
             let m = ((hi - lo) as f64 * frac)
                 .round()
                 .clamp(1.0, (hi - lo - 1) as f64) as Tick;
-            let ladder = &topo.ladder;
+            let ladder = topo.ladder();
             peek(
                 ladder,
                 &self.peek_from,
@@ -324,7 +324,7 @@ impl Simulation {
             self.peek_z.copy_from_slice(&self.peek_from);
         } else {
             peek(
-                &topo.ladder,
+                topo.ladder(),
                 &self.peek_from,
                 at - lo,
                 &mut self.peek_z,
@@ -332,13 +332,13 @@ impl Simulation {
                 &mut self.peek_b,
             );
         }
-        let nz = self.z.len();
+        let nz = self.run.z.len();
         self.trace.states[k * nz..(k + 1) * nz].copy_from_slice(&self.peek_z);
         self.trace.found.push((self.start_tick + at, k));
     }
 
     fn first_probe_row(&self) -> usize {
-        self.system.diode_count() + self.system.observation.event_signals.len()
+        self.run.system.diode_count() + self.run.system.observation.event_signals.len()
     }
 }
 

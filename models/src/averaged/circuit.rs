@@ -22,7 +22,7 @@ use stepflux_engine::{
 };
 
 use super::operating::{OperatingPoint, StageParameters};
-use crate::controller::ControllerSpec;
+use crate::controller::{error_amplifier, ControllerSpec};
 use crate::error::ModelError;
 use crate::template::{ForwardDesign, Net};
 
@@ -117,8 +117,9 @@ pub(crate) fn build(
     })
 }
 
-/// Divider, reference and error amplifier as the controller builds them; returns the
-/// reference source and the amplifier output node.
+/// The controller's own voltage loop (divider, reference and error amplifier), the
+/// reference held constant and the amplifier starting at the operating point; returns
+/// the reference source and the amplifier output node.
 fn voltage_loop(
     net: &mut Net,
     spec: &ControllerSpec,
@@ -126,23 +127,16 @@ fn voltage_loop(
     op: &OperatingPoint,
 ) -> Result<(ElementId, NodeId), ModelError> {
     let v = &spec.voltage_loop;
-    let fb = net.node("ctl.fb");
-    net.circuit().resistor("ctl.rtop", out, fb, v.divider_top)?;
-    net.circuit()
-        .resistor("ctl.rbot", fb, NodeId::GROUND, v.divider_bottom)?;
-    let ref_node = net.node("ctl.ref");
-    let reference = net.circuit().voltage_source(
-        "ctl.vref",
+    let (fb, reference, ref_node) = v.build_sense(net, out, Waveform::Constant(v.reference))?;
+    let ea = error_amplifier(
+        net,
+        "ctl.ea",
+        fb,
         ref_node,
-        NodeId::GROUND,
-        Waveform::Constant(v.reference),
+        &v.amplifier,
+        &v.compensation,
+        op.control_voltage,
     )?;
-    let minus = net.node("ctl.ea.minus");
-    let ea = v
-        .amplifier
-        .build(net, "ctl.ea", fb, minus, op.control_voltage)?;
-    v.compensation
-        .build(net, "ctl.ea.comp", ref_node, minus, ea)?;
     Ok((reference, ea))
 }
 

@@ -18,7 +18,7 @@ pub mod amplifier;
 pub mod isolated;
 pub mod modulator;
 
-use stepflux_engine::{DiodeParams, NodeId, Quantity, Signal, Waveform};
+use stepflux_engine::{DiodeParams, ElementId, NodeId, Quantity, Signal, Waveform};
 
 pub use amplifier::{Amplifier, Compensation};
 pub use isolated::IsolatedFeedback;
@@ -69,6 +69,27 @@ impl VoltageLoop {
     /// Output voltage the loop regulates to: Vref·(1 + Rtop/Rbot).
     pub fn set_point(&self) -> f64 {
         self.reference * (1.0 + self.divider_top / self.divider_bottom)
+    }
+
+    /// Divider from `out` and the reference source driven by `reference`; returns the
+    /// sense node, the reference source and its node. The switching model and the
+    /// averaged model both build their voltage loop from this and [`error_amplifier`].
+    pub(crate) fn build_sense(
+        &self,
+        net: &mut Net,
+        out: NodeId,
+        reference: Waveform,
+    ) -> Result<(NodeId, ElementId, NodeId), ModelError> {
+        let fb = net.node("ctl.fb");
+        net.circuit()
+            .resistor("ctl.rtop", out, fb, self.divider_top)?;
+        net.circuit()
+            .resistor("ctl.rbot", fb, NodeId::GROUND, self.divider_bottom)?;
+        let ref_node = net.node("ctl.ref");
+        let source =
+            net.circuit()
+                .voltage_source("ctl.vref", ref_node, NodeId::GROUND, reference)?;
+        Ok((fb, source, ref_node))
     }
 }
 
@@ -223,18 +244,11 @@ impl ControllerSpec {
             .ok_or_else(|| ModelError::Infeasible("converter has no 'out' node".into()))?;
         let mut net = Net::from_circuit(conv.circuit.clone());
         let v = &self.voltage_loop;
-        let fb = net.node("ctl.fb");
-        net.circuit().resistor("ctl.rtop", out, fb, v.divider_top)?;
-        net.circuit()
-            .resistor("ctl.rbot", fb, NodeId::GROUND, v.divider_bottom)?;
-        let ref_node = net.node("ctl.ref");
         let ramp = match v.reference_soft_start {
             t if t > 0.0 => Waveform::PiecewiseLinear(vec![(0.0, 0.0), (t, v.reference)]),
             _ => Waveform::Constant(v.reference),
         };
-        let reference = net
-            .circuit()
-            .voltage_source("ctl.vref", ref_node, NodeId::GROUND, ramp)?;
+        let (fb, reference, ref_node) = v.build_sense(&mut net, out, ramp)?;
         let control = net.node("ctl.vc");
         net.circuit()
             .resistor("ctl.pulldown", control, NodeId::GROUND, OR_PULLDOWN)?;
@@ -246,6 +260,7 @@ impl ControllerSpec {
             ref_node,
             &v.amplifier,
             &v.compensation,
+            v.amplifier.output_low,
         )?;
         let voltage_path = match &self.isolated {
             Some(iso) => {
@@ -281,7 +296,15 @@ impl ControllerSpec {
             };
             net.circuit()
                 .controlled_voltage_source("ctl.vlim", lim, NodeId::GROUND, threshold)?;
-            let ca = error_amplifier(&mut net, "ctl.ca", cs, lim, &cl.amplifier, &cl.compensation)?;
+            let ca = error_amplifier(
+                &mut net,
+                "ctl.ca",
+                cs,
+                lim,
+                &cl.amplifier,
+                &cl.compensation,
+                cl.amplifier.output_low,
+            )?;
             net.circuit().diode("ctl.or_i", ca, control, OR_DIODE)?;
             probes.push(probe(
                 "ctl.ca.v",
@@ -297,19 +320,21 @@ impl ControllerSpec {
     }
 }
 
-/// An amplifier sensing `sense` against `reference` through its compensation. It
-/// starts at its lower limit, as an amplifier whose inputs both sit at zero at power-up
-/// and whose output stage is pulled low (common practice).
-fn error_amplifier(
+/// An amplifier sensing `sense` against `reference` through its compensation, its
+/// output starting at `start` volts. The switching model starts it at its lower limit,
+/// as an amplifier whose inputs both sit at zero at power-up and whose output stage is
+/// pulled low (common practice); the averaged model at its operating point.
+pub(crate) fn error_amplifier(
     net: &mut Net,
     name: &str,
     sense: NodeId,
     reference: NodeId,
     amp: &Amplifier,
     comp: &Compensation,
+    start: f64,
 ) -> Result<NodeId, ModelError> {
     let minus = net.node(&format!("{name}.minus"));
-    let out = amp.build(net, name, sense, minus, amp.output_low)?;
+    let out = amp.build(net, name, sense, minus, start)?;
     comp.build(net, &format!("{name}.comp"), reference, minus, out)?;
     Ok(out)
 }

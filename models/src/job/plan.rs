@@ -14,9 +14,10 @@ use stepflux_engine::{Simulation, TracePoint, Turning};
 use crate::cycles::CycleRecord;
 use crate::disturbance::Disturbance;
 use crate::measure::{
-    CossTurnOn, EnergySnapshot, Figure, LossMeters, LossReport, Measurement, ResetCheck,
-    ResetLimits, Ripple, StartUp, StepResponse, StepSettings,
+    CossTurnOn, EnergySnapshot, Figure, LossMeters, LossReport, Measurement, PartLosses,
+    ResetCheck, ResetLimits, Ripple, StartUp, StepResponse, StepSettings,
 };
+use crate::run::ConverterRun;
 use crate::template::Probe;
 use crate::ModelError;
 
@@ -39,6 +40,7 @@ pub struct Plan {
     ripple: Vec<Ripple>,
     reset: ResetCheck,
     coss: CossTurnOn,
+    parts: PartLosses,
     /// Steady window, seconds.
     pub window: (f64, f64),
     losses: Option<LossMeters>,
@@ -163,12 +165,14 @@ impl Plan {
             window.0,
             sample_end,
         );
+        let parts = PartLosses::new(&job.design, probes, window.0, sample_end)?;
         Ok(Plan {
             startup,
             steps,
             ripple,
             reset: ResetCheck::new(&job.design, probes, ResetLimits::for_design(&job.design))?,
             coss,
+            parts,
             window,
             losses,
             snapshots: (None, None),
@@ -187,6 +191,17 @@ impl Plan {
             }
         }
         Ok(())
+    }
+
+    /// Lets the modelled part losses see the main switch of `run` (its topology bit).
+    pub fn watch_main_switch(&mut self, run: &ConverterRun) {
+        let layout = run.sim.system().layout();
+        let bit = run
+            .key
+            .main_switches
+            .first()
+            .and_then(|e| layout.bit_of[e.index()]);
+        self.parts.watch_switch(bit);
     }
 
     fn parts(&mut self) -> Vec<&mut dyn Measurement> {
@@ -211,6 +226,9 @@ impl Plan {
         for m in self.parts() {
             m.trace(point);
         }
+        if self.parts.any() {
+            self.parts.trace(point);
+        }
     }
 
     /// Probes whose extrema the measurements read, for the run to trace.
@@ -227,6 +245,13 @@ impl Plan {
                 .filter_map(|n| probes.iter().position(|p| p.name == *n))
                 .map(|k| (k, Turning::Both)),
         );
+        if self.parts.any() {
+            for k in self.parts.probes() {
+                if !out.iter().any(|(p, _)| *p == k) {
+                    out.push((k, Turning::Maxima));
+                }
+            }
+        }
         out
     }
 
@@ -235,6 +260,7 @@ impl Plan {
         for m in self.parts() {
             m.cycle(record);
         }
+        self.parts.cycle(record);
     }
 
     /// The run ended at `time` seconds (its last cycle may be cut short there).
@@ -254,6 +280,7 @@ impl Plan {
         if let (Some(l), (Some(a), Some(b))) = (&self.losses, &self.snapshots) {
             // A window too short to hold two snapshots has no energy balance to report.
             if let Ok(report) = LossReport::between(l, a, b, coss_energy) {
+                let report = report.with_parts(self.parts.energies());
                 out.extend(report.figures(self.bias));
             }
         }

@@ -96,7 +96,8 @@ impl JobRun {
     ) -> Result<Self, ModelError> {
         let (mut driver, losses) = Driver::new(job, built)?;
         driver.start(job, steady)?;
-        let plan = Plan::new(job, driver.run_ref().probes(), Some(losses))?;
+        let mut plan = Plan::new(job, driver.run_ref().probes(), Some(losses))?;
+        plan.watch_main_switch(driver.run_ref());
         let traced = plan.traced_probes(driver.run_ref().probes());
         driver.run_mut().trace_also(&traced)?;
         Ok(JobRun {

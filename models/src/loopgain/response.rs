@@ -125,6 +125,12 @@ pub struct Margins {
 /// Points per decade of the search grid; each crossing is then bisected.
 const PER_DECADE: f64 = 200.0;
 
+/// A phase this close above −180° counts as reaching it: at fs/2 the sampled-data loop
+/// gain is real by construction (z = −1 in real matrices), so its phase is −180° but
+/// for rounding, which may fall on either side (it moved when the shooting maps
+/// dropped their energy meters).
+const PHASE_ROUNDING: f64 = 1e-9;
+
 /// An angle brought into (−π, π].
 fn wrap(a: f64) -> f64 {
     let w = a.rem_euclid(TAU);
@@ -164,10 +170,10 @@ pub fn margins(
         }
         if out.phase_crossover.is_none()
             && phase > -std::f64::consts::PI
-            && next_phase <= -std::f64::consts::PI
+            && next_phase <= -std::f64::consts::PI + PHASE_ROUNDING
         {
             let f = bisect(k, &freq, |f| {
-                Ok(phase + wrap(t(f)?.arg() - prev.arg()) > -std::f64::consts::PI)
+                Ok(phase + wrap(t(f)?.arg() - prev.arg()) > -std::f64::consts::PI + PHASE_ROUNDING)
             })?;
             out.phase_crossover = Some(f);
             out.gain_margin = Some(-20.0 * t(f)?.norm().log10());

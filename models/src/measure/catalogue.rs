@@ -287,6 +287,7 @@ pub fn all() -> impl Iterator<Item = &'static FigureDef> {
         super::ripple::FIGURES,
         super::efficiency::FIGURES,
         super::coss::FIGURES,
+        super::part_losses::FIGURES,
         super::reset_check::FIGURES,
         crate::figures::FIGURES,
     ]

@@ -6,12 +6,17 @@
 //! P_out/(P_in + P_bias) with the controller's bias power P_bias (a fixed figure the
 //! designer supplies, watts), which is why it falls at light load: the bias stays while
 //! P_out shrinks.
+//!
+//! The modelled part losses ([`super::PartLosses`]) join the account: transition and
+//! core loss are drawn from the input, so they are added to P_in and to the switch and
+//! core classes (the balance is unchanged: both sides grow alike); the gate drive is
+//! supplied with the bias, P_out/(P_in + P_gate + P_bias).
 
 use super::losses::{EnergySnapshot, LossClass, LossMeters};
+use super::part_losses::PartEnergies;
 use super::Figure;
 use super::catalogue::figures;
 use crate::error::ModelError;
-
 
 figures! {
     WINDOW_START = "energy.window_start", "s", Instant, Neither, Files,
@@ -34,6 +39,12 @@ figures! {
         "switch capacitance loss", "Main switch's output-capacitance turn-on loss, mean power.";
     SWITCH_CONDUCTION = "loss.switch.conduction", "W", Number, Higher, Files,
         "switch conduction loss", "Main switch's conduction loss, mean power.";
+    TRANSITION = "loss.switch.transition", "W", Number, Higher, Files,
+        "switch transition loss", "Main switch's turn-on and turn-off transition loss, mean power (½·V·I·t per transition, or the given energies).";
+    STEINMETZ = "loss.core.steinmetz", "W", Number, Higher, Files,
+        "core loss", "Core loss by the Steinmetz equation k·f^α·B̂^β·V per cycle, mean power.";
+    GATE_DRIVE = "loss.gate_drive", "W", Number, Higher, Files,
+        "gate drive", "Gate-drive power Qg·Vdrive·f, supplied with the bias.";
     LOSS_ELEMENT = "loss.*.*", "W", Number, Higher, Files,
         "loss", "Mean loss of one element over the steady window.";
     EFFICIENCY_STAGE = "efficiency.stage", "1", Fraction, Lower, Steady,
@@ -56,6 +67,8 @@ pub struct LossReport {
     /// Energy the main switch's Coss released at turn-on (part of
     /// [`LossClass::Switch`]), joules.
     pub coss_turn_on: f64,
+    /// Modelled part losses over the window (not in the metered elements), joules.
+    pub parts: PartEnergies,
 }
 
 impl LossReport {
@@ -85,7 +98,20 @@ impl LossReport {
             elements,
             stored_change: b.stored - a.stored,
             coss_turn_on,
+            parts: PartEnergies::default(),
         })
+    }
+
+    /// The report with the modelled part losses over the same window.
+    pub fn with_parts(mut self, parts: PartEnergies) -> Self {
+        self.parts = parts;
+        self
+    }
+
+    /// Energy of the modelled losses drawn from the input (transitions and core),
+    /// joules.
+    fn parts_from_input(&self) -> f64 {
+        self.parts.transition + self.parts.core
     }
 
     /// Window length, seconds.
@@ -93,13 +119,20 @@ impl LossReport {
         self.window.1 - self.window.0
     }
 
-    /// Energy of one class over the window, joules.
+    /// Energy of one class over the window, joules: the metered elements, and for the
+    /// input, switch and core classes the modelled transition and core losses.
     pub fn class_energy(&self, class: LossClass) -> f64 {
+        let modelled = match class {
+            LossClass::Input => self.parts_from_input(),
+            LossClass::Switch => self.parts.transition,
+            LossClass::Core => self.parts.core,
+            _ => 0.0,
+        };
         self.elements
             .iter()
             .filter(|e| e.1 == class)
             // A fold from +0, not `sum`, whose empty value is −0.
-            .fold(0.0, |acc, e| acc + e.2)
+            .fold(modelled, |acc, e| acc + e.2)
     }
 
     /// Average power of one class, watts.
@@ -126,9 +159,16 @@ impl LossReport {
             .sum()
     }
 
-    /// Main-switch conduction: the switch class minus the Coss turn-on energy, watts.
+    /// Main-switch conduction: the switch class minus the Coss turn-on energy and the
+    /// modelled transitions, watts.
     pub fn switch_conduction_power(&self) -> f64 {
-        (self.class_energy(LossClass::Switch) - self.coss_turn_on) / self.duration()
+        (self.class_energy(LossClass::Switch) - self.coss_turn_on - self.parts.transition)
+            / self.duration()
+    }
+
+    /// Gate-drive power, watts (supplied with the bias, not by the input).
+    pub fn gate_drive_power(&self) -> f64 {
+        self.parts.gate_drive / self.duration()
     }
 
     /// Average rate of change of stored energy, watts.
@@ -147,10 +187,10 @@ impl LossReport {
         self.output_power() / self.input_power()
     }
 
-    /// Whole-converter efficiency with a fixed controller bias power `bias` watts:
-    /// P_out/(P_in + P_bias).
+    /// Whole-converter efficiency with a fixed controller bias power `bias` watts and
+    /// the gate drive: P_out/(P_in + P_gate + P_bias).
     pub fn efficiency_with_bias(&self, bias: f64) -> f64 {
-        self.output_power() / (self.input_power() + bias)
+        self.output_power() / (self.input_power() + self.gate_drive_power() + bias)
     }
 
     /// Every figure: powers, losses by class and element, balance, efficiencies.
@@ -169,6 +209,9 @@ impl LossReport {
         }
         f.push(COSS_TURN_ON.of(self.coss_turn_on / self.duration()));
         f.push(SWITCH_CONDUCTION.of(self.switch_conduction_power()));
+        f.push(TRANSITION.of(self.parts.transition / self.duration()));
+        f.push(STEINMETZ.of(self.parts.core / self.duration()));
+        f.push(GATE_DRIVE.of(self.gate_drive_power()));
         for (name, class, e) in self.elements.iter().filter(|e| e.1.is_loss()) {
             f.push(LOSS_ELEMENT.scoped(&[class.name(), name], e / self.duration()));
         }

@@ -27,7 +27,8 @@ pub enum LossClass {
     /// current sink.
     Output,
     /// Primary switches `sw`, `sw.hi`, `aux` (channel v·i, which includes the
-    /// discharge of their output capacitance at turn-on).
+    /// discharge of their output capacitance at turn-on), and in a [`super::LossReport`]
+    /// the main switch's modelled transition loss.
     Switch,
     /// Every diode of the power stage: rectifier, freewheel, reset, clamp, body.
     Diode,
@@ -43,7 +44,8 @@ pub enum LossClass {
     InputStage,
     /// The controller's output voltage divider.
     FeedbackDivider,
-    /// Switches of the saturation knee model.
+    /// Switches of the saturation knee model, and in a [`super::LossReport`] the
+    /// modelled Steinmetz core loss.
     Core,
     /// Anything else in the power stage.
     Other,

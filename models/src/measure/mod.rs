@@ -26,6 +26,7 @@ pub mod reset_check;
 pub mod ripple;
 pub mod startup;
 pub mod step;
+pub mod part_losses;
 mod tee;
 mod window;
 
@@ -33,6 +34,7 @@ pub use catalogue::{Figure, FigureDef, Kind, Section, Value, Worse};
 pub use coss::CossTurnOn;
 pub use efficiency::LossReport;
 pub use losses::{EnergySnapshot, LossClass, LossMeters};
+pub use part_losses::{PartEnergies, PartLosses};
 pub use reset_check::{Criterion, CycleCheck, ResetCheck, ResetLimits, ResetVerdict};
 pub use ripple::{Ripple, RippleResult};
 pub use startup::{StartUp, StartUpResult};

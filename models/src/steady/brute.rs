@@ -43,3 +43,30 @@ pub fn settle<M: PeriodMap>(
     }
     Ok(Settled { x, norm, work })
 }
+
+/// Runs plain periods from `x0` until every state is within `tol` of `target` (a fixed
+/// point found otherwise, e.g. by shooting) or `max_periods` have run: the periods
+/// brute force needs to be as close to the steady state as the shooting result is.
+/// Unlike [`settle`]'s stop rule this cannot stop early on a slow mode, so it is the
+/// fair count for comparisons; it needs the answer, so it is for benchmarks and tests.
+pub fn settle_to<M: PeriodMap>(
+    map: &mut M,
+    x0: Vec<f64>,
+    target: &[f64],
+    tol: &Tolerance,
+    max_periods: usize,
+) -> Result<Settled, ModelError> {
+    let mut x = x0;
+    let mut work = Counter::default();
+    let distance = |x: &[f64], names: &[super::names::StateName]| {
+        let r: Vec<f64> = x.iter().zip(target).map(|(a, b)| a - b).collect();
+        tol.norm(names, target, &r)
+    };
+    let mut norm = distance(&x, map.names());
+    while norm > 1.0 && work.periods < max_periods {
+        x = map.apply(&x)?;
+        work.periods += 1;
+        norm = distance(&x, map.names());
+    }
+    Ok(Settled { x, norm, work })
+}

@@ -209,7 +209,7 @@ impl ForwardDesign {
                 high_side,
                 clamp_diode,
             } => {
-                high_side.validate("reset.high_side")?;
+                high_side.validate_other("reset.high_side")?;
                 clamp_diode.validate("reset.clamp_diode")
             }
             ResetScheme::ActiveClamp {
@@ -217,7 +217,7 @@ impl ForwardDesign {
                 capacitor,
                 ..
             } => {
-                aux_switch.validate("reset.aux_switch")?;
+                aux_switch.validate_other("reset.aux_switch")?;
                 positive("reset.capacitor.capacitance", capacitor.capacitance)
             }
         }
