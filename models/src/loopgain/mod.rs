@@ -40,12 +40,14 @@
 //! ∠T there (phase unwrapped from the lowest frequency), gain margin −20·log₁₀|T| where
 //! the phase first falls through −180°.
 
+mod injection;
 mod response;
 #[cfg(test)]
 mod tests;
 
 use nalgebra::{DMatrix, DVector};
 
+pub use injection::{commensurate, inject, inject_at, InjectionOptions, InjectionPoint};
 pub use response::{log_grid, margins, Bode, BodePoint, Margins};
 
 use crate::controller::ControllerSpec;
@@ -198,8 +200,17 @@ pub fn sampled_model(
     spec: &ControllerSpec,
     opts: &LinearOptions,
 ) -> Result<(SteadyState, SampledModel), SteadyError> {
-    let mut map = ClosedLoopMap::new(design, spec, trial_options(spec.clock_period()))?;
+    let mut map = loop_map(design, spec)?;
     let steady = shoot(&mut map, &ShootingOptions::default())?;
     let model = linearise(&mut map, spec, &steady, opts)?;
     Ok((steady, model))
+}
+
+/// The closed loop as [`sampled_model`] and [`inject`] run it: soft starts over, on the
+/// trial grid. One per thread when frequencies are injected in parallel.
+pub fn loop_map(
+    design: &ForwardDesign,
+    spec: &ControllerSpec,
+) -> Result<ClosedLoopMap, ModelError> {
+    ClosedLoopMap::new(design, spec, trial_options(spec.clock_period()))
 }
