@@ -77,6 +77,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
         }),
         Command::Loop {
             scenario,
+            method,
             points,
             from,
             to,
@@ -84,6 +85,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             out,
         } => loop_cmd::run(&loop_cmd::LoopArgs {
             scenario,
+            method,
             points,
             from,
             to,

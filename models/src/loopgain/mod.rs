@@ -48,7 +48,7 @@ mod tests;
 use nalgebra::{DMatrix, DVector};
 
 pub use injection::{commensurate, inject, inject_at, InjectionOptions, InjectionPoint};
-pub use response::{log_grid, margins, Bode, BodePoint, Margins};
+pub use response::{log_grid, margins, margins_on_grid, Bode, BodePoint, Margins};
 
 use crate::controller::ControllerSpec;
 use crate::cycles::CycleRecord;
