@@ -401,3 +401,44 @@ pub fn report_text(r: &LoopReport) -> String {
     }
     out
 }
+
+/// The loop figures of a run whose limits ask for them: crossover (`loop.crossover`,
+/// Hz), phase margin (`loop.phase_margin_deg`, °) and gain margin
+/// (`loop.gain_margin_db`, dB) of the sampled-data loop gain at the steady state, read
+/// from fs/1000 to fs/2. A figure that cannot be read (no controller, no steady state,
+/// no crossing in range) is null with the reason.
+pub fn loop_figures(job: &Job) -> Vec<crate::report::Figure> {
+    let read = || -> Result<Margins> {
+        let Drive::Controller(spec) = &job.drive else {
+            bail!("the scenario runs open loop, so it has no loop gain");
+        };
+        let (_, m) = sampled_model(&job.design, spec, &LinearOptions::default())
+            .map_err(|e| anyhow!(e))
+            .context("linearising the period map at the steady state")?;
+        let fs = 1.0 / m.period;
+        Ok(margins(fs / 1000.0, fs / 2.0, |f| Ok(m.at(f)?.loop_gain))?)
+    };
+    let (values, why) = match read() {
+        Ok(m) => ([m.crossover, m.phase_margin, m.gain_margin], None),
+        Err(e) => ([None; 3], Some(crate::text::one_line(&e))),
+    };
+    let names = [
+        ("loop.crossover", "Hz"),
+        ("loop.phase_margin_deg", "°"),
+        ("loop.gain_margin_db", "dB"),
+    ];
+    names
+        .iter()
+        .zip(values)
+        .map(|(&(name, unit), value)| crate::report::Figure {
+            name: name.into(),
+            value,
+            unit: unit.into(),
+            reason: value.is_none().then(|| {
+                why.clone().unwrap_or_else(|| {
+                    "no crossing between fs/1000 and fs/2 (the loop gain stays on one side)".into()
+                })
+            }),
+        })
+        .collect()
+}

@@ -356,7 +356,10 @@ pub fn run_job_with(
     let file_result = file.map_or(Ok(()), |f| f.finish());
     let simulated = driver.run_ref().sim.time();
     plan.end_of_run(simulated);
-    let measurements: Vec<Figure> = plan.figures().into_iter().map(Figure::from).collect();
+    let mut measurements: Vec<Figure> = plan.figures().into_iter().map(Figure::from).collect();
+    if job.limits.on_loop_gain() {
+        measurements.extend(crate::loop_cmd::loop_figures(job));
+    }
     let verdicts = verdicts(job, &measurements);
     let stopped = match &outcome {
         Ok(Ended::Runaway(r)) => Some(r.to_string()),

@@ -88,6 +88,9 @@ fn limit_meaning(limit: &str) -> (&'static str, &'static str) {
         "reset_margin_percent" => ("reset margin", "%"),
         "flux_margin_percent" => ("flux margin", "%"),
         "efficiency_percent" => ("efficiency", "%"),
+        "phase_margin_degrees" => ("phase margin", "°"),
+        "gain_margin_db" => ("gain margin", "dB"),
+        "crossover_min" | "crossover_max" => ("loop crossover", "Hz"),
         _ => ("limit", "1"),
     }
 }

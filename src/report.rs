@@ -215,6 +215,30 @@ pub fn verdicts(job: &Job, m: &[Figure]) -> Vec<Verdict> {
         "min",
     );
     check(
+        "phase_margin_degrees",
+        get("loop.phase_margin_deg"),
+        l.phase_margin_degrees,
+        "min",
+    );
+    check(
+        "gain_margin_db",
+        get("loop.gain_margin_db"),
+        l.gain_margin_db,
+        "min",
+    );
+    check(
+        "crossover_min",
+        get("loop.crossover"),
+        l.crossover_min,
+        "min",
+    );
+    check(
+        "crossover_max",
+        get("loop.crossover"),
+        l.crossover_max,
+        "max",
+    );
+    check(
         "efficiency_percent",
         get("efficiency.stage").map(|e| 100.0 * e),
         l.efficiency_percent,
