@@ -250,11 +250,12 @@ pub fn margins_on_grid(points: &[(f64, C64)]) -> Margins {
     // A sampled-data loop gain is real at fs/2: a last point whose phase is −180° to
     // within the extraction's error (0.5°) is the phase crossover.
     let last = points.len().wrapping_sub(1);
-    if out.phase_crossover.is_none() && !points.is_empty() {
-        if (phase[last] + pi).abs() <= 0.5f64.to_radians() {
-            out.phase_crossover = Some(points[last].0);
-            out.gain_margin = Some(-db[last]);
-        }
+    if out.phase_crossover.is_none()
+        && !points.is_empty()
+        && (phase[last] + pi).abs() <= 0.5f64.to_radians()
+    {
+        out.phase_crossover = Some(points[last].0);
+        out.gain_margin = Some(-db[last]);
     }
     out
 }
