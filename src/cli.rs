@@ -100,12 +100,15 @@ pub enum Command {
     /// Loop gain, crossover and margins at the steady state, switching and averaged model.
     #[command(
         after_help = "Example:\n  stepflux loop scenarios/demo-startup.json --points 200\n  \
-        stepflux loop scenarios/demo-startup.json --from 1kHz --to 75kHz --json\n\n\
+        stepflux loop scenarios/demo-startup.json --from 1kHz --to 75kHz --json\n  \
+        stepflux loop scenarios/demo-startup.json --method both --points 40\n\n\
         The loop is broken in series at the modulator's control input (between the error \
         amplifier output and the PWM comparator). The switching model's period map is \
         linearised at its periodic steady state (a sampled-data model, evaluated at \
         z = exp(j2πf/fs)); the state-space-averaged model of the same design and \
-        compensator is shown beside it. Writes DIR/<name>-loop/ with loop.csv and \
+        compensator is shown beside it. With --method injected or both, a small sinusoid \
+        is injected at the same point into the switching simulation at each frequency \
+        (the grid moved to frequencies commensurate with the switching period). Writes DIR/<name>-loop/ with loop.csv and \
         loop.json (hertz, dB, degrees) and loop.svg (Bode plot: switching model solid, \
         averaged dashed, crossover and margins marked). Exits 2 for an open-loop \
         scenario or a bad range, 3 when there is no steady state."
@@ -114,6 +117,11 @@ pub enum Command {
         /// Scenario file (JSON; see `stepflux schema`).
         #[arg(value_name = "SCENARIO")]
         scenario: PathBuf,
+        /// Switching-model method: sampled (a, the period map's linearisation), injected
+        /// (b, sinusoidal injection into the switching simulation, frequencies in
+        /// parallel), or both.
+        #[arg(long, value_enum, default_value = "sampled")]
+        method: crate::loop_cmd::Method,
         /// Frequencies on the logarithmic grid.
         #[arg(long, value_name = "N", default_value_t = 100)]
         points: usize,

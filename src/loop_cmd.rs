@@ -1,8 +1,13 @@
-//! `stepflux loop SCENARIO [--points N] [--from F] [--to F] [--json]`: the loop gain of
-//! a scenario's controller at its steady operating point, from the switching model's
-//! sampled-data linearisation ([`stepflux_models::loopgain`]) and beside it from the
-//! state-space-averaged model ([`stepflux_models::averaged`]) of the same design and
-//! compensator. The loop is broken at the modulator's control input.
+//! `stepflux loop SCENARIO [--method sampled|injected|both] [--points N] [--from F]
+//! [--to F] [--json]`: the loop gain of a scenario's controller at its steady operating
+//! point from the switching model, by its sampled-data linearisation and/or by
+//! sinusoidal injection into the switching simulation ([`stepflux_models::loopgain`];
+//! injected frequencies run in parallel here, the models crate stays single-threaded),
+//! and beside them from the state-space-averaged model ([`stepflux_models::averaged`])
+//! of the same design and compensator. The loop is broken at the modulator's control
+//! input. With injection the grid is moved to frequencies commensurate with the
+//! switching period ([`stepflux_models::loopgain::commensurate`]) and every model is
+//! evaluated there.
 //!
 //! Writes `DIR/<name>-loop/`: `loop.csv` and `loop.json` (SI units, degrees and dB) and
 //! `loop.svg` (Bode plot), and prints crossover and margins.
@@ -11,11 +16,15 @@ use std::path::{Path, PathBuf};
 
 use anyhow::{anyhow, bail, Context, Result};
 use nalgebra::Complex;
+use rayon::prelude::*;
 use serde::Serialize;
 use stepflux_models::averaged::AveragedModel;
+use stepflux_models::controller::ControllerSpec;
 use stepflux_models::loopgain::{
-    log_grid, margins, sampled_model, Bode, LinearOptions, Margins, SampledModel,
+    commensurate, inject, log_grid, loop_map, margins, margins_on_grid, sampled_model, Bode,
+    InjectionOptions, InjectionPoint, LinearOptions, Margins, SampledModel,
 };
+use stepflux_models::steady::SteadyState;
 
 use crate::check::eng;
 use crate::exit::{Exit, ExitWith, Failure};
@@ -24,8 +33,32 @@ use crate::scenario;
 use crate::units::{self, Unit};
 use crate::writers::bode_plot;
 
+/// Which switching-model methods to run.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
+pub enum Method {
+    /// The sampled-data linearisation of the period map (fast).
+    #[value(alias = "a")]
+    Sampled,
+    /// Sinusoidal injection into the switching simulation.
+    #[value(alias = "b")]
+    Injected,
+    /// Both, side by side.
+    Both,
+}
+
+impl Method {
+    fn sampled(self) -> bool {
+        self != Method::Injected
+    }
+    fn injected(self) -> bool {
+        self != Method::Sampled
+    }
+}
+
 /// What the command was asked for.
 pub struct LoopArgs {
+    /// Switching-model methods.
+    pub method: Method,
     /// Scenario file.
     pub scenario: PathBuf,
     /// Frequencies on the grid.
@@ -80,6 +113,21 @@ pub struct Curves {
     pub margins: MarginReport,
 }
 
+/// The injected response on the grid.
+#[derive(Clone, Debug, Serialize)]
+pub struct InjectedCurves {
+    /// Loop gain magnitude, dB.
+    pub loop_gain_db: Vec<f64>,
+    /// Loop gain phase, degrees (unwrapped from the lowest frequency).
+    pub loop_gain_deg: Vec<f64>,
+    /// Injection amplitude the linearity search settled on, volts.
+    pub amplitude_v: Vec<f64>,
+    /// Switching periods simulated, all frequencies and amplitudes.
+    pub periods: usize,
+    /// Crossover and margins, interpolated between grid points.
+    pub margins: MarginReport,
+}
+
 /// The whole result.
 #[derive(Clone, Debug, Serialize)]
 pub struct LoopReport {
@@ -93,8 +141,10 @@ pub struct LoopReport {
     pub break_point: &'static str,
     /// Frequencies, hertz.
     pub frequency_hz: Vec<f64>,
-    /// The switching model's sampled-data linearisation.
-    pub sampled: Curves,
+    /// The switching model's sampled-data linearisation (None: not asked for).
+    pub sampled: Option<Curves>,
+    /// The switching model by injection (None: not asked for).
+    pub injected: Option<InjectedCurves>,
     /// The averaged model, if it applies to the design (None: why not in `averaged_error`).
     pub averaged: Option<Curves>,
     /// Why there is no averaged model.
@@ -148,16 +198,53 @@ fn range(args: &LoopArgs, fs: f64) -> Result<(f64, f64)> {
     Ok((lo, hi))
 }
 
-fn sampled(job: &Job, grid: &[f64], lo: f64, hi: f64) -> Result<(SampledModel, Curves)> {
-    let Drive::Controller(spec) = &job.drive else {
-        bail!("the loop gain needs a controller; this scenario runs open loop");
-    };
-    let (_, m) = sampled_model(&job.design, spec, &LinearOptions::default())
-        .map_err(|e| anyhow!(e))
-        .context("linearising the period map at the steady state")?;
+fn sampled(m: &SampledModel, grid: &[f64], lo: f64, hi: f64) -> Result<Curves> {
     let bode = m.bode(grid)?;
     let mg = margins(lo, hi, |f| Ok(m.at(f)?.loop_gain))?;
-    Ok((m, curves(&bode, mg)))
+    Ok(curves(&bode, mg))
+}
+
+/// The grid moved to commensurate frequencies, duplicates dropped.
+fn commensurate_grid(grid: &[f64], fs: f64) -> Vec<f64> {
+    let opts = InjectionOptions::default();
+    let mut out: Vec<f64> = grid
+        .iter()
+        .map(|&f| {
+            let (m, n) = commensurate(f, fs, opts.short_window);
+            m as f64 * fs / n as f64
+        })
+        .collect();
+    out.dedup_by(|a, b| (*a / *b - 1.0).abs() < 1e-12);
+    out
+}
+
+/// Each frequency on its own closed loop, in parallel (one map per worker).
+fn injected(
+    job: &Job,
+    spec: &ControllerSpec,
+    steady: &SteadyState,
+    grid: &[f64],
+) -> Result<InjectedCurves> {
+    let opts = InjectionOptions::default();
+    let points: Vec<InjectionPoint> = grid
+        .par_iter()
+        .map_init(
+            || loop_map(&job.design, spec),
+            |map, &f| -> Result<InjectionPoint> {
+                let map = map.as_mut().map_err(|e| anyhow!("{e}"))?;
+                inject(map, spec, steady, f, &opts)
+                    .with_context(|| format!("injecting at {}", eng(f, "Hz")))
+            },
+        )
+        .collect::<Result<_>>()?;
+    let t: Vec<(f64, Complex<f64>)> = points.iter().map(|p| (p.frequency, p.loop_gain)).collect();
+    Ok(InjectedCurves {
+        loop_gain_db: t.iter().map(|(_, c)| 20.0 * c.norm().log10()).collect(),
+        loop_gain_deg: unwrap_deg(t.iter().map(|(_, c)| *c)),
+        amplitude_v: points.iter().map(|p| p.amplitude).collect(),
+        periods: points.iter().map(|p| p.periods).sum(),
+        margins: margins_on_grid(&t).into(),
+    })
 }
 
 fn averaged(job: &Job, grid: &[f64], lo: f64, hi: f64) -> Result<Curves> {
@@ -181,8 +268,22 @@ pub fn analyse(job: &Job, args: &LoopArgs) -> Result<LoopReport, Failure> {
     };
     let fs = spec.oscillator.frequency;
     let (lo, hi) = range(args, fs).exit_with(Exit::BadInput)?;
-    let grid = log_grid(lo, hi, args.points);
-    let (m, s) = sampled(job, &grid, lo, hi).exit_with(Exit::SimulationFailed)?;
+    let mut grid = log_grid(lo, hi, args.points);
+    if args.method.injected() {
+        grid = commensurate_grid(&grid, fs);
+    }
+    let (steady, m) = sampled_model(&job.design, spec, &LinearOptions::default())
+        .map_err(|e| anyhow!(e))
+        .context("linearising the period map at the steady state")
+        .exit_with(Exit::SimulationFailed)?;
+    let sampled = match args.method.sampled() {
+        true => Some(sampled(&m, &grid, lo, hi).exit_with(Exit::SimulationFailed)?),
+        false => None,
+    };
+    let injected = match args.method.injected() {
+        true => Some(injected(job, spec, &steady, &grid).exit_with(Exit::SimulationFailed)?),
+        false => None,
+    };
     let (averaged, averaged_error) = match averaged(job, &grid, lo, hi) {
         Ok(c) => (Some(c), None),
         Err(e) => (None, Some(format!("{e:#}"))),
@@ -193,7 +294,8 @@ pub fn analyse(job: &Job, args: &LoopArgs) -> Result<LoopReport, Failure> {
         duty: m.duty,
         break_point: BREAK_POINT,
         frequency_hz: grid,
-        sampled: s,
+        sampled,
+        injected,
         averaged,
         averaged_error,
     })
@@ -227,30 +329,39 @@ fn write(dir: &Path, r: &LoopReport) -> Result<()> {
     bode_plot::plot(r, &dir.join("loop.svg"))
 }
 
-/// One row per frequency, SI units; empty averaged cells when there is no averaged
-/// model.
+/// One row per frequency, SI units; empty cells for a model not run or not available.
 pub fn csv(r: &LoopReport) -> String {
     let mut out = String::from(
         "frequency_hz,sampled_loop_gain_db,sampled_loop_gain_deg,\
          sampled_control_to_output_db,sampled_control_to_output_deg,\
+         injected_loop_gain_db,injected_loop_gain_deg,injected_amplitude_v,\
          averaged_loop_gain_db,averaged_loop_gain_deg,\
          averaged_control_to_output_db,averaged_control_to_output_deg\n",
     );
+    let join = |v: &[f64]| {
+        v.iter()
+            .map(|v| format!("{v:e}"))
+            .collect::<Vec<_>>()
+            .join(",")
+    };
     let cells = |c: Option<&Curves>, k: usize| match c {
-        Some(c) => [
+        Some(c) => join(&[
             c.loop_gain_db[k],
             c.loop_gain_deg[k],
             c.control_to_output_db[k],
             c.control_to_output_deg[k],
-        ]
-        .map(|v| format!("{v:e}"))
-        .join(","),
+        ]),
         None => ",,,".into(),
+    };
+    let injected = |c: Option<&InjectedCurves>, k: usize| match c {
+        Some(c) => join(&[c.loop_gain_db[k], c.loop_gain_deg[k], c.amplitude_v[k]]),
+        None => ",,".into(),
     };
     for (k, f) in r.frequency_hz.iter().enumerate() {
         out += &format!(
-            "{f:e},{},{}\n",
-            cells(Some(&r.sampled), k),
+            "{f:e},{},{},{}\n",
+            cells(r.sampled.as_ref(), k),
+            injected(r.injected.as_ref(), k),
             cells(r.averaged.as_ref(), k)
         );
     }
@@ -260,7 +371,7 @@ pub fn csv(r: &LoopReport) -> String {
 fn margin_line(label: &str, m: &MarginReport) -> String {
     let opt = |v: Option<f64>, f: &dyn Fn(f64) -> String| v.map_or("-".to_string(), f);
     format!(
-        "  {label:<10} crossover {:>10}  phase margin {:>7}  gain margin {:>8} (at {})\n",
+        "  {label:<9} crossover {:>10}  phase margin {:>7}  gain margin {:>8} (at {})\n",
         opt(m.crossover_hz, &|v| eng(v, "Hz")),
         opt(m.phase_margin_deg, &|v| format!("{v:.1}°")),
         opt(m.gain_margin_db, &|v| format!("{v:.1} dB")),
@@ -277,11 +388,56 @@ pub fn report_text(r: &LoopReport) -> String {
         eng(r.switching_frequency_hz, "Hz"),
         "at the modulator's control input"
     );
-    out += &margin_line("sampled", &r.sampled.margins);
+    if let Some(c) = &r.sampled {
+        out += &margin_line("sampled", &c.margins);
+    }
+    if let Some(c) = &r.injected {
+        out += &margin_line("injected", &c.margins);
+    }
     match (&r.averaged, &r.averaged_error) {
         (Some(a), _) => out += &margin_line("averaged", &a.margins),
-        (None, Some(e)) => out += &format!("  averaged   not available: {e}\n"),
+        (None, Some(e)) => out += &format!("  averaged  not available: {e}\n"),
         (None, None) => {}
     }
     out
+}
+
+/// The loop figures of a run whose limits ask for them: crossover (`loop.crossover`,
+/// Hz), phase margin (`loop.phase_margin_deg`, °) and gain margin
+/// (`loop.gain_margin_db`, dB) of the sampled-data loop gain at the steady state, read
+/// from fs/1000 to fs/2. A figure that cannot be read (no controller, no steady state,
+/// no crossing in range) is null with the reason.
+pub fn loop_figures(job: &Job) -> Vec<crate::report::Figure> {
+    use stepflux_models::loopgain;
+    let read = || -> Result<Margins> {
+        let Drive::Controller(spec) = &job.drive else {
+            bail!("the scenario runs open loop, so it has no loop gain");
+        };
+        let (_, m) = sampled_model(&job.design, spec, &LinearOptions::default())
+            .map_err(|e| anyhow!(e))
+            .context("linearising the period map at the steady state")?;
+        let fs = 1.0 / m.period;
+        Ok(margins(fs / 1000.0, fs / 2.0, |f| Ok(m.at(f)?.loop_gain))?)
+    };
+    let (values, why) = match read() {
+        Ok(m) => ([m.crossover, m.phase_margin, m.gain_margin], None),
+        Err(e) => ([None; 3], Some(crate::text::one_line(&e))),
+    };
+    let defs = [
+        &loopgain::CROSSOVER,
+        &loopgain::PHASE_MARGIN,
+        &loopgain::GAIN_MARGIN,
+    ];
+    defs.into_iter()
+        .zip(values)
+        .map(|(def, value)| {
+            let f = def.of(value.unwrap_or(f64::NAN));
+            match value {
+                Some(_) => f,
+                None => f.because(why.clone().unwrap_or_else(|| {
+                    "no crossing between fs/1000 and fs/2 (the loop gain stays on one side)".into()
+                })),
+            }
+        })
+        .collect()
 }

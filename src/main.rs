@@ -78,6 +78,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
         }),
         Command::Loop {
             scenario,
+            method,
             points,
             from,
             to,
@@ -85,6 +86,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
             out,
         } => loop_cmd::run(&loop_cmd::LoopArgs {
             scenario,
+            method,
             points,
             from,
             to,

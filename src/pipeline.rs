@@ -10,6 +10,7 @@ use std::time::Instant;
 use anyhow::{Context, Result};
 use stepflux_models::job::build::Built;
 use stepflux_models::job::run::{JobRun, Reached, Recorder};
+use stepflux_models::job::verdict::verdicts;
 use stepflux_models::runaway::Runaway;
 
 use crate::job::{Job, Start};
@@ -140,7 +141,11 @@ fn run(
     let outcome = simulate(job, &mut run, &mut file, progress, settings.stop);
     let samples = file.as_ref().map_or(0, |f| f.samples());
     let file_result = file.map_or(Ok(()), |f| f.finish());
-    let results = run.results(job);
+    let mut results = run.results(job);
+    if job.limits.on_loop_gain() {
+        results.figures.extend(crate::loop_cmd::loop_figures(job));
+        results.verdicts = verdicts(&job.limits, &results.figures);
+    }
     let stopped = match &outcome {
         Ok(Ended::Runaway(r)) => Some(r.to_string()),
         _ => None,

@@ -674,4 +674,12 @@ pub struct Limits {
     pub flux_margin_percent: Option<Ratio>,
     /// Lowest power-stage efficiency over the final window, percent.
     pub efficiency_percent: Option<Ratio>,
+    /// Smallest phase margin of the loop gain at the steady state, degrees.
+    pub phase_margin_degrees: Option<f64>,
+    /// Smallest gain margin of the loop gain at the steady state, dB.
+    pub gain_margin_db: Option<f64>,
+    /// Lowest loop-gain crossover frequency.
+    pub crossover_min: Option<Hertz>,
+    /// Highest loop-gain crossover frequency.
+    pub crossover_max: Option<Hertz>,
 }

@@ -603,5 +603,17 @@ pub fn limits(ctx: &Ctx, l: &raw::Limits) -> Result<Limits, ScenarioError> {
         reset_margin_percent: pct("reset_margin_percent", l.reset_margin_percent, 100.0)?,
         flux_margin_percent: pct("flux_margin_percent", l.flux_margin_percent, 100.0)?,
         efficiency_percent: pct("efficiency_percent", l.efficiency_percent, 100.0)?,
+        // A margin below 0 is an unstable loop, never a useful minimum; 180° and 60 dB
+        // only catch a stray exponent.
+        phase_margin_degrees: l
+            .phase_margin_degrees
+            .map(|v| ctx.within("limits.phase_margin_degrees", v, 0.0, 180.0))
+            .transpose()?,
+        gain_margin_db: l
+            .gain_margin_db
+            .map(|v| ctx.within("limits.gain_margin_db", v, 0.0, 60.0))
+            .transpose()?,
+        crossover_min: pos("crossover_min", l.crossover_min.map(|v| v.si()))?,
+        crossover_max: pos("crossover_max", l.crossover_max.map(|v| v.si()))?,
     })
 }

@@ -1,7 +1,8 @@
 //! The Bode plot of `stepflux loop`: loop-gain magnitude (dB) above phase (degrees)
-//! against log frequency; the switching model's sampled-data curve solid, the averaged
-//! model's dashed in a second colour; crossover and the phase crossover as thin
-//! vertical lines with the margins written beside them.
+//! against log frequency; the switching model's sampled-data curve solid, its injected
+//! response as circles at the points injected, the averaged model's dashed in a third
+//! colour; crossover and the phase crossover as thin vertical lines with the margins
+//! written beside them.
 
 use std::path::Path;
 
@@ -10,10 +11,11 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 
 use crate::check::eng;
-use crate::loop_cmd::{Curves, LoopReport, MarginReport};
+use crate::loop_cmd::{Curves, InjectedCurves, LoopReport, MarginReport};
 
 const SAMPLED: RGBColor = RGBColor(0, 110, 120);
 const AVERAGED: RGBColor = RGBColor(190, 80, 20);
+const INJECTED: RGBColor = RGBColor(90, 60, 160);
 const MARK: RGBColor = RGBColor(120, 120, 120);
 
 type Panel<'a> = DrawingArea<SVGBackend<'a>, Shift>;
@@ -52,6 +54,13 @@ fn values(c: &Curves, w: Which) -> &[f64] {
     }
 }
 
+fn injected_values(c: &InjectedCurves, w: Which) -> &[f64] {
+    match w {
+        Which::Magnitude => &c.loop_gain_db,
+        Which::Phase => &c.loop_gain_deg,
+    }
+}
+
 fn panel(
     area: &Panel,
     r: &LoopReport,
@@ -59,9 +68,16 @@ fn panel(
 ) -> std::result::Result<(), Box<dyn std::error::Error>> {
     let f = &r.frequency_hz;
     let (f0, f1) = (f[0], f[f.len() - 1]);
-    let all: Vec<f64> = std::iter::once(&r.sampled)
+    let all: Vec<f64> = r
+        .sampled
+        .iter()
         .chain(r.averaged.as_ref())
         .flat_map(|c| values(c, w).iter().copied())
+        .chain(
+            r.injected
+                .iter()
+                .flat_map(|c| injected_values(c, w).iter().copied()),
+        )
         .filter(|v| v.is_finite())
         .collect();
     let lo = all.iter().copied().fold(f64::INFINITY, f64::min);
@@ -98,10 +114,26 @@ fn panel(
             .zip(values(c, w).iter().copied())
             .collect()
     };
-    chart
-        .draw_series(LineSeries::new(pts(&r.sampled), SAMPLED.stroke_width(2)))?
-        .label("switching model (sampled-data)")
-        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], SAMPLED.stroke_width(2)));
+    if let Some(c) = &r.sampled {
+        chart
+            .draw_series(LineSeries::new(pts(c), SAMPLED.stroke_width(2)))?
+            .label("switching model (sampled-data)")
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], SAMPLED.stroke_width(2)));
+    }
+    if let Some(c) = &r.injected {
+        let at: Vec<(f64, f64)> = f
+            .iter()
+            .copied()
+            .zip(injected_values(c, w).iter().copied())
+            .collect();
+        chart
+            .draw_series(
+                at.into_iter()
+                    .map(|p| Circle::new(p, 3, INJECTED.stroke_width(1))),
+            )?
+            .label("switching model (injection)")
+            .legend(|(x, y)| Circle::new((x + 10, y), 3, INJECTED.stroke_width(1)));
+    }
     if let Some(a) = &r.averaged {
         chart
             .draw_series(DashedLineSeries::new(
@@ -113,9 +145,14 @@ fn panel(
             .label("averaged")
             .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 8, y)], AVERAGED.stroke_width(2)));
     }
-    marks(&mut chart, &r.sampled.margins, SAMPLED, (lo, hi), w)?;
+    if let Some(c) = &r.sampled {
+        marks(&mut chart, &c.margins, SAMPLED, (lo, hi), w, 0)?;
+    }
+    if let Some(c) = &r.injected {
+        marks(&mut chart, &c.margins, INJECTED, (lo, hi), w, 1)?;
+    }
     if let Some(a) = &r.averaged {
-        marks(&mut chart, &a.margins, AVERAGED, (lo, hi), w)?;
+        marks(&mut chart, &a.margins, AVERAGED, (lo, hi), w, 2)?;
     }
     if w == Which::Magnitude {
         chart
@@ -138,23 +175,19 @@ type Chart<'a, 'b> = ChartContext<
 >;
 
 /// Thin vertical lines at crossover (with the phase margin written on the phase panel)
-/// and at the phase crossover (with the gain margin on the magnitude panel).
+/// and at the phase crossover (with the gain margin on the magnitude panel); each model's
+/// text on its own `row`.
 fn marks(
     chart: &mut Chart,
     m: &MarginReport,
     colour: RGBColor,
     (lo, hi): (f64, f64),
     w: Which,
+    row: usize,
 ) -> std::result::Result<(), Box<dyn std::error::Error>> {
     let style = colour.mix(0.6).stroke_width(1);
     let text = ("sans-serif", 13).into_font().color(&colour);
-    let y_text = lo
-        + 0.08 * (hi - lo)
-        + if colour == SAMPLED {
-            0.0
-        } else {
-            0.07 * (hi - lo)
-        };
+    let y_text = lo + (0.08 + 0.07 * row as f64) * (hi - lo);
     if let Some(fc) = m.crossover_hz {
         chart.draw_series(LineSeries::new([(fc, lo), (fc, hi)], style))?;
         if let (Which::Phase, Some(pm)) = (w, m.phase_margin_deg) {

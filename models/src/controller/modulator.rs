@@ -249,6 +249,11 @@ impl<S: Stepper> ClosedLoop<S> {
         o.peak - (o.peak - o.valley) * (t - t0) / self.spec.clock_period()
     }
 
+    /// The error amplifier's output now, volts, without the injection.
+    pub fn control_node_voltage(&self) -> f64 {
+        self.run.sim.event_signal(CONTROL_SIGNAL)
+    }
+
     /// The control voltage as the modulator sees it: the node plus the injection.
     fn control_voltage(&self) -> f64 {
         self.run.sim.event_signal(CONTROL_SIGNAL) + self.control_offset

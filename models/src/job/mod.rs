@@ -83,6 +83,25 @@ pub struct Limits {
     pub flux_margin_percent: Option<f64>,
     /// Lowest efficiency of the power stage over the final window, percent.
     pub efficiency_percent: Option<f64>,
+    /// Smallest phase margin of the sampled-data loop gain at the steady state, degrees.
+    pub phase_margin_degrees: Option<f64>,
+    /// Smallest gain margin there, dB.
+    pub gain_margin_db: Option<f64>,
+    /// Lowest crossover frequency, hertz.
+    pub crossover_min: Option<f64>,
+    /// Highest crossover frequency, hertz.
+    pub crossover_max: Option<f64>,
+}
+
+impl Limits {
+    /// Whether any limit needs the loop gain (the loop figures of
+    /// [`crate::loopgain::FIGURES`]).
+    pub fn on_loop_gain(&self) -> bool {
+        self.phase_margin_degrees.is_some()
+            || self.gain_margin_db.is_some()
+            || self.crossover_min.is_some()
+            || self.crossover_max.is_some()
+    }
 }
 
 /// One scenario, ready to run.

@@ -3,6 +3,7 @@
 
 use super::Limits;
 use crate::measure::{reset_check, startup, step, Figure, FigureDef};
+use crate::loopgain;
 use crate::measure::{efficiency, ripple};
 
 /// Which side of the bound passes.
@@ -46,7 +47,7 @@ pub struct LimitDef {
 }
 
 /// Every limit, in the order verdicts are reported.
-pub static LIMITS: [LimitDef; 8] = [
+pub static LIMITS: [LimitDef; 12] = [
     LimitDef {
         field: "startup_overshoot_percent",
         label: "start-up overshoot",
@@ -126,6 +127,46 @@ pub static LIMITS: [LimitDef; 8] = [
         only: None,
         scale: 100.0,
         get: |l| l.efficiency_percent,
+    },
+    LimitDef {
+        field: "phase_margin_degrees",
+        label: "phase margin",
+        unit: "°",
+        bound: Bound::AtLeast,
+        figures: &[&loopgain::PHASE_MARGIN],
+        only: None,
+        scale: 1.0,
+        get: |l| l.phase_margin_degrees,
+    },
+    LimitDef {
+        field: "gain_margin_db",
+        label: "gain margin",
+        unit: "dB",
+        bound: Bound::AtLeast,
+        figures: &[&loopgain::GAIN_MARGIN],
+        only: None,
+        scale: 1.0,
+        get: |l| l.gain_margin_db,
+    },
+    LimitDef {
+        field: "crossover_min",
+        label: "loop crossover",
+        unit: "Hz",
+        bound: Bound::AtLeast,
+        figures: &[&loopgain::CROSSOVER],
+        only: None,
+        scale: 1.0,
+        get: |l| l.crossover_min,
+    },
+    LimitDef {
+        field: "crossover_max",
+        label: "loop crossover",
+        unit: "Hz",
+        bound: Bound::AtMost,
+        figures: &[&loopgain::CROSSOVER],
+        only: None,
+        scale: 1.0,
+        get: |l| l.crossover_max,
     },
 ];
 

@@ -40,13 +40,15 @@
 //! ∠T there (phase unwrapped from the lowest frequency), gain margin −20·log₁₀|T| where
 //! the phase first falls through −180°.
 
+mod injection;
 mod response;
 #[cfg(test)]
 mod tests;
 
 use nalgebra::{DMatrix, DVector};
 
-pub use response::{log_grid, margins, Bode, BodePoint, Margins};
+pub use injection::{commensurate, inject, inject_at, InjectionOptions, InjectionPoint};
+pub use response::{log_grid, margins, margins_on_grid, Bode, BodePoint, Margins};
 
 use crate::controller::ControllerSpec;
 use crate::cycles::CycleRecord;
@@ -56,6 +58,15 @@ use crate::steady::map::{ClosedLoopMap, PeriodMap};
 use crate::steady::{shoot, ShootingOptions, SteadyError, SteadyState};
 use crate::template::ForwardDesign;
 
+
+crate::measure::catalogue::figures! {
+    CROSSOVER = "loop.crossover", "Hz", Number, Neither, Files,
+        "loop crossover", "Frequency where the sampled-data loop gain at the steady state crosses 0 dB.";
+    PHASE_MARGIN = "loop.phase_margin_deg", "°", Number, Lower, Files,
+        "phase margin", "180° plus the loop gain's phase at crossover.";
+    GAIN_MARGIN = "loop.gain_margin_db", "dB", Number, Lower, Files,
+        "gain margin", "How far below 0 dB the loop gain is where its phase reaches −180°.";
+}
 /// Finite-difference steps of the linearisation.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct LinearOptions {
@@ -198,8 +209,17 @@ pub fn sampled_model(
     spec: &ControllerSpec,
     opts: &LinearOptions,
 ) -> Result<(SteadyState, SampledModel), SteadyError> {
-    let mut map = ClosedLoopMap::new(design, spec, trial_options(spec.clock_period()))?;
+    let mut map = loop_map(design, spec)?;
     let steady = shoot(&mut map, &ShootingOptions::default())?;
     let model = linearise(&mut map, spec, &steady, opts)?;
     Ok((steady, model))
+}
+
+/// The closed loop as [`sampled_model`] and [`inject`] run it: soft starts over, on the
+/// trial grid. One per thread when frequencies are injected in parallel.
+pub fn loop_map(
+    design: &ForwardDesign,
+    spec: &ControllerSpec,
+) -> Result<ClosedLoopMap, ModelError> {
+    ClosedLoopMap::new(design, spec, trial_options(spec.clock_period()))
 }

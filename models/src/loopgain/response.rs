@@ -212,3 +212,56 @@ pub fn log_grid(lo: f64, hi: f64, n: usize) -> Vec<f64> {
             .collect(),
     }
 }
+
+/// Crossover and margins of a loop gain known only on `points` (frequency ascending,
+/// hertz, with T), as for the injected response: |T| in dB and the phase (unwrapped
+/// from the first point) interpolated linearly in log frequency between the two
+/// points that bracket each crossing; a last point at −180° (within 0.5°) is taken
+/// as the phase crossover.
+pub fn margins_on_grid(points: &[(f64, C64)]) -> Margins {
+    let mut out = Margins {
+        crossover: None,
+        phase_margin: None,
+        phase_crossover: None,
+        gain_margin: None,
+    };
+    let mut phase: Vec<f64> = Vec::with_capacity(points.len());
+    for (k, (_, t)) in points.iter().enumerate() {
+        let p = match k {
+            0 => t.arg(),
+            _ => phase[k - 1] + wrap(t.arg() - points[k - 1].1.arg()),
+        };
+        phase.push(p);
+    }
+    let db: Vec<f64> = points
+        .iter()
+        .map(|(_, t)| 20.0 * t.norm().log10())
+        .collect();
+    let lf: Vec<f64> = points.iter().map(|(f, _)| f.log10()).collect();
+    let at = |k: usize, s: f64, v: &[f64]| v[k - 1] + s * (v[k] - v[k - 1]);
+    let freq = |k: usize, s: f64| 10f64.powf(at(k, s, &lf));
+    let pi = std::f64::consts::PI;
+    for k in 1..points.len() {
+        if out.crossover.is_none() && db[k - 1] >= 0.0 && db[k] < 0.0 {
+            let s = db[k - 1] / (db[k - 1] - db[k]);
+            out.crossover = Some(freq(k, s));
+            out.phase_margin = Some(180.0 + at(k, s, &phase).to_degrees());
+        }
+        if out.phase_crossover.is_none() && phase[k - 1] > -pi && phase[k] <= -pi {
+            let s = (phase[k - 1] + pi) / (phase[k - 1] - phase[k]);
+            out.phase_crossover = Some(freq(k, s));
+            out.gain_margin = Some(-at(k, s, &db));
+        }
+    }
+    // A sampled-data loop gain is real at fs/2: a last point whose phase is −180° to
+    // within the extraction's error (0.5°) is the phase crossover.
+    let last = points.len().wrapping_sub(1);
+    if out.phase_crossover.is_none()
+        && !points.is_empty()
+        && (phase[last] + pi).abs() <= 0.5f64.to_radians()
+    {
+        out.phase_crossover = Some(points[last].0);
+        out.gain_margin = Some(-db[last]);
+    }
+    out
+}

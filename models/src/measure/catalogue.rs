@@ -290,6 +290,7 @@ pub fn all() -> impl Iterator<Item = &'static FigureDef> {
         super::part_losses::FIGURES,
         super::reset_check::FIGURES,
         crate::figures::FIGURES,
+        crate::loopgain::FIGURES,
     ]
     .into_iter()
     .flatten()

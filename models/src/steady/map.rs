@@ -192,6 +192,16 @@ impl ClosedLoopMap {
     pub fn set_control_offset(&mut self, volts: f64) {
         self.lp.control_offset = volts;
     }
+
+    /// The error amplifier's output `t` seconds after the boundary (within the first
+    /// period), running from `x0` with no injection; for the injected loop gain's
+    /// sampling-instant reference ([`crate::loopgain::inject`]).
+    pub fn control_voltage_at(&mut self, x0: &[f64], t: f64) -> Result<f64, ModelError> {
+        self.lp.restore(&self.at, x0)?;
+        let t_end = self.at.run.handover.time + t;
+        self.lp.advance_to_end(t_end, &mut NullSink, &mut Discard)?;
+        Ok(self.lp.control_node_voltage())
+    }
 }
 
 impl PeriodMap for ClosedLoopMap {
