@@ -190,7 +190,7 @@ impl Hdf5Writer {
         self.integers.clear();
         self.file
             .close()
-            .with_context(|| format!("closing HDF5 file {}", self.path.display()))
+            .context("closing the HDF5 file")
     }
 
     /// Writes the staged samples and flushes the file to disk, so the file as it
@@ -204,7 +204,7 @@ impl Hdf5Writer {
         }
         self.file
             .flush()
-            .with_context(|| format!("flushing HDF5 file {}", self.path.display()))
+            .context("flushing the HDF5 file")
     }
 
     fn signal_mut(&mut self, id: SignalId) -> Result<&mut Column<f64>> {
