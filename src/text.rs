@@ -113,7 +113,10 @@ mod tests {
     #[test]
     fn a_long_file_path_is_kept_whole() {
         let path = format!("/{}/waveforms.h5", "d".repeat(100));
-        assert_eq!(shorten(&format!("writing {path}: no room")), format!("writing {path}: no room"));
+        assert_eq!(
+            shorten(&format!("writing {path}: no room")),
+            format!("writing {path}: no room")
+        );
     }
 
     #[test]

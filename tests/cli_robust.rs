@@ -264,13 +264,20 @@ fn check_prints_a_run_time_measured_on_a_trial_of_the_scenario() {
     // carries no wall time, so it is the same on every machine.
     let dir = scratch("robust_calibration");
     let path = scenario(&dir, "calibrate.json", |_| {});
-    let out = stepflux().arg("check").arg(&path).output().expect("binary runs");
+    let out = stepflux()
+        .arg("check")
+        .arg(&path)
+        .output()
+        .expect("binary runs");
     let text = String::from_utf8_lossy(&out.stdout);
     let line = text
         .lines()
         .find(|l| l.starts_with("run time estimate: about "))
         .unwrap_or_else(|| panic!("no calibrated estimate in:\n{text}{}", stderr(&out)));
-    assert!(line.contains("on this machine now (trials of up to "), "{line}");
+    assert!(
+        line.contains("on this machine now (trials of up to "),
+        "{line}"
+    );
     let per_period = line
         .split("periods: ")
         .nth(1)
@@ -282,7 +289,11 @@ fn check_prints_a_run_time_measured_on_a_trial_of_the_scenario() {
     assert!(["ps", "ns", "µs", "ms", "s"].contains(&unit), "{line}");
     let runs: Vec<Value> = (0..2)
         .map(|_| {
-            let o = stepflux().args(["check", "--json"]).arg(&path).output().expect("runs");
+            let o = stepflux()
+                .args(["check", "--json"])
+                .arg(&path)
+                .output()
+                .expect("runs");
             serde_json::from_slice(&o.stdout).expect("check --json is JSON")
         })
         .collect();
