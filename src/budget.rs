@@ -2,14 +2,22 @@
 //! output bytes and a wall-time estimate; and the default bounds past which `check`,
 //! `run` and `batch` refuse to start unless told `--allow-large`.
 //!
-//! The estimate is arithmetic, not a trial run. Its constants come from the
-//! `long_run` bench on the reference machine (README "Benchmarks": 10⁶ periods of the
-//! closed-loop demo with six signals, 17 s, 521 MB) and from the 7 ms load-step example
-//! (1050 periods: 5182 switching-instant rows, 4216 topology changes, 1.30 MB).
+//! Periods, rows and bytes are arithmetic, deterministic, and go into `check --json`.
+//! Their constants come from the `long_run` bench (README "Benchmarks": 10⁶ periods of
+//! the closed-loop demo with six signals, 17 s, 521 MB) and from the 7 ms load-step
+//! example (1050 periods: 5182 switching-instant rows, 4216 topology changes, 1.30 MB).
+//! The wall time is measured instead ([`calibrate`]): a short trial of the scenario
+//! itself on this machine, scaled to the whole run. It depends on the machine and its
+//! load, so it is printed for a person only and never enters a file, figure or verdict.
+
+use std::time::Instant;
 
 use serde::Serialize;
 use stepflux_engine::{SimOptions, TimeGrid};
 
+use crate::eng::eng;
+use crate::job::{Job, Start};
+use crate::pipeline::{run_job_with, RunSettings};
 use crate::scenario::{design_point, Loaded, ScenarioError};
 use crate::writers::hdf5::DEFAULT_CHUNK_LEN;
 
@@ -19,10 +27,18 @@ use crate::writers::hdf5::DEFAULT_CHUNK_LEN;
 const INSTANTS_PER_PERIOD: f64 = 5.0;
 /// Topology changes recorded per period (the load-step example shows 4.0).
 const CHANGES_PER_PERIOD: f64 = 4.0;
-/// Wall seconds per simulated period, stepping and measuring (closed-loop bench).
-const SECONDS_PER_PERIOD: f64 = 4e-6;
-/// Wall seconds per value written to the waveform file.
+/// Wall seconds per value written to the waveform file (the `long_run` bench less the
+/// same run without waveforms); the calibration trial writes nothing.
 const SECONDS_PER_VALUE: f64 = 0.2e-6;
+/// Switching periods of the first calibration trial; each next one is four times longer.
+const TRIAL_FIRST_PERIODS: f64 = 32.0;
+/// Stepping time a trial should reach, wall seconds, for the clock's resolution and
+/// one slice's jitter to be small beside it.
+const TRIAL_TARGET_S: f64 = 0.05;
+/// Wall seconds the trials may take together: `check` stays quick. Two trials at
+/// least (see [`calibrate`]); on a loaded machine the first alone takes 0.2 s, most of
+/// it the one-off building of the converter.
+const CALIBRATION_BUDGET_S: f64 = 0.5;
 /// Bytes per stored value (f64 or u64).
 const VALUE_BYTES: f64 = 8.0;
 /// Columns of the cycle table and of the topology-change table.
@@ -46,8 +62,9 @@ pub struct Cost {
     pub signals: usize,
     /// Bytes of the waveform file, about.
     pub output_bytes: f64,
-    /// Wall seconds, about, on the reference machine.
-    pub seconds: f64,
+    /// Values written to the waveform file (rows times columns, all tables).
+    #[serde(skip)]
+    pub values: f64,
     /// The engine's time step quantum, seconds: no sample interval can be shorter.
     pub time_quantum_s: f64,
 }
@@ -81,7 +98,7 @@ pub fn estimate(l: &Loaded) -> Cost {
         samples_per_signal: samples,
         signals,
         output_bytes: stored * VALUE_BYTES,
-        seconds: periods * SECONDS_PER_PERIOD + values * SECONDS_PER_VALUE,
+        values,
         time_quantum_s: quantum(1.0 / frequency),
     }
 }
@@ -161,18 +178,124 @@ pub fn duration(s: f64) -> String {
     }
 }
 
+/// A duration for a person: engineering units below a second ("120 ms"), else
+/// [`duration`].
+fn wall(s: f64) -> String {
+    match s < 1.0 {
+        true => eng(s, "s"),
+        false => duration(s),
+    }
+}
+
+/// What short trials of the scenario on this machine measured.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Calibration {
+    /// Switching periods of the longest trial.
+    pub periods: f64,
+    /// Wall seconds per further simulated period, stepping and measuring.
+    pub seconds_per_period: f64,
+    /// Wall seconds paid once per run: building the converter, the topologies of the
+    /// start-up met for the first time, the figures at the end.
+    pub setup_s: f64,
+}
+
+impl Calibration {
+    /// Wall seconds the whole run of `cost` should take here, writing included.
+    pub fn run_seconds(&self, cost: &Cost) -> f64 {
+        self.setup_s + cost.periods * self.seconds_per_period + cost.values * SECONDS_PER_VALUE
+    }
+}
+
+/// Times short runs of `l` itself (no files written), each four times longer than the
+/// last. A trial repeats the previous one's periods exactly (same start, same
+/// circuit), so the difference of their wall times is the cost of the periods added,
+/// free of the one-off costs that dominate a short run. It stops once that difference
+/// reaches [`TRIAL_TARGET_S`], the trial reaches the run's own length, or the next
+/// would pass [`CALIBRATION_BUDGET_S`]. A steady-state start is tried from a cold
+/// start: the shooting is a one-off cost the estimate leaves out.
+pub fn calibrate(l: &Loaded) -> Result<Calibration, String> {
+    let frequency = design_point(&l.job).frequency;
+    let total = l.job.analysis.stop_time * frequency;
+    let mut job = l.job.clone();
+    if job.analysis.start == Start::Steady {
+        job.analysis.start = Start::Zero;
+    }
+    let started = Instant::now();
+    let mut previous: Option<(f64, f64)> = None;
+    let mut periods = TRIAL_FIRST_PERIODS.min(total);
+    loop {
+        let wall = trial(&mut job, periods / frequency)?;
+        let (added, extra) = match previous {
+            Some((n, t)) if wall > t => (periods - n, wall - t),
+            // One trial only, or noise larger than the periods added: the plain
+            // average, which counts the one-off costs in (an overestimate).
+            _ => (periods, wall),
+        };
+        let spent = started.elapsed().as_secs_f64();
+        // The next trial repeats this one and adds three times its periods.
+        let next = wall + 3.0 * periods * extra / added;
+        // After the first trial only its own length counts: its one-off costs would
+        // make any prediction from it too long.
+        let over = match previous {
+            None => wall > 0.5 * CALIBRATION_BUDGET_S,
+            Some(_) => spent + next > CALIBRATION_BUDGET_S,
+        };
+        let last = periods >= total || over;
+        if (previous.is_some() && extra >= TRIAL_TARGET_S) || last {
+            let rate = extra / added;
+            return match rate.is_finite() && rate > 0.0 {
+                true => Ok(Calibration {
+                    periods,
+                    seconds_per_period: rate,
+                    setup_s: (wall - rate * periods).max(0.0),
+                }),
+                false => Err("the trial was too short to time".into()),
+            };
+        }
+        previous = Some((periods, wall));
+        periods = (periods * 4.0).min(total);
+    }
+}
+
+/// Wall seconds of one run of `job` to `stop` seconds, writing nothing.
+fn trial(job: &mut Job, stop: f64) -> Result<f64, String> {
+    job.analysis.stop_time = stop;
+    let settings = RunSettings {
+        waveforms: false,
+        stop: None,
+    };
+    let started = Instant::now();
+    run_job_with(job, std::path::Path::new(""), &|_| {}, settings)
+        .map_err(|e| crate::text::one_line(&e))?;
+    Ok(started.elapsed().as_secs_f64())
+}
+
 impl Cost {
-    /// The estimate as `check` prints it.
-    pub fn text(&self) -> String {
-        format!(
+    /// The estimate as `check` prints it: the deterministic counts, then the wall time
+    /// from `calibration` (or why there is none).
+    pub fn text(&self, calibration: &Result<Calibration, String>) -> String {
+        let counts = format!(
             "run cost estimate: {} switching periods, {} samples per signal × {} \
-             signals, about {} of waveforms, run time {} on the reference machine",
+             signals, about {} of waveforms",
             crate::eng::prefixed(self.periods),
             crate::eng::prefixed(self.samples_per_signal),
             self.signals,
             bytes(self.output_bytes),
-            duration(self.seconds)
-        )
+        );
+        let time = match calibration {
+            Ok(c) => format!(
+                "run time estimate: about {} on this machine now (trials of up to {:.0} \
+                 periods: {} per period, plus {} of set-up and figures; waveform writing \
+                 added at {} per value); a guide from a trial, not a result",
+                wall(c.run_seconds(self)),
+                c.periods,
+                eng(c.seconds_per_period, "s"),
+                eng(c.setup_s, "s"),
+                eng(SECONDS_PER_VALUE, "s"),
+            ),
+            Err(why) => format!("run time estimate: none ({why})"),
+        };
+        format!("{counts}\n{time}")
     }
 }
 
@@ -212,6 +335,19 @@ mod tests {
         assert!(enforce(&l, false).is_err());
         assert!(enforce(&l, true).is_ok());
         assert!(enforce(&load_step("7 ms", "1 us"), false).is_ok());
+    }
+
+    #[test]
+    fn a_calibration_times_a_trial_of_the_scenario_itself() {
+        // Machine-dependent, so only what holds on any machine: positive finite
+        // times, at least the first trial's periods timed, an estimate growing with
+        // the run's length.
+        let l = load_step("7 ms", "1 us");
+        let c = calibrate(&l).expect("the example runs");
+        assert!(c.periods > 0.0 && c.periods <= 7e-3 * 150e3 + 1.0, "{c:?}");
+        assert!(c.seconds_per_period.is_finite() && c.seconds_per_period > 0.0);
+        let (short, long) = (estimate(&l), estimate(&load_step("70 ms", "1 us")));
+        assert!(c.run_seconds(&long) > c.run_seconds(&short));
     }
 
     #[test]

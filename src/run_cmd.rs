@@ -9,7 +9,9 @@ use std::path::{Path, PathBuf};
 use std::sync::atomic::Ordering;
 use std::time::Duration;
 
-use indicatif::{MultiProgress, ProgressBar, ProgressDrawTarget, ProgressStyle};
+use indicatif::{
+    HumanDuration, MultiProgress, ProgressBar, ProgressDrawTarget, ProgressState, ProgressStyle,
+};
 use rayon::prelude::*;
 
 use crate::exit::{Exit, Failure};
@@ -171,17 +173,29 @@ fn one(path: &Path, loaded: &Loaded, out: &Path, bars: &MultiProgress) -> Outcom
     for w in &loaded.warnings {
         let _ = bars.println(format!("warning: {}: {w}", path.display()));
     }
+    // Progress is simulated time over the stop time, in thousandths; the message says
+    // where the run stands in engineering units.
     let bar = bars.add(ProgressBar::new(1000));
     bar.set_style(
         ProgressStyle::with_template(
-            "{prefix:>20} [{bar:30}] {percent:>3}% {elapsed_precise} eta {eta}",
+            "{prefix:>20} [{bar:30}] {percent:>3}% {msg} · {elapsed_precise} · eta {eta_or_unknown}",
         )
+        .map(|s| s.with_key("eta_or_unknown", eta_or_unknown))
         .unwrap_or_else(|_| ProgressStyle::default_bar())
         .progress_chars("=> "),
     );
     bar.set_prefix(loaded.job.name.clone());
+    let stop = loaded.job.analysis.stop_time;
+    let stop_text = crate::eng::eng(stop, "s");
+    bar.set_message(format!("t = 0 s of {stop_text}"));
     bar.enable_steady_tick(Duration::from_millis(500));
-    let progress = |f: f64| bar.set_position((1000.0 * f) as u64);
+    let progress = |f: f64| {
+        bar.set_position((1000.0 * f) as u64);
+        bar.set_message(format!(
+            "t = {} of {stop_text}",
+            crate::eng::eng(f * stop, "s")
+        ));
+    };
     let result = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
         run_loaded(&loaded, out, &progress, RunSettings::interactive())
     }));
@@ -191,6 +205,16 @@ fn one(path: &Path, loaded: &Loaded, out: &Path, bars: &MultiProgress) -> Outcom
         Ok(Err(e)) => Outcome::Failed(crate::text::one_line(&e)),
         Err(panic) => Outcome::Failed(format!("internal error (panic): {}", panic_text(&panic))),
     }
+}
+
+/// The bar's remaining time, or "?" while nothing has been done to estimate it from
+/// (indicatif reads 0 s then, which looked like a run about to end).
+pub(crate) fn eta_or_unknown(state: &ProgressState, w: &mut dyn std::fmt::Write) {
+    let unknown = state.eta().is_zero() && state.len().is_some_and(|n| state.pos() < n);
+    let _ = match unknown {
+        true => write!(w, "?"),
+        false => write!(w, "{:#}", HumanDuration(state.eta())),
+    };
 }
 
 fn panic_text(panic: &Box<dyn std::any::Any + Send>) -> String {

@@ -29,9 +29,14 @@ pub fn shorten(text: &str) -> String {
     out
 }
 
+/// Longest file path echoed whole (Linux PATH_MAX): a path is only useful whole.
+const PATH_MAX: usize = 4096;
+
 fn shorten_word(word: &str) -> String {
     let n = word.chars().count();
-    if n <= ECHO_MAX {
+    // An unquoted word with a slash is a file path the message names, not a value.
+    let path = word.contains('/') && !word.contains(['"', '`', '\'']);
+    if n <= ECHO_MAX || (path && n <= PATH_MAX) {
         return word.to_string();
     }
     let kept: String = word.chars().take(ECHO_KEEP).collect();
@@ -102,6 +107,15 @@ mod tests {
         assert_eq!(
             one_line(&outer),
             "writing out/x/waveforms.h5: engine: disk full"
+        );
+    }
+
+    #[test]
+    fn a_long_file_path_is_kept_whole() {
+        let path = format!("/{}/waveforms.h5", "d".repeat(100));
+        assert_eq!(
+            shorten(&format!("writing {path}: no room")),
+            format!("writing {path}: no room")
         );
     }
 

@@ -245,7 +245,60 @@ fn a_waveform_file_past_the_limit_is_reported_with_its_path() {
     .expect("summary is whole JSON");
     let error = summary["error"].as_str().expect("summary names the error");
     assert!(error.contains("waveforms.h5"), "{error}");
+    // A waveform file cut short by a failed write is truncated below the end the HDF5
+    // library recorded, so no reader opens it: it is removed, and the message says so
+    // (src/writers/waveforms.rs, `WaveformSink::finish`), naming the path once.
+    assert!(
+        !dir.join("out/demo-startup/waveforms.h5").exists(),
+        "an unreadable waveform file was left behind"
+    );
+    assert!(e.contains("the incomplete file was removed"), "{e}");
+    assert_eq!(e.matches("waveforms.h5").count(), 1, "{e}");
     assert!(temporaries(&dir).is_empty(), "{:?}", temporaries(&dir));
+}
+
+#[test]
+fn check_prints_a_run_time_measured_on_a_trial_of_the_scenario() {
+    // The time is machine-dependent, so only its form is checked: a positive, finite
+    // figure in engineering units from a trial of the scenario itself; JSON output
+    // carries no wall time, so it is the same on every machine.
+    let dir = scratch("robust_calibration");
+    let path = scenario(&dir, "calibrate.json", |_| {});
+    let out = stepflux()
+        .arg("check")
+        .arg(&path)
+        .output()
+        .expect("binary runs");
+    let text = String::from_utf8_lossy(&out.stdout);
+    let line = text
+        .lines()
+        .find(|l| l.starts_with("run time estimate: about "))
+        .unwrap_or_else(|| panic!("no calibrated estimate in:\n{text}{}", stderr(&out)));
+    assert!(
+        line.contains("on this machine now (trials of up to "),
+        "{line}"
+    );
+    let per_period = line
+        .split("periods: ")
+        .nth(1)
+        .and_then(|rest| rest.split(" per period").next())
+        .unwrap_or_else(|| panic!("no per-period time in: {line}"));
+    let (number, unit) = per_period.split_once(' ').expect("value and unit");
+    let value: f64 = number.parse().expect("a number");
+    assert!(value.is_finite() && value > 0.0, "{line}");
+    assert!(["ps", "ns", "µs", "ms", "s"].contains(&unit), "{line}");
+    let runs: Vec<Value> = (0..2)
+        .map(|_| {
+            let o = stepflux()
+                .args(["check", "--json"])
+                .arg(&path)
+                .output()
+                .expect("runs");
+            serde_json::from_slice(&o.stdout).expect("check --json is JSON")
+        })
+        .collect();
+    assert_eq!(runs[0], runs[1], "check --json differs between two runs");
+    assert!(runs[0]["cost_estimate"].get("seconds").is_none());
 }
 
 #[test]

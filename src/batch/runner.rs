@@ -187,12 +187,17 @@ fn progress_bar(total: usize, done: usize, tally: &Tally) -> ProgressBar {
     // Drawn on stderr, and hidden by indicatif when stderr is not a terminal.
     let bar = ProgressBar::new(total as u64);
     let style = ProgressStyle::with_template(
-        "{elapsed_precise} [{bar:30}] {pos}/{len} cases, ETA {eta} · {msg}",
+        "{elapsed_precise} [{bar:30}] {pos}/{len} cases {percent}%, eta {eta_or_unknown} · {msg}",
     )
-    .map(|s| s.progress_chars("=> "))
+    .map(|s| {
+        s.progress_chars("=> ")
+            .with_key("eta_or_unknown", crate::run_cmd::eta_or_unknown)
+    })
     .unwrap_or_else(|_| ProgressStyle::default_bar());
     bar.set_style(style);
     bar.set_position(done as u64);
+    // Cases reused by `--resume` took no time now: the rate counts from here.
+    bar.reset_eta();
     bar.set_message(tally.message());
     bar
 }

@@ -188,9 +188,7 @@ impl Hdf5Writer {
         // Datasets hold file handles; release them before closing.
         self.signals.clear();
         self.integers.clear();
-        self.file
-            .close()
-            .with_context(|| format!("closing HDF5 file {}", self.path.display()))
+        self.file.close().context("closing the HDF5 file")
     }
 
     /// Writes the staged samples and flushes the file to disk, so the file as it
@@ -202,9 +200,7 @@ impl Hdf5Writer {
         for column in &mut self.integers {
             column.flush()?;
         }
-        self.file
-            .flush()
-            .with_context(|| format!("flushing HDF5 file {}", self.path.display()))
+        self.file.flush().context("flushing the HDF5 file")
     }
 
     fn signal_mut(&mut self, id: SignalId) -> Result<&mut Column<f64>> {

@@ -125,18 +125,35 @@ impl WaveformSink {
 
     /// Writes what is staged and flushes the file to disk (see [`Hdf5Writer::checkpoint`]).
     pub fn checkpoint(&mut self) -> Result<()> {
-        self.writer.checkpoint()
+        let path = &self.path;
+        self.writer
+            .checkpoint()
+            .with_context(|| format!("writing {path}"))
     }
 
     /// Flushes and closes the file; reports any write failure met on the way.
+    ///
+    /// A file that met a write failure (a full disk, a file-size limit) is removed:
+    /// the HDF5 library leaves such a file truncated below its own recorded end, which
+    /// no reader opens, and a file that looks whole but is not is worse than none. The
+    /// run's summary still holds every figure computed (DEVELOPERS.md "Bounded work
+    /// and stopping").
     pub fn finish(self) -> Result<()> {
-        if let Some(f) = self.failure {
-            anyhow::bail!("writing {}: {f}", self.path);
-        }
         let path = self.path;
-        self.writer
-            .finish()
-            .with_context(|| format!("writing {path}"))
+        let closed = match self.failure {
+            Some(f) => {
+                drop(self.writer);
+                Err(anyhow::anyhow!(f))
+            }
+            None => self.writer.finish(),
+        };
+        closed.map_err(|e| {
+            let removed = match std::fs::remove_file(&path) {
+                Ok(()) => "the incomplete file was removed",
+                Err(_) => "the incomplete file could not be removed",
+            };
+            e.context(format!("writing {path} ({removed})"))
+        })
     }
 
     fn write_cycle(&mut self, r: &CycleRecord) -> Result<()> {
@@ -164,7 +181,10 @@ impl Sink for WaveformSink {
             }
             Ok(())
         };
-        write().map_err(|e| format!("writing {}: {e:#}", self.path))?;
+        if let Err(e) = write() {
+            self.failure.get_or_insert_with(|| format!("{e:#}"));
+            return Err(format!("writing {}: {e:#}", self.path));
+        }
         self.samples += 1;
         Ok(())
     }
@@ -175,8 +195,10 @@ impl Sink for WaveformSink {
         before: Topology,
         after: Topology,
     ) -> Result<(), String> {
-        self.write_event(time, before.0, after.0)
-            .map_err(|e| format!("writing {}: {e:#}", self.path))
+        self.write_event(time, before.0, after.0).map_err(|e| {
+            self.failure.get_or_insert_with(|| format!("{e:#}"));
+            format!("writing {}: {e:#}", self.path)
+        })
     }
 }
 
