@@ -184,38 +184,38 @@ pub fn verdicts(job: &Job, m: &[Figure]) -> Vec<Verdict> {
         }
     };
     check(
-        "startup_overshoot_percent",
+        "startup_overshoot_pct",
         get("startup.overshoot_pct"),
         l.startup_overshoot_percent,
         "max",
     );
-    check("startup_time", get("startup.t90"), l.startup_time, "max");
+    check("startup_t90", get("startup.t90"), l.startup_time, "max");
     let deviation = worst(".undershoot_pct")
         .into_iter()
         .chain(worst(".overshoot_pct"))
         .reduce(f64::max);
     check(
-        "step_deviation_percent",
+        "step_deviation_pct",
         deviation,
         l.step_deviation_percent,
         "max",
     );
-    check("recovery_time", worst(".recovery"), l.recovery_time, "max");
-    check("ripple", get("out.v.ripple_pp"), l.ripple, "max");
+    check("step_recovery", worst(".recovery"), l.recovery_time, "max");
+    check("ripple_pp", get("out.v.ripple_pp"), l.ripple, "max");
     check(
-        "reset_margin_percent",
+        "reset_margin_pct",
         get("reset_check.worst.reset_margin_pct"),
         l.reset_margin_percent,
         "min",
     );
     check(
-        "flux_margin_percent",
+        "flux_margin_pct",
         get("reset_check.worst.flux_margin_pct"),
         l.flux_margin_percent,
         "min",
     );
     check(
-        "efficiency_percent",
+        "efficiency_pct",
         get("efficiency.stage").map(|e| 100.0 * e),
         l.efficiency_percent,
         "min",

@@ -8,7 +8,7 @@
 //!   "corners": { "vin": ["18 V", "24 V", "32 V"] },
 //!   "sweeps": [ { "points": 3, "scale": "log", "ranges": { "cout": { "start": "100 uF", "stop": "470 uF" } } } ],
 //!   "monte_carlo": { "samples": 10, "seed": 7, "tolerances": { "cout": { "uniform_percent": 20 } } },
-//!   "limits": { "ripple": "60 mV" }
+//!   "limits": { "ripple_pp": "60 mV" }
 //! }
 //! ```
 //!
@@ -297,6 +297,8 @@ fn merge_limits(base: &mut Value, limits: Option<&serde_json::Map<String, Value>
         .as_object_mut()
         .ok_or_else(|| anyhow!("the base scenario's `limits` is not an object"))?;
     for (k, v) in extra {
+        // A limit under its old name replaces the same limit under its new one, and back.
+        map.retain(|key, _| !crate::scenario::same_limit(key, k));
         map.insert(k.clone(), v.clone());
     }
     Ok(())
