@@ -59,23 +59,23 @@ pub struct Analysis {
 #[derive(Clone, Debug, PartialEq, Default)]
 pub struct Limits {
     /// Highest start-up overshoot, percent of the set point.
-    pub startup_overshoot_percent: Option<f64>,
+    pub startup_overshoot_pct: Option<f64>,
     /// Longest start-up time to 90 % of the set point, seconds.
-    pub startup_time: Option<f64>,
+    pub startup_t90: Option<f64>,
     /// Largest deviation after a load or line step, percent of the set point.
-    pub step_deviation_percent: Option<f64>,
+    pub step_deviation_pct: Option<f64>,
     /// Longest recovery into the band after a step, seconds.
-    pub recovery_time: Option<f64>,
+    pub step_recovery: Option<f64>,
     /// Recovery band, percent of the set point (default 1 %).
-    pub recovery_band_percent: Option<f64>,
+    pub step_band_pct: Option<f64>,
     /// Largest output ripple peak-to-peak, volts.
-    pub ripple: Option<f64>,
+    pub ripple_pp: Option<f64>,
     /// Smallest reset margin, percent of the period.
-    pub reset_margin_percent: Option<f64>,
+    pub reset_margin_pct: Option<f64>,
     /// Smallest flux-density margin below Bsat, percent.
-    pub flux_margin_percent: Option<f64>,
+    pub flux_margin_pct: Option<f64>,
     /// Lowest efficiency of the power stage over the final window, percent.
-    pub efficiency_percent: Option<f64>,
+    pub efficiency_pct: Option<f64>,
 }
 
 /// One scenario, ready to run.

@@ -80,14 +80,14 @@ fn fail(text: String) -> Line {
 /// A limit's label and the unit of its value and bound.
 fn limit_meaning(limit: &str) -> (&'static str, &'static str) {
     match limit {
-        "startup_overshoot_percent" => ("start-up overshoot", "%"),
-        "startup_time" => ("start-up time to 90 %", "s"),
-        "step_deviation_percent" => ("step deviation", "%"),
-        "recovery_time" => ("step recovery", "s"),
-        "ripple" => ("output ripple", "V"),
-        "reset_margin_percent" => ("reset margin", "%"),
-        "flux_margin_percent" => ("flux margin", "%"),
-        "efficiency_percent" => ("efficiency", "%"),
+        "startup_overshoot_pct" => ("start-up overshoot", "%"),
+        "startup_t90" => ("start-up time to 90 %", "s"),
+        "step_deviation_pct" => ("step deviation", "%"),
+        "step_recovery" => ("step recovery", "s"),
+        "ripple_pp" => ("output ripple", "V"),
+        "reset_margin_pct" => ("reset margin", "%"),
+        "flux_margin_pct" => ("flux margin", "%"),
+        "efficiency_pct" => ("efficiency", "%"),
         _ => ("limit", "1"),
     }
 }

@@ -186,38 +186,33 @@ pub fn verdicts(job: &Job, m: &[Figure]) -> Vec<Verdict> {
     check(
         "startup_overshoot_pct",
         get("startup.overshoot_pct"),
-        l.startup_overshoot_percent,
+        l.startup_overshoot_pct,
         "max",
     );
-    check("startup_t90", get("startup.t90"), l.startup_time, "max");
+    check("startup_t90", get("startup.t90"), l.startup_t90, "max");
     let deviation = worst(".undershoot_pct")
         .into_iter()
         .chain(worst(".overshoot_pct"))
         .reduce(f64::max);
-    check(
-        "step_deviation_pct",
-        deviation,
-        l.step_deviation_percent,
-        "max",
-    );
-    check("step_recovery", worst(".recovery"), l.recovery_time, "max");
-    check("ripple_pp", get("out.v.ripple_pp"), l.ripple, "max");
+    check("step_deviation_pct", deviation, l.step_deviation_pct, "max");
+    check("step_recovery", worst(".recovery"), l.step_recovery, "max");
+    check("ripple_pp", get("out.v.ripple_pp"), l.ripple_pp, "max");
     check(
         "reset_margin_pct",
         get("reset_check.worst.reset_margin_pct"),
-        l.reset_margin_percent,
+        l.reset_margin_pct,
         "min",
     );
     check(
         "flux_margin_pct",
         get("reset_check.worst.flux_margin_pct"),
-        l.flux_margin_percent,
+        l.flux_margin_pct,
         "min",
     );
     check(
         "efficiency_pct",
         get("efficiency.stage").map(|e| 100.0 * e),
-        l.efficiency_percent,
+        l.efficiency_pct,
         "min",
     );
     v

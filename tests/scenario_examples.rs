@@ -64,7 +64,7 @@ fn every_reset_scheme_has_an_example() {
         assert_eq!(v["valid"], true);
         templates.push(v["template"].as_str().unwrap_or_default().to_string());
     }
-    for t in ["reset-winding", "rcd-clamp", "two-switch", "active-clamp"] {
+    for t in ["reset_winding", "rcd_clamp", "two_switch", "active_clamp"] {
         assert!(
             templates.iter().any(|x| x == t),
             "no example of {t}: {templates:?}"

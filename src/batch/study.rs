@@ -13,7 +13,7 @@
 //! ```
 //!
 //! Parameters are named once and addressed by a dotted path into the scenario JSON,
-//! with `[n]` for array elements (`events[0].line.to`). The cases are the Cartesian
+//! with `[n]` for array elements (`disturbances[0].line.to`). The cases are the Cartesian
 //! product of every corner list and every sweep (the parameters of one sweep move
 //! together), each crossed with every Monte Carlo sample; see [`super::cases`].
 
@@ -57,7 +57,7 @@ pub struct StudyFile {
     pub base: Base,
     /// Short parameter names (used in the result tables) and the dotted JSON path each
     /// one sets in the scenario, e.g. `"vin": "converter.input.voltage"`,
-    /// `"step": "events[0].load_current.to"`.
+    /// `"step": "disturbances[0].load_current.to"`.
     pub parameters: BTreeMap<String, String>,
     /// Named lists of values; every combination is a case (names taken in alphabetical
     /// order, the last varying fastest).

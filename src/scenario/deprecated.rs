@@ -86,9 +86,7 @@ fn join(at: &str, key: &str) -> String {
 fn deprecation(field: &str, new: &str) -> Warning {
     Warning {
         field: field.to_string(),
-        message: format!(
-            "deprecated name, still read in this release; write `{new}` instead"
-        ),
+        message: format!("deprecated name, still read in this release; write `{new}` instead"),
     }
 }
 
@@ -118,9 +116,9 @@ mod tests {
             ("converter.rectifier.rd", "r_on"),
         ] {
             assert!(
-                found
-                    .iter()
-                    .any(|w| w.starts_with(&format!("{field}: ")) && w.contains(&format!("`{new}`"))),
+                found.iter().any(
+                    |w| w.starts_with(&format!("{field}: ")) && w.contains(&format!("`{new}`"))
+                ),
                 "{field} → {new} missing from {found:?}"
             );
         }

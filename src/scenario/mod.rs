@@ -26,8 +26,8 @@ use std::path::Path;
 
 use stepflux_models::figures::DesignFigures;
 
-pub use error::{ScenarioError, Warning};
 pub use deprecated::same_limit;
+pub use error::{ScenarioError, Warning};
 pub use feasibility::{design_point, sample_interval_on_grid};
 
 use crate::job::Job;
