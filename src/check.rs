@@ -65,10 +65,10 @@ fn drive_name(drive: &Drive) -> &'static str {
     }
 }
 
-/// The check report as JSON: SI units, field names carrying the unit.
+/// The check report as JSON: SI units; the design figures in the catalogue's
+/// vocabulary (`design.flux_peak`, with its unit beside it), as in `summary.json`.
 pub fn report_json(l: &Loaded) -> serde_json::Value {
     let p = design_point(&l.job);
-    let f = &l.figures;
     json!({
         "name": l.job.name,
         "valid": true,
@@ -82,22 +82,11 @@ pub fn report_json(l: &Loaded) -> serde_json::Value {
             "low_line_v": p.low_line,
             "high_line_v": p.high_line,
         },
-        "figures": {
-            "secondary_ratio": f.secondary_ratio,
-            "reset_ratio": f.reset_ratio,
-            "output_voltage_v": f.output_voltage,
-            "load_current_a": f.load_current,
-            "nominal_duty": f.nominal_duty,
-            "low_line_duty_needed": f.low_line_duty_needed,
-            "reset_limit_duty": f.reset_limit_duty,
-            "magnetising_peak_a": f.magnetising_peak,
-            "flux_peak_t": f.flux_peak,
-            "saturation_flux_density_t": l.job.design.transformer.saturation_flux_density,
-            "inductor_ripple_a": f.inductor_ripple,
-            "output_ripple_v": f.output_ripple,
-            "clamp_voltage_v": f.clamp_voltage,
-            "drain_stress_v": f.drain_stress,
-            "switch_voltage_rating_v": l.job.design.switch.voltage_rating,
+        // The same figures, keys and units as `summary.json`'s "design".
+        "figures": crate::writers::figure_json::Figures(&l.figures.figures()),
+        "ratings": {
+            "saturation_flux_density": l.job.design.transformer.saturation_flux_density,
+            "switch_voltage_rating": l.job.design.switch.voltage_rating,
         },
         "sample_interval_s": {
             "requested": l.job.analysis.sample_interval,

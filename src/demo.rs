@@ -40,10 +40,10 @@ pub fn demo_job() -> Job {
             start: Start::Zero,
         },
         limits: Limits {
-            startup_overshoot_pct: Some(5.0),
-            reset_margin_pct: Some(5.0),
-            flux_margin_pct: Some(20.0),
-            ripple_pp: Some(0.05),
+            startup_overshoot_percent: Some(5.0),
+            reset_margin_percent: Some(5.0),
+            flux_margin_percent: Some(20.0),
+            ripple: Some(0.05),
             ..Limits::default()
         },
         save: Vec::new(),

@@ -158,7 +158,7 @@ pub fn csv(points: &[Point]) -> String {
     let losses: BTreeSet<String> = points
         .iter()
         .filter_map(|p| p.point.as_ref())
-        .flat_map(|p| p.measurements.iter().map(|f| f.name.clone()))
+        .flat_map(|p| p.measurements.iter().map(|f| f.key.clone()))
         .filter(|n| n.starts_with("loss."))
         .collect();
     let mut head = vec!["line_v".to_string(), "load_a".into()];

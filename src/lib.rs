@@ -15,7 +15,6 @@ pub mod exit;
 pub mod interrupt;
 pub mod job;
 pub mod loop_cmd;
-pub mod measurements;
 pub mod pipeline;
 pub mod plot_cmd;
 pub mod print;

@@ -4,6 +4,9 @@
 //! they never disagree.
 
 use crate::eng::{count, eng, pass_fail, percent, yes_no};
+use stepflux_models::job::verdict::Bound;
+use stepflux_models::measure::{step, Figure, Kind, Section as CatalogueSection, Value};
+
 use crate::report::{Summary, Verdict};
 
 /// How a verdict line reads.
@@ -77,32 +80,16 @@ fn fail(text: String) -> Line {
     }
 }
 
-/// A limit's label and the unit of its value and bound.
-fn limit_meaning(limit: &str) -> (&'static str, &'static str) {
-    match limit {
-        "startup_overshoot_pct" => ("start-up overshoot", "%"),
-        "startup_t90" => ("start-up time to 90 %", "s"),
-        "step_deviation_pct" => ("step deviation", "%"),
-        "step_recovery" => ("step recovery", "s"),
-        "ripple_pp" => ("output ripple", "V"),
-        "reset_margin_pct" => ("reset margin", "%"),
-        "flux_margin_pct" => ("flux margin", "%"),
-        "efficiency_pct" => ("efficiency", "%"),
-        _ => ("limit", "1"),
-    }
-}
-
 /// "output ripple 33.3 mV ≤ 50.0 mV (margin 16.7 mV)" or
 /// "step recovery 310 µs > limit 200 µs".
 fn limit_line(v: &Verdict) -> Line {
-    let (label, unit) = limit_meaning(&v.limit);
+    let (label, unit) = (v.limit.label, v.limit.unit);
     let bound = eng(v.bound, unit);
-    let text = match v.value {
-        None => format!("{label} not measured (limit {bound})"),
-        Some(x) => {
-            let (ok_sign, bad_sign, margin) = match v.kind {
-                "max" => ("≤", ">", v.bound - x),
-                _ => ("≥", "<", x - v.bound),
+    let text = match (v.value, v.margin()) {
+        (Some(x), Some(margin)) => {
+            let (ok_sign, bad_sign) = match v.limit.bound {
+                Bound::AtMost => ("≤", ">"),
+                Bound::AtLeast => ("≥", "<"),
             };
             if v.pass {
                 format!(
@@ -114,6 +101,7 @@ fn limit_line(v: &Verdict) -> Line {
                 format!("{label} {} {bad_sign} limit {bound}", eng(x, unit))
             }
         }
+        _ => format!("{label} not measured (limit {bound})"),
     };
     Line {
         mark: if v.pass { Mark::Pass } else { Mark::Fail },
@@ -124,7 +112,7 @@ fn limit_line(v: &Verdict) -> Line {
 /// The core-reset verdict in one line: the first failing cycle's criterion, value
 /// against limit, cycle and time; or the tightest cycle when every cycle passed.
 fn reset_line(s: &Summary) -> Option<Line> {
-    let pass = s.get("reset_check.pass")? != 0.0;
+    let pass = s.figure("reset_check.pass")?.flag()?;
     let cycles = s.get("reset_check.cycles").map_or("n/a".into(), count);
     if pass {
         let why = criterion_text(s, "reset_check.worst").unwrap_or_default();
@@ -161,11 +149,9 @@ fn at_cycle(s: &Summary, prefix: &str) -> String {
 /// 100 V". The figures give the peak and the margin m = (limit − peak)/limit, so the
 /// limit is peak/(1 − m); no figure is added to the summary for it.
 fn criterion_text(s: &Summary, prefix: &str) -> Option<String> {
-    let key = format!("{prefix}.criterion.");
-    let c = s.measurements.iter().find(|f| f.name.starts_with(&key))?;
-    let name = &c.name[key.len()..];
-    let m = c.value?;
     let get = |what: &str| s.get(&format!("{prefix}.{what}"));
+    let name = s.figure(&format!("{prefix}.criterion"))?.choice()?;
+    let m = get("criterion_margin")?;
     let cmp = if m < 0.0 { ">" } else { "≤" };
     let text = match name {
         "reset_incomplete" => {
@@ -223,7 +209,7 @@ fn criterion_text(s: &Summary, prefix: &str) -> Option<String> {
 /// A start-up that dips before reaching 90 % says so: not a spec limit, but two
 /// regulators fighting (soft start against current limit) look like this.
 fn startup_line(s: &Summary) -> Option<Line> {
-    if s.get("startup.monotonic")? != 0.0 {
+    if s.figure("startup.monotonic")?.flag()? {
         return None;
     }
     let dip = s.get("startup.max_dip_before_t90").unwrap_or(f64::NAN);
@@ -239,96 +225,59 @@ fn startup_line(s: &Summary) -> Option<Line> {
     })
 }
 
-/// The key figures, grouped, each in engineering notation with its unit.
+/// The key figures, grouped as the catalogue places them, each in engineering
+/// notation with its unit; of the core-reset figures, the tightest cycle's.
 fn sections(s: &Summary) -> Vec<Section> {
-    let mut out = Vec::new();
-    let pick = |rows: &[(&str, &str, Kind)]| -> Vec<(String, String)> {
-        rows.iter()
-            .filter_map(|(name, label, kind)| {
-                s.measurements
-                    .iter()
-                    .find(|f| f.name == *name)
-                    .map(|f| (label.to_string(), show(f.value, &f.unit, *kind)))
+    let pick = |section: CatalogueSection| -> Vec<(String, String)> {
+        s.measurements
+            .iter()
+            .filter(|f| f.def.section == section)
+            .filter(|f| {
+                section != CatalogueSection::Reset || f.key.starts_with("reset_check.worst.")
             })
+            .map(|f| (label(f), show(f)))
             .collect()
     };
-    out.push(("start-up", pick(&STARTUP)));
-    out.push(("steps", steps(s)));
-    out.push(("steady state", pick(&STEADY)));
-    out.push(("core reset, tightest cycle", pick(&RESET)));
+    let mut out = vec![
+        (
+            CatalogueSection::StartUp.title(),
+            pick(CatalogueSection::StartUp),
+        ),
+        ("steps", steps(s)),
+        (
+            CatalogueSection::Steady.title(),
+            pick(CatalogueSection::Steady),
+        ),
+        (
+            CatalogueSection::Reset.title(),
+            pick(CatalogueSection::Reset),
+        ),
+    ];
     out.retain(|(_, rows)| !rows.is_empty());
     out
 }
 
-#[derive(Clone, Copy)]
-enum Kind {
-    Value,
-    /// A fraction shown as a percentage.
-    Percent,
-    Count,
-    /// A 0/1 flag shown as yes/no.
-    Flag,
-}
-
-fn show(value: Option<f64>, unit: &str, kind: Kind) -> String {
-    let v = value.unwrap_or(f64::NAN);
-    match kind {
-        Kind::Value => eng(v, unit),
-        Kind::Percent => percent(v),
-        Kind::Count => count(v),
-        Kind::Flag if v.is_finite() => yes_no(v != 0.0).into(),
-        Kind::Flag => count(v),
+/// A figure's label; a figure measured on a probe names it ("out.v ripple (p-p)").
+fn label(f: &Figure) -> String {
+    match f.def.key.strip_prefix("*.") {
+        Some(rest) => match f.key.strip_suffix(rest) {
+            Some(scope) => format!("{} {}", scope.trim_end_matches('.'), f.def.label),
+            None => f.def.label.to_string(),
+        },
+        None => f.def.label.to_string(),
     }
 }
 
-const STARTUP: [(&str, &str, Kind); 6] = [
-    ("startup.t90", "time to 90 %", Kind::Value),
-    ("startup.overshoot_pct", "overshoot", Kind::Value),
-    ("startup.peak", "peak", Kind::Value),
-    ("startup.peak_time", "peak at", Kind::Value),
-    ("startup.max_duty", "largest duty", Kind::Percent),
-    ("startup.monotonic", "monotonic rise", Kind::Flag),
-];
-
-const STEADY: [(&str, &str, Kind); 7] = [
-    ("out.v.mean", "output voltage", Kind::Value),
-    ("out.v.ripple_pp", "output ripple (p-p)", Kind::Value),
-    ("lout.i.mean", "inductor current", Kind::Value),
-    ("lout.i.ripple_pp", "inductor ripple (p-p)", Kind::Value),
-    (
-        "efficiency.stage",
-        "efficiency (power stage)",
-        Kind::Percent,
-    ),
-    (
-        "efficiency.with_bias",
-        "efficiency (with bias)",
-        Kind::Percent,
-    ),
-    ("power.loss_total", "losses", Kind::Value),
-];
-
-const RESET: [(&str, &str, Kind); 7] = [
-    ("reset_check.worst.cycle", "cycle", Kind::Count),
-    ("reset_check.worst.duty", "duty", Kind::Percent),
-    (
-        "reset_check.worst.reset_margin_pct",
-        "reset margin",
-        Kind::Value,
-    ),
-    (
-        "reset_check.worst.flux_margin_pct",
-        "flux margin",
-        Kind::Value,
-    ),
-    ("reset_check.worst.b_peak", "peak flux density", Kind::Value),
-    ("reset_check.worst.drain_peak", "drain peak", Kind::Value),
-    (
-        "reset_check.worst.mag_current_start",
-        "magnetising current at turn-on",
-        Kind::Value,
-    ),
-];
+/// A figure's value as its declaration says to read it.
+pub fn show(f: &Figure) -> String {
+    match (&f.value, f.def.kind) {
+        (Value::Flag(b), _) => yes_no(*b).into(),
+        (Value::Choice(c), _) => c.replace('_', " "),
+        (Value::Number(v), Kind::Fraction) => percent(*v),
+        (Value::Number(v), Kind::Count) => count(*v),
+        (Value::Number(v), _) => eng(*v, f.unit),
+    }
+}
 
 /// Each step's deviation and recovery in one row: "-96.9 mV (1.94 %) / +22.3 mV,
 /// recovers in 27.2 µs".
@@ -336,7 +285,8 @@ fn steps(s: &Summary) -> Vec<(String, String)> {
     let mut labels: Vec<&str> = s
         .measurements
         .iter()
-        .filter_map(|f| f.name.strip_suffix(".recovery"))
+        .filter(|f| std::ptr::eq(f.def, &step::RECOVERY))
+        .filter_map(|f| f.key.strip_suffix(".recovery"))
         .collect();
     labels.dedup();
     labels

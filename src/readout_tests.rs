@@ -4,14 +4,15 @@
 
 use super::*;
 use crate::report::{Figure, CAUTION};
+use stepflux_models::job::verdict::find_limit;
+use stepflux_models::measure::{catalogue, Value};
 
-fn figure(name: &str, value: f64, unit: &str) -> Figure {
-    Figure {
-        name: name.into(),
-        value: value.is_finite().then_some(value),
-        unit: unit.into(),
-        reason: None,
-    }
+/// A figure by key as a run would report it, found in the catalogue.
+fn figure(key: &str, value: impl Into<Value>) -> Figure {
+    let def = catalogue::find(key).unwrap_or_else(|| panic!("{key} is not declared"));
+    let mut f = def.of_key(key, value);
+    f.unit = if def.unit == "*" { "V" } else { def.unit };
+    f
 }
 
 fn summary(measurements: Vec<Figure>, verdicts: Vec<Verdict>) -> Summary {
@@ -40,13 +41,14 @@ fn a_failed_reset_check_says_why_in_one_line() {
     let p = "reset_check.first_failure";
     let s = summary(
         vec![
-            figure("reset_check.pass", 0.0, "1"),
-            figure("reset_check.cycles", 40.0, "1"),
-            figure("reset_check.failed_cycles", 29.0, "1"),
-            figure(&format!("{p}.cycle"), 12.0, "1"),
-            figure(&format!("{p}.time"), 80e-6, "s"),
-            figure(&format!("{p}.criterion.drain_voltage"), -7.08, "1"),
-            figure(&format!("{p}.drain_peak"), 808.0, "V"),
+            figure("reset_check.pass", false),
+            figure("reset_check.cycles", 40.0),
+            figure("reset_check.failed_cycles", 29.0),
+            figure(&format!("{p}.cycle"), 12.0),
+            figure(&format!("{p}.time"), 80e-6),
+            figure(&format!("{p}.criterion"), "drain_voltage"),
+            figure(&format!("{p}.criterion_margin"), -7.08),
+            figure(&format!("{p}.drain_peak"), 808.0),
         ],
         Vec::new(),
     );
@@ -69,20 +71,19 @@ fn a_failed_reset_check_says_why_in_one_line() {
 /// fails shows value against limit.
 #[test]
 fn limits_read_value_against_bound_with_units() {
-    let v = |limit: &str, value, bound, kind, pass| Verdict {
-        limit: limit.into(),
+    let v = |limit: &str, value, bound, pass| Verdict {
+        limit: find_limit(limit).expect("a declared limit"),
         value: Some(value),
         bound,
-        kind,
         pass,
         reason: None,
     };
     let s = summary(
         Vec::new(),
         vec![
-            v("ripple_pp", 0.0333, 0.05, "max", true),
-            v("step_recovery", 310e-6, 200e-6, "max", false),
-            v("reset_margin_pct", 11.7, 5.0, "min", true),
+            v("ripple_pp", 0.0333, 0.05, true),
+            v("recovery_time", 310e-6, 200e-6, false),
+            v("reset_margin_percent", 11.7, 5.0, true),
         ],
     );
     let texts: Vec<String> = readout(&s).verdicts.into_iter().map(|l| l.text).collect();
@@ -102,9 +103,9 @@ fn limits_read_value_against_bound_with_units() {
 fn a_start_up_that_is_not_monotonic_says_so() {
     let s = summary(
         vec![
-            figure("startup.monotonic", 0.0, "1"),
-            figure("startup.max_dip_before_t90", 0.602, "V"),
-            figure("startup.dip_allowance", 0.05, "V"),
+            figure("startup.monotonic", false),
+            figure("startup.max_dip_before_t90", 0.602),
+            figure("startup.dip_allowance", 0.05),
         ],
         Vec::new(),
     );

@@ -1,52 +1,12 @@
 //! The run summary: measurements with units, verdicts against the scenario's limits.
 
 use serde::Serialize;
-use stepflux_models::measure;
 
 use crate::job::Job;
+use crate::writers::figure_json::{serialize_figures, serialize_verdicts};
 
-/// One measured figure.
-#[derive(Clone, Debug, Serialize, PartialEq)]
-pub struct Figure {
-    /// Name, e.g. `startup.overshoot_pct`.
-    pub name: String,
-    /// Value in `unit` (non-finite values are reported as null).
-    pub value: Option<f64>,
-    /// SI unit symbol ("1" for ratios, "%" for percentages).
-    pub unit: String,
-    /// Why `value` is null; absent when there is a value.
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub reason: Option<String>,
-}
-
-impl From<measure::Figure> for Figure {
-    fn from(f: measure::Figure) -> Self {
-        Figure {
-            name: f.name,
-            value: f.value.is_finite().then_some(f.value),
-            unit: f.unit.to_string(),
-            reason: None,
-        }
-    }
-}
-
-/// A measurement judged against a limit.
-#[derive(Clone, Debug, Serialize, PartialEq)]
-pub struct Verdict {
-    /// Which limit (the scenario's field name).
-    pub limit: String,
-    /// The measured value (None: not measured, which fails).
-    pub value: Option<f64>,
-    /// The limit.
-    pub bound: f64,
-    /// `max` (value must not exceed) or `min` (must not fall below).
-    pub kind: &'static str,
-    /// Whether it holds.
-    pub pass: bool,
-    /// Why `value` is null; absent when there is a value.
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub reason: Option<String>,
-}
+pub use stepflux_models::job::verdict::Verdict;
+pub use stepflux_models::measure::Figure;
 
 /// Where a run stopped on request (SIGINT or SIGTERM).
 #[derive(Clone, Debug, Serialize, PartialEq)]
@@ -81,10 +41,13 @@ pub struct Summary {
     /// Waveform samples written.
     pub samples: usize,
     /// Design figures derived before the run (closed forms).
+    #[serde(serialize_with = "serialize_figures")]
     pub design: Vec<Figure>,
     /// Measurements.
+    #[serde(serialize_with = "serialize_figures")]
     pub measurements: Vec<Figure>,
     /// Verdicts against the limits.
+    #[serde(serialize_with = "serialize_verdicts")]
     pub verdicts: Vec<Verdict>,
     /// True when every verdict passes, the core-reset check passes and the run finished.
     pub passed: bool,
@@ -124,7 +87,7 @@ impl Summary {
                 .to_string(),
         };
         for f in self.measurements.iter_mut().chain(self.design.iter_mut()) {
-            if f.value.is_none() && f.reason.is_none() {
+            if !f.has_value() && f.reason.is_none() {
                 f.reason = Some(reason.clone());
             }
         }
@@ -135,123 +98,22 @@ impl Summary {
         }
     }
 
-    /// Value of a measurement by name.
-    pub fn get(&self, name: &str) -> Option<f64> {
-        self.measurements
-            .iter()
-            .find(|f| f.name == name)
-            .and_then(|f| f.value)
+    /// Value of a measurement by key, as a number (flags as 1 or 0).
+    pub fn get(&self, key: &str) -> Option<f64> {
+        self.figure(key).and_then(Figure::number)
+    }
+
+    /// A measurement by key.
+    pub fn figure(&self, key: &str) -> Option<&Figure> {
+        self.measurements.iter().find(|f| f.key == key)
     }
 }
 
-/// The verdicts a job's limits ask for, from the measured figures.
-pub fn verdicts(job: &Job, m: &[Figure]) -> Vec<Verdict> {
-    let get = |n: &str| m.iter().find(|f| f.name == n).and_then(|f| f.value);
-    // Worst over every step: figures are named `<label>.<what>`. A reference step is
-    // judged like the others, against the set point it moved to.
-    let worst = |suffix: &str| -> Option<f64> {
-        let values: Vec<f64> = m
-            .iter()
-            .filter(|f| {
-                ["load_step", "line_step", "reference_step"]
-                    .iter()
-                    .any(|p| f.name.starts_with(p))
-                    && f.name.ends_with(suffix)
-            })
-            .map(|f| f.value.unwrap_or(f64::INFINITY))
-            .collect();
-        values.into_iter().reduce(f64::max)
-    };
-    let l = &job.limits;
-    let mut v = Vec::new();
-    let mut check = |limit: &str, value: Option<f64>, bound: Option<f64>, kind: &'static str| {
-        if let Some(bound) = bound {
-            let pass = value.is_some_and(|x| {
-                if kind == "max" {
-                    x <= bound
-                } else {
-                    x >= bound
-                }
-            });
-            v.push(Verdict {
-                limit: limit.into(),
-                value,
-                bound,
-                kind,
-                pass,
-                reason: None,
-            });
-        }
-    };
-    check(
-        "startup_overshoot_pct",
-        get("startup.overshoot_pct"),
-        l.startup_overshoot_pct,
-        "max",
-    );
-    check("startup_t90", get("startup.t90"), l.startup_t90, "max");
-    let deviation = worst(".undershoot_pct")
-        .into_iter()
-        .chain(worst(".overshoot_pct"))
-        .reduce(f64::max);
-    check("step_deviation_pct", deviation, l.step_deviation_pct, "max");
-    check("step_recovery", worst(".recovery"), l.step_recovery, "max");
-    check("ripple_pp", get("out.v.ripple_pp"), l.ripple_pp, "max");
-    check(
-        "reset_margin_pct",
-        get("reset_check.worst.reset_margin_pct"),
-        l.reset_margin_pct,
-        "min",
-    );
-    check(
-        "flux_margin_pct",
-        get("reset_check.worst.flux_margin_pct"),
-        l.flux_margin_pct,
-        "min",
-    );
-    check(
-        "efficiency_pct",
-        get("efficiency.stage").map(|e| 100.0 * e),
-        l.efficiency_pct,
-        "min",
-    );
-    v
-}
-
-/// The paper design figures of a job (closed forms at its operating range), as
-/// summary figures.
+/// The paper design figures of a job (closed forms at its operating range).
 pub fn design_figures(job: &Job) -> Vec<Figure> {
-    let f = stepflux_models::figures::DesignFigures::compute(
+    stepflux_models::figures::DesignFigures::compute(
         &job.design,
         &crate::scenario::design_point(job),
-    );
-    let mut out = vec![
-        ("turns_ratio.secondary", Some(f.secondary_ratio), "1"),
-        ("turns_ratio.reset", f.reset_ratio, "1"),
-        ("output_voltage", Some(f.output_voltage), "V"),
-        ("load_current", Some(f.load_current), "A"),
-        ("duty.nominal", Some(f.nominal_duty), "1"),
-        ("duty.low_line_needed", f.low_line_duty_needed, "1"),
-        ("duty.reset_limit", f.reset_limit_duty, "1"),
-        ("magnetising_peak", Some(f.magnetising_peak), "A"),
-        ("flux_peak", Some(f.flux_peak), "T"),
-        ("inductor_ripple", Some(f.inductor_ripple), "A"),
-        ("output_ripple", Some(f.output_ripple), "V"),
-        ("clamp_voltage", f.clamp_voltage, "V"),
-        ("drain_stress", Some(f.drain_stress), "V"),
-    ];
-    out.retain(|(_, v, _)| v.is_some());
-    out.into_iter()
-        .map(|(name, value, unit)| {
-            let value = value.filter(|v| v.is_finite());
-            Figure {
-                name: format!("design.{name}"),
-                value,
-                unit: unit.into(),
-                reason: value
-                    .is_none()
-                    .then(|| "its closed form has no finite value for this design".into()),
-            }
-        })
-        .collect()
+    )
+    .figures()
 }

@@ -13,7 +13,7 @@ use indicatif::{MultiProgress, ProgressBar, ProgressDrawTarget, ProgressStyle};
 use rayon::prelude::*;
 
 use crate::exit::{Exit, Failure};
-use crate::pipeline::{run_job, RunOutput};
+use crate::pipeline::{run_loaded, RunOutput, RunSettings};
 use crate::scenario::{self, Loaded};
 
 /// How a run command reports.
@@ -175,7 +175,7 @@ fn one(path: &Path, loaded: &Loaded, out: &Path, bars: &MultiProgress) -> Outcom
     bar.enable_steady_tick(Duration::from_millis(500));
     let progress = |f: f64| bar.set_position((1000.0 * f) as u64);
     let result = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
-        run_job(&loaded.job, out, &progress)
+        run_loaded(&loaded, out, &progress, RunSettings::interactive())
     }));
     bar.finish_and_clear();
     match result {

@@ -15,11 +15,11 @@ use serde::Serialize;
 use crate::check::eng;
 use crate::exit::{Exit, ExitWith, Failure};
 use crate::job::{Drive, Job, NamedState, Start};
-use crate::measurements::period;
 use crate::pipeline::{run_job_with, RunSettings};
 use crate::report::Figure;
 use crate::scenario;
 use crate::steady::{find_with_period, PeriodFigures, SteadyReport};
+use stepflux_models::job::plan::period;
 
 /// Periods run from the steady state to measure it (the pipeline's steady window is
 /// the last 20 of them).
@@ -41,6 +41,7 @@ pub struct OperatingPoint {
     pub period: PeriodFigures,
     /// The run's measurements: output mean and ripple, powers, efficiency, losses by
     /// class and element (SI units).
+    #[serde(serialize_with = "crate::writers::figure_json::serialize_figures")]
     pub measurements: Vec<Figure>,
 }
 
@@ -49,8 +50,8 @@ impl OperatingPoint {
     pub fn get(&self, name: &str) -> Option<f64> {
         self.measurements
             .iter()
-            .find(|f| f.name == name)
-            .and_then(|f| f.value)
+            .find(|f| f.key == name)
+            .and_then(Figure::number)
     }
 }
 
@@ -191,15 +192,11 @@ pub fn report_text(p: &OperatingPoint) -> String {
         percent(p.get("efficiency.with_bias")),
     );
     out.push_str("losses:\n");
-    for f in p
-        .measurements
-        .iter()
-        .filter(|f| f.name.starts_with("loss."))
-    {
+    for f in p.measurements.iter().filter(|f| f.key.starts_with("loss.")) {
         line(
             &mut out,
-            &f.name["loss.".len()..],
-            f.value.map_or("-".into(), |v| eng(v, "W")),
+            &f.key["loss.".len()..],
+            f.number().map_or("-".into(), |v| eng(v, "W")),
         );
     }
     out

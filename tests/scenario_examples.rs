@@ -77,15 +77,21 @@ fn check_json_reports_the_demo_figures() {
     let out = stepflux(&["check", "--json", "scenarios/demo-startup.json"]);
     assert_eq!(out.status.code(), Some(0));
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
-    let f = &v["figures"];
-    let get = |k: &str| f[k].as_f64().unwrap_or(f64::NAN);
+    // The figures are listed as in summary.json's "design": name, value, unit.
+    let f = v["figures"].as_array().expect("a list of figures");
+    let get = |k: &str| {
+        f.iter()
+            .find(|x| x["name"] == k)
+            .and_then(|x| x["value"].as_f64())
+            .unwrap_or(f64::NAN)
+    };
     // Erickson & Maksimović §6.3.2 and §2.2: D = (Vo + Vf)/(Vin·Ns/Np) = 5.4/18;
     // reset limit 1/(1 + Nr/Np) = 0.5; drain Vin·(1 + Np/Nr) = 48 V. Tolerance 1e-12
     // relative (rounding only).
     for (key, want) in [
-        ("nominal_duty", 0.3),
-        ("reset_limit_duty", 0.5),
-        ("drain_stress_v", 48.0),
+        ("design.duty.nominal", 0.3),
+        ("design.duty.reset_limit", 0.5),
+        ("design.drain_stress", 48.0),
     ] {
         assert!(
             (get(key) - want).abs() <= 1e-12 * want,

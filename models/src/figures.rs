@@ -387,3 +387,61 @@ mod tests {
         close(f.reset_limit_duty.unwrap(), 0.5);
     }
 }
+
+crate::measure::catalogue::figures! {
+    SECONDARY_RATIO = "design.turns_ratio.secondary", "1", Number, Neither, Files,
+        "turns ratio Ns/Np", "Secondary over primary turns.";
+    RESET_RATIO = "design.turns_ratio.reset", "1", Number, Neither, Files,
+        "turns ratio Nr/Np", "Reset-winding over primary turns (reset-winding scheme).";
+    OUTPUT_VOLTAGE = "design.output_voltage", "V", Number, Neither, Files,
+        "output voltage", "The set point, or the fixed duty's output at nominal line.";
+    LOAD_CURRENT = "design.load_current", "A", Number, Neither, Files,
+        "load current", "Load current at that output voltage.";
+    NOMINAL_DUTY = "design.duty.nominal", "1", Fraction, Neither, Files,
+        "duty at nominal line", "Duty at the input voltage at t = 0, capped at the maximum.";
+    LOW_LINE_DUTY = "design.duty.low_line_needed", "1", Fraction, Higher, Files,
+        "duty needed at low line", "Duty that holds the set point at low line, uncapped.";
+    RESET_LIMIT_DUTY = "design.duty.reset_limit", "1", Fraction, Lower, Files,
+        "reset duty limit", "Highest duty at which the core still resets fully.";
+    MAGNETISING_PEAK = "design.magnetising_peak", "A", Number, Higher, Files,
+        "magnetising current peak", "At the end of a maximum-duty on-time at low line, from a reset core.";
+    FLUX_PEAK = "design.flux_peak", "T", Number, Higher, Files,
+        "flux density peak", "At the end of a maximum-duty on-time at low line.";
+    INDUCTOR_RIPPLE = "design.inductor_ripple", "A", Number, Higher, Files,
+        "inductor ripple (p-p)", "Output inductor ripple at nominal line.";
+    OUTPUT_RIPPLE = "design.output_ripple", "V", Number, Higher, Files,
+        "output ripple (p-p)", "Capacitive plus ESR ripple at nominal line, an upper bound.";
+    CLAMP_VOLTAGE = "design.clamp_voltage", "V", Number, Higher, Files,
+        "clamp voltage", "Clamp capacitor voltage above the input, highest over the line range.";
+    DRAIN_STRESS = "design.drain_stress", "V", Number, Higher, Files,
+        "drain stress", "Highest steady drain-source voltage of the main switch over the line range.";
+}
+
+impl DesignFigures {
+    /// As catalogue figures; a figure the scheme does not have is left out, one whose
+    /// closed form has no finite value says so.
+    pub fn figures(&self) -> Vec<crate::measure::Figure> {
+        let all: [(&'static crate::measure::FigureDef, Option<f64>); 13] = [
+            (&SECONDARY_RATIO, Some(self.secondary_ratio)),
+            (&RESET_RATIO, self.reset_ratio),
+            (&OUTPUT_VOLTAGE, Some(self.output_voltage)),
+            (&LOAD_CURRENT, Some(self.load_current)),
+            (&NOMINAL_DUTY, Some(self.nominal_duty)),
+            (&LOW_LINE_DUTY, self.low_line_duty_needed),
+            (&RESET_LIMIT_DUTY, self.reset_limit_duty),
+            (&MAGNETISING_PEAK, Some(self.magnetising_peak)),
+            (&FLUX_PEAK, Some(self.flux_peak)),
+            (&INDUCTOR_RIPPLE, Some(self.inductor_ripple)),
+            (&OUTPUT_RIPPLE, Some(self.output_ripple)),
+            (&CLAMP_VOLTAGE, self.clamp_voltage),
+            (&DRAIN_STRESS, Some(self.drain_stress)),
+        ];
+        all.into_iter()
+            .filter_map(|(d, v)| v.map(|v| d.of(v)))
+            .map(|f| match f.has_value() {
+                true => f,
+                false => f.because("its closed form has no finite value for this design"),
+            })
+            .collect()
+    }
+}

@@ -21,6 +21,7 @@ pub mod disturbance;
 mod error;
 pub mod figures;
 pub mod gate;
+pub mod job;
 pub mod loopgain;
 pub mod measure;
 pub mod run;

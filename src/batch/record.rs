@@ -8,7 +8,10 @@ use std::path::Path;
 
 use serde::{Deserialize, Serialize};
 
-use crate::report::Summary;
+use crate::report::{Figure, Summary, Verdict};
+use crate::writers::figure_json::{
+    deserialize_figures, deserialize_verdicts, serialize_figures, serialize_verdicts,
+};
 
 /// How a case ended.
 #[derive(Clone, Copy, Debug, Deserialize, Serialize, PartialEq, Eq, PartialOrd, Ord)]
@@ -33,35 +36,6 @@ impl Status {
     }
 }
 
-/// One measurement.
-#[derive(Clone, Debug, Deserialize, Serialize, PartialEq)]
-pub struct Measurement {
-    /// Name, as in the run summary.
-    pub name: String,
-    /// Value in `unit`.
-    pub value: f64,
-    /// Unit symbol.
-    pub unit: String,
-}
-
-/// One limit check.
-#[derive(Clone, Debug, Deserialize, Serialize, PartialEq)]
-pub struct Check {
-    /// Limit name.
-    pub limit: String,
-    /// Measured value (None: could not be measured, which fails).
-    pub value: Option<f64>,
-    /// Limit value.
-    pub bound: f64,
-    /// `max` or `min`.
-    pub kind: String,
-    /// Whether it held.
-    pub pass: bool,
-    /// Why `value` is null; absent when there is a value.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub reason: Option<String>,
-}
-
 /// Contents of a case file.
 #[derive(Clone, Debug, Deserialize, Serialize, PartialEq)]
 pub struct CaseRecord {
@@ -79,9 +53,17 @@ pub struct CaseRecord {
     /// Outcome.
     pub status: Status,
     /// Measurements (none when errored).
-    pub measurements: Vec<Measurement>,
+    #[serde(
+        serialize_with = "serialize_figures",
+        deserialize_with = "deserialize_figures"
+    )]
+    pub measurements: Vec<Figure>,
     /// Limit checks.
-    pub verdicts: Vec<Check>,
+    #[serde(
+        serialize_with = "serialize_verdicts",
+        deserialize_with = "deserialize_verdicts"
+    )]
+    pub verdicts: Vec<Verdict>,
     /// Why it errored.
     pub error: Option<String>,
     /// Wall-clock seconds; excluded from the result tables.
@@ -117,26 +99,10 @@ impl CaseRecord {
         self.measurements = s
             .measurements
             .iter()
-            .filter_map(|f| {
-                f.value.map(|value| Measurement {
-                    name: f.name.clone(),
-                    value,
-                    unit: f.unit.clone(),
-                })
-            })
+            .filter(|f| f.has_value())
+            .cloned()
             .collect();
-        self.verdicts = s
-            .verdicts
-            .iter()
-            .map(|v| Check {
-                limit: v.limit.clone(),
-                value: v.value,
-                bound: v.bound,
-                kind: v.kind.to_string(),
-                pass: v.pass,
-                reason: v.reason.clone(),
-            })
-            .collect();
+        self.verdicts.clone_from(&s.verdicts);
         self.error = s.error.clone();
         // `passed` also holds the run's own core-reset check, which has no limit entry.
         self.status = match (&s.error, s.passed) {

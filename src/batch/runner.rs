@@ -16,7 +16,7 @@ use super::cases::{fingerprint, scenario_text, Case};
 use super::record::{write_json, CaseRecord, Status};
 use super::study::Study;
 use crate::budget;
-use crate::pipeline::{run_job_with, RunSettings};
+use crate::pipeline::{run_loaded, RunSettings};
 use crate::report::Summary;
 use crate::scenario;
 use crate::writers::atomic::remove_stale_temporaries;
@@ -255,7 +255,7 @@ fn simulate(
         waveforms: policy != Waveforms::None,
         stop: Some(stop),
     };
-    let output = run_job_with(&loaded.job, waveform_root, &|_| {}, settings)?;
+    let output = run_loaded(&loaded, waveform_root, &|_| {}, settings)?;
     if policy == Waveforms::Failed && output.summary.passed && output.summary.interrupted.is_none()
     {
         std::fs::remove_dir_all(&output.dir)

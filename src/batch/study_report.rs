@@ -10,6 +10,8 @@ use anyhow::Result;
 
 use super::record::{write_atomic, CaseRecord, Status};
 use super::table::{worst_case, worst_of, StudyMeta};
+use stepflux_models::measure::Kind;
+
 use crate::eng::{count, eng, pass_fail, prefixed};
 use crate::writers::html::{caution, escape, page};
 
@@ -51,15 +53,16 @@ pub fn write(dir: &Path, meta: &StudyMeta, records: &[CaseRecord]) -> Result<()>
 fn value_of<'a>(r: &'a CaseRecord, name: &str) -> Option<(f64, &'a str)> {
     r.measurements
         .iter()
-        .find(|m| m.name == name)
-        .map(|m| (m.value, m.unit.as_str()))
+        .find(|m| m.key == name)
+        .and_then(|m| m.number().map(|v| (v, m.unit)))
 }
 
-/// A figure as a person reads it; efficiency (a fraction) in percent, counts whole.
+/// A figure as a person reads it, as its declaration says (fractions in percent,
+/// counts whole).
 fn shown(name: &str, value: f64, unit: &str) -> String {
-    match name {
-        "efficiency.stage" => eng(100.0 * value, "%"),
-        "reset_check.failed_cycles" => count(value),
+    match stepflux_models::measure::catalogue::find(name).map(|d| d.kind) {
+        Some(Kind::Fraction) => eng(100.0 * value, "%"),
+        Some(Kind::Count) => count(value),
         _ => eng(value, unit),
     }
 }
@@ -158,7 +161,7 @@ fn cases_table(b: &mut String, dir: &Path, meta: &StudyMeta, records: &[CaseReco
             .verdicts
             .iter()
             .filter(|v| !v.pass)
-            .map(|v| v.limit.as_str())
+            .map(|v| v.limit.field)
             .collect();
         let why = r.error.as_deref().unwrap_or("");
         let _ = write!(

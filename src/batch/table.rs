@@ -10,7 +10,9 @@ use std::path::Path;
 
 use anyhow::Result;
 use serde::{Deserialize, Serialize};
-use serde_json::{json, Value};
+use serde_json::{json, Value as Value2};
+
+use stepflux_models::measure::{catalogue, Figure, Kind, Value, Worse};
 
 use super::record::{write_atomic, write_json, CaseRecord, Status};
 
@@ -29,59 +31,14 @@ pub struct StudyMeta {
     pub parameters: BTreeMap<String, String>,
 }
 
-/// Which end of a measurement is worst.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum Worst {
-    /// Largest value: losses, peaks, ripple, overshoot, undershoot, dips, start-up and
-    /// recovery times, counts of failed cycles.
-    Max,
-    /// Smallest value: margins, efficiency, pass flags (1 pass, 0 fail).
-    Min,
-    /// Largest magnitude: errors that may have either sign (energy balance).
-    AbsMax,
-}
-
-/// Name endings of figures that are not a quality, so have no worst case: when
-/// something happened, where a window lies, means, ratings and settings echoed back.
-const NEUTRAL_ENDINGS: [&str; 17] = [
-    "_at",
-    "_time",
-    ".time",
-    ".cycle",
-    "_cycle",
-    ".cycles",
-    "window_start",
-    "window_end",
-    ".rating",
-    "allowance",
-    ".mean",
-    ".min",
-    "bias_power",
-    ".set_point",
-    "band_pct",
-    "duty_max_after",
-    "duty_min_after",
-];
-
-/// The worst direction of a measurement, or `None` for figures that are not a quality
-/// (see [`NEUTRAL_ENDINGS`]; also power in and out and the stored-energy change, which
-/// follow the operating point).
-pub fn worst_of(name: &str) -> Option<Worst> {
-    let neutral = NEUTRAL_ENDINGS.iter().any(|e| name.ends_with(e))
-        || name.contains("criterion")
-        || matches!(name, "power.in" | "power.out" | "power.stored_change");
-    if neutral {
-        None
-    } else if name.contains("margin")
-        || name.contains("efficiency")
-        || name.ends_with(".pass")
-        || name.ends_with(".monotonic")
-    {
-        Some(Worst::Min)
-    } else if name.contains("error") {
-        Some(Worst::AbsMax)
-    } else {
-        Some(Worst::Max)
+/// The worst direction of a figure by key, from its declaration; `None` for figures
+/// that are not a quality (operating points, instants, settings echoed back) and for
+/// choices.
+pub fn worst_of(key: &str) -> Option<Worse> {
+    let def = catalogue::find(key)?;
+    match (def.worse, def.kind) {
+        (_, Kind::Choice) | (Worse::Neither, _) => None,
+        (w, _) => Some(w),
     }
 }
 
@@ -119,7 +76,7 @@ fn units(records: &[CaseRecord]) -> BTreeMap<String, String> {
     records
         .iter()
         .flat_map(|r| &r.measurements)
-        .map(|m| (m.name.clone(), m.unit.clone()))
+        .map(|m| (m.key.clone(), m.unit.to_string()))
         .collect()
 }
 
@@ -127,7 +84,7 @@ fn limits(records: &[CaseRecord]) -> BTreeSet<String> {
     records
         .iter()
         .flat_map(|r| &r.verdicts)
-        .map(|v| v.limit.clone())
+        .map(|v| v.limit.field.to_string())
         .collect()
 }
 
@@ -142,18 +99,15 @@ fn csv(meta: &StudyMeta, records: &[CaseRecord], units: &BTreeMap<String, String
     for r in records {
         let mut cells = vec![r.id.clone(), r.status.as_str().to_string()];
         cells.extend(meta.parameters.keys().map(|p| number(r.parameters.get(p))));
-        cells.extend(units.keys().map(|n| {
-            number(
-                r.measurements
-                    .iter()
-                    .find(|m| &m.name == n)
-                    .map(|m| &m.value),
-            )
-        }));
+        cells.extend(
+            units
+                .keys()
+                .map(|n| cell(r.measurements.iter().find(|m| &m.key == n))),
+        );
         cells.extend(
             limits
                 .iter()
-                .map(|l| match r.verdicts.iter().find(|v| &v.limit == l) {
+                .map(|l| match r.verdicts.iter().find(|v| v.limit.field == l) {
                     Some(v) if v.pass => "pass".to_string(),
                     Some(_) => "FAIL".to_string(),
                     None => String::new(),
@@ -168,6 +122,30 @@ fn csv(meta: &StudyMeta, records: &[CaseRecord], units: &BTreeMap<String, String
 /// Shortest text that reads back to the same f64 (Rust's `Display`).
 fn number(x: Option<&f64>) -> String {
     x.map(|x| x.to_string()).unwrap_or_default()
+}
+
+/// A figure's cell: a number as [`number`] writes it, a flag as `true`/`false`, a
+/// choice by its name, nothing where there is no value.
+fn cell(f: Option<&Figure>) -> String {
+    match f.map(|f| &f.value) {
+        Some(Value::Number(v)) if v.is_finite() => v.to_string(),
+        Some(Value::Flag(b)) => b.to_string(),
+        Some(Value::Choice(c)) => c.to_string(),
+        _ => String::new(),
+    }
+}
+
+/// A figure's value in the JSON tables.
+fn json_value(f: &Figure) -> Value2 {
+    match &f.value {
+        Value::Number(v) => json!(v.is_finite().then_some(*v)),
+        Value::Flag(b) => json!(b),
+        Value::Choice(c) => json!(c),
+    }
+}
+
+fn verdicts_json(v: &[crate::report::Verdict]) -> Value2 {
+    json!(crate::writers::figure_json::Verdicts(v))
 }
 
 /// One CSV line (RFC 4180 quoting).
@@ -192,21 +170,21 @@ fn results_json(
     records: &[CaseRecord],
     units: &BTreeMap<String, String>,
     missing: &[String],
-) -> Value {
-    let cases: Vec<Value> = records
+) -> Value2 {
+    let cases: Vec<Value2> = records
         .iter()
         .map(|r| {
-            let measurements: BTreeMap<&str, f64> = r
+            let measurements: BTreeMap<&str, Value2> = r
                 .measurements
                 .iter()
-                .map(|m| (m.name.as_str(), m.value))
+                .map(|m| (m.key.as_str(), json_value(m)))
                 .collect();
             json!({
                 "id": r.id,
                 "status": r.status,
                 "parameters": r.parameters,
                 "measurements": measurements,
-                "verdicts": r.verdicts,
+                "verdicts": verdicts_json(&r.verdicts),
                 "error": r.error,
             })
         })
@@ -223,7 +201,11 @@ fn results_json(
     })
 }
 
-fn worst_json(meta: &StudyMeta, records: &[CaseRecord], units: &BTreeMap<String, String>) -> Value {
+fn worst_json(
+    meta: &StudyMeta,
+    records: &[CaseRecord],
+    units: &BTreeMap<String, String>,
+) -> Value2 {
     let ran: Vec<&CaseRecord> = records
         .iter()
         .filter(|r| r.status != Status::Errored)
@@ -236,9 +218,9 @@ fn worst_json(meta: &StudyMeta, records: &[CaseRecord], units: &BTreeMap<String,
         if let Some((r, value)) = worst_case(&ran, name, rule) {
             let entry = json!({
                 "worst": match rule {
-                    Worst::Max => "max",
-                    Worst::Min => "min",
-                    Worst::AbsMax => "largest magnitude",
+                    Worse::Higher => "max",
+                    Worse::Lower => "min",
+                    _ => "largest magnitude",
                 },
                 "value": value,
                 "unit": unit,
@@ -256,22 +238,22 @@ fn worst_json(meta: &StudyMeta, records: &[CaseRecord], units: &BTreeMap<String,
 pub(super) fn worst_case<'a>(
     ran: &[&'a CaseRecord],
     name: &str,
-    rule: Worst,
+    rule: Worse,
 ) -> Option<(&'a CaseRecord, f64)> {
     let mut worst: Option<(&CaseRecord, f64, f64)> = None;
     for r in ran {
         let Some(value) = r
             .measurements
             .iter()
-            .find(|m| m.name == name)
-            .map(|m| m.value)
+            .find(|m| m.key == name)
+            .and_then(Figure::number)
         else {
             continue;
         };
         let score = match rule {
-            Worst::Max => value,
-            Worst::Min => -value,
-            Worst::AbsMax => value.abs(),
+            Worse::Higher => value,
+            Worse::Lower => -value,
+            Worse::Magnitude | Worse::Neither => value.abs(),
         };
         if worst.is_none_or(|(_, _, s)| score > s) {
             worst = Some((r, value, score));
@@ -286,23 +268,25 @@ mod tests {
 
     #[test]
     fn worst_directions() {
-        // The definition: max for overshoot, ripple and deviation; min for
+        // Read from the catalogue's declarations: max for overshoot, ripple and deviation; min for
         // margins and efficiency.
-        assert_eq!(worst_of("out.v.ripple_pp"), Some(Worst::Max));
-        assert_eq!(worst_of("startup.overshoot_pct"), Some(Worst::Max));
-        assert_eq!(worst_of("load_step1.undershoot_pct"), Some(Worst::Max));
-        assert_eq!(worst_of("startup.t90"), Some(Worst::Max));
-        assert_eq!(worst_of("loss.switch"), Some(Worst::Max));
+        assert_eq!(worst_of("out.v.ripple_pp"), Some(Worse::Higher));
+        assert_eq!(worst_of("startup.overshoot_pct"), Some(Worse::Higher));
+        assert_eq!(worst_of("load_step1.undershoot_pct"), Some(Worse::Higher));
+        assert_eq!(worst_of("startup.t90"), Some(Worse::Higher));
+        assert_eq!(worst_of("loss.switch"), Some(Worse::Higher));
         assert_eq!(
             worst_of("reset_check.worst.flux_margin_pct"),
-            Some(Worst::Min)
+            Some(Worse::Lower)
         );
-        assert_eq!(worst_of("efficiency.stage"), Some(Worst::Min));
-        assert_eq!(worst_of("reset_check.pass"), Some(Worst::Min));
-        assert_eq!(worst_of("power.balance_error"), Some(Worst::AbsMax));
+        assert_eq!(worst_of("efficiency.stage"), Some(Worse::Lower));
+        assert_eq!(worst_of("reset_check.pass"), Some(Worse::Lower));
+        assert_eq!(worst_of("power.balance_error"), Some(Worse::Magnitude));
         assert_eq!(worst_of("startup.peak_time"), None);
         assert_eq!(worst_of("out.v.mean"), None);
         assert_eq!(worst_of("reset_check.worst.rect.v.rating"), None);
+        assert_eq!(worst_of("reset_check.worst.criterion"), None);
+        assert_eq!(worst_of("load_step1.min_time"), None);
     }
 
     #[test]

@@ -6,9 +6,9 @@
 
 use stepflux_engine::{SimOptions, TimeGrid};
 use stepflux_models::controller::OutputMode;
-use stepflux_models::disturbance::{prepare, Disturbance};
+use stepflux_models::disturbance::Disturbance;
 use stepflux_models::figures::{DesignFigures, DesignPoint};
-use stepflux_models::steady::names::{circuit_state_names, describe_all, StateClass, StateName};
+use stepflux_models::steady::names::{describe_all, StateClass, StateName};
 use stepflux_models::template::{ForwardDesign, ResetScheme};
 use stepflux_models::ModelError;
 
@@ -31,8 +31,11 @@ const GRID_WARN: f64 = 1e-6;
 /// Sample counts above this per signal are flagged: tens of megabytes per waveform.
 const SAMPLES_WARN: f64 = 1e7;
 
-/// The converter as a run builds it: its probe names and number of dynamic states.
+/// The converter as a run builds it ([`stepflux_models::job::build::Built`], which the
+/// run goes on from), with its probe names and dynamic states.
 pub struct Built {
+    /// The build itself.
+    pub converter: stepflux_models::job::build::Built,
     /// Probe names in sample order.
     pub probes: Vec<String>,
     /// The dynamic states by name, in the engine's order (the length the deprecated
@@ -46,18 +49,11 @@ pub fn build(
     drive: &Drive,
     events: &[Disturbance],
 ) -> Result<Built, ModelError> {
-    let conv = job_design.build()?;
-    let conv = match drive {
-        Drive::Controller(spec) => {
-            let (with, parts) = spec.attach(&conv)?;
-            prepare(&with, events, Some(parts.reference))?.0
-        }
-        Drive::OpenLoop(_) => prepare(&conv, events, None)?.0,
-    };
-    let states = circuit_state_names(&conv.circuit)?;
+    let converter = stepflux_models::job::build::Built::new(job_design, drive, events)?;
     Ok(Built {
-        probes: conv.probes.iter().map(|p| p.name.clone()).collect(),
-        states,
+        probes: converter.probe_names(),
+        states: converter.states()?,
+        converter,
     })
 }
 

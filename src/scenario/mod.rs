@@ -49,6 +49,8 @@ pub struct Loaded {
     pub probes: Vec<String>,
     /// Its dynamic states by name, kind and unit, in the engine's order.
     pub states: Vec<stepflux_models::steady::names::StateName>,
+    /// The converter as built for these checks; the run goes on from it.
+    pub built: stepflux_models::job::build::Built,
     /// The file name as given, for messages.
     pub file: String,
 }
@@ -101,6 +103,7 @@ fn validated(text: &str, file: &str) -> Result<Loaded, ScenarioError> {
         figures,
         probes: built.probes,
         states: built.states,
+        built: built.converter,
         file: file.to_string(),
     })
 }

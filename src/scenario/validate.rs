@@ -571,14 +571,14 @@ pub fn limits(ctx: &Ctx, l: &raw::Limits) -> Result<Limits, ScenarioError> {
     // Overshoot and deviation may exceed 100 % in a failing design; 1000 % only catches
     // a value typed as a fraction's reciprocal or a stray exponent.
     Ok(Limits {
-        startup_overshoot_pct: pct("startup_overshoot_pct", l.startup_overshoot_pct, 1000.0)?,
-        startup_t90: pos("startup_t90", l.startup_t90.map(|v| v.si()))?,
-        step_deviation_pct: pct("step_deviation_pct", l.step_deviation_pct, 1000.0)?,
-        step_recovery: pos("step_recovery", l.step_recovery.map(|v| v.si()))?,
-        step_band_pct: pos("step_band_pct", l.step_band_pct.map(|v| v.si()))?,
-        ripple_pp: pos("ripple_pp", l.ripple_pp.map(|v| v.si()))?,
-        reset_margin_pct: pct("reset_margin_pct", l.reset_margin_pct, 100.0)?,
-        flux_margin_pct: pct("flux_margin_pct", l.flux_margin_pct, 100.0)?,
-        efficiency_pct: pct("efficiency_pct", l.efficiency_pct, 100.0)?,
+        startup_overshoot_percent: pct("startup_overshoot_pct", l.startup_overshoot_pct, 1000.0)?,
+        startup_time: pos("startup_t90", l.startup_t90.map(|v| v.si()))?,
+        step_deviation_percent: pct("step_deviation_pct", l.step_deviation_pct, 1000.0)?,
+        recovery_time: pos("step_recovery", l.step_recovery.map(|v| v.si()))?,
+        recovery_band_percent: pos("step_band_pct", l.step_band_pct.map(|v| v.si()))?,
+        ripple: pos("ripple_pp", l.ripple_pp.map(|v| v.si()))?,
+        reset_margin_percent: pct("reset_margin_pct", l.reset_margin_pct, 100.0)?,
+        flux_margin_percent: pct("flux_margin_pct", l.flux_margin_pct, 100.0)?,
+        efficiency_percent: pct("efficiency_pct", l.efficiency_pct, 100.0)?,
     })
 }

@@ -99,6 +99,19 @@ impl<S: Stepper> ClosedLoop<S> {
         let conv = design.build()?;
         let (with_ctl, parts) = spec.attach(&conv)?;
         let (converter, actions) = prepare(&with_ctl, disturbances, Some(parts.reference))?;
+        Self::assemble(converter, parts, actions, spec, options, meters)
+    }
+
+    /// The loop on a converter already built with the controller's `parts` attached
+    /// and the disturbances prepared (their `actions`).
+    pub fn assemble(
+        converter: Converter,
+        parts: ControllerParts,
+        actions: Vec<(f64, crate::run::Action)>,
+        spec: &ControllerSpec,
+        options: S::Options,
+        meters: impl FnOnce(&Converter) -> Result<Vec<Meter>, ModelError>,
+    ) -> Result<Self, ModelError> {
         let control = Signal::of(stepflux_engine::Quantity::NodeVoltage(parts.control));
         let meters = meters(&converter)?;
         let mut run = ConverterRun::with_stepper(&converter, options, vec![control], meters)?;

@@ -15,8 +15,16 @@
 //! in the cycle record. A high-side or auxiliary switch's Coss energy stays inside its
 //! own v·i.
 
+use super::catalogue::figures;
 use super::{Figure, Measurement};
 use crate::cycles::CycleRecord;
+
+figures! {
+    TURN_ON_ENERGY = "coss.turn_on_energy", "J", Number, Higher, Files,
+        "switch turn-on energy", "Energy of the main switch's output capacitance dissipated at turn-on over the steady window, ½·C·V² per turn-on.";
+    TURN_ON_COUNT = "coss.turn_on_count", "1", Count, Neither, Files,
+        "turn-ons counted", "Turn-ons in the steady window.";
+}
 
 /// Σ ½·Coss·V_on² over the main switch's turn-ons in `[from, to)`.
 #[derive(Clone, Debug, PartialEq)]
@@ -61,9 +69,6 @@ impl Measurement for CossTurnOn {
     }
 
     fn figures(&self) -> Vec<Figure> {
-        vec![
-            Figure::new("coss.turn_on_energy", self.energy, "J"),
-            Figure::new("coss.turn_on_count", self.count as f64, "1"),
-        ]
+        vec![TURN_ON_ENERGY.of(self.energy), TURN_ON_COUNT.of(self.count)]
     }
 }

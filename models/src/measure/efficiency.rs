@@ -7,9 +7,41 @@
 //! designer supplies, watts), which is why it falls at light load: the bias stays while
 //! P_out shrinks.
 
+use super::catalogue::figures;
 use super::losses::{EnergySnapshot, LossClass, LossMeters};
 use super::Figure;
 use crate::error::ModelError;
+
+figures! {
+    WINDOW_START = "energy.window_start", "s", Instant, Neither, Files,
+        "energy window from", "Start of the steady window the energy balance is taken over.";
+    WINDOW_END = "energy.window_end", "s", Instant, Neither, Files,
+        "energy window to", "End of the steady window the energy balance is taken over.";
+    POWER_IN = "power.in", "W", Number, Neither, Files,
+        "input power", "Mean power drawn from the input over the steady window.";
+    POWER_OUT = "power.out", "W", Number, Neither, Files,
+        "output power", "Mean power delivered to the load over the steady window.";
+    LOSS_TOTAL = "power.loss_total", "W", Number, Higher, Steady,
+        "losses", "Mean power dissipated in the converter over the steady window.";
+    STORED_CHANGE = "power.stored_change", "W", Number, Neither, Files,
+        "stored-energy change", "Change of stored energy over the window divided by its length.";
+    BALANCE_ERROR = "power.balance_error", "W", Number, Magnitude, Files,
+        "energy balance error", "Input minus output, losses and stored change: zero for an exact balance.";
+    LOSS_CLASS = "loss.*", "W", Number, Higher, Files,
+        "loss", "Mean loss of one class of element over the steady window.";
+    COSS_TURN_ON = "loss.switch.coss_turn_on", "W", Number, Higher, Files,
+        "switch capacitance loss", "Main switch's output-capacitance turn-on loss, mean power.";
+    SWITCH_CONDUCTION = "loss.switch.conduction", "W", Number, Higher, Files,
+        "switch conduction loss", "Main switch's conduction loss, mean power.";
+    LOSS_ELEMENT = "loss.*.*", "W", Number, Higher, Files,
+        "loss", "Mean loss of one element over the steady window.";
+    EFFICIENCY_STAGE = "efficiency.stage", "1", Fraction, Lower, Steady,
+        "efficiency (power stage)", "Output power over input power of the power stage.";
+    BIAS_POWER = "bias_power", "W", Number, Neither, Files,
+        "bias power", "Fixed controller and bias power, as given.";
+    EFFICIENCY_WITH_BIAS = "efficiency.with_bias", "1", Fraction, Lower, Steady,
+        "efficiency (with bias)", "Output power over input power plus the fixed bias power.";
+}
 
 /// Energies over a window, by element and class.
 #[derive(Clone, Debug, PartialEq)]
@@ -123,45 +155,25 @@ impl LossReport {
     /// Every figure: powers, losses by class and element, balance, efficiencies.
     pub fn figures(&self, bias: f64) -> Vec<Figure> {
         let mut f = vec![
-            Figure::new("energy.window_start", self.window.0, "s"),
-            Figure::new("energy.window_end", self.window.1, "s"),
-            Figure::new("power.in", self.input_power(), "W"),
-            Figure::new("power.out", self.output_power(), "W"),
-            Figure::new("power.loss_total", self.loss_power(), "W"),
-            Figure::new("power.stored_change", self.stored_power(), "W"),
-            Figure::new("power.balance_error", self.balance_error(), "W"),
+            WINDOW_START.of(self.window.0),
+            WINDOW_END.of(self.window.1),
+            POWER_IN.of(self.input_power()),
+            POWER_OUT.of(self.output_power()),
+            LOSS_TOTAL.of(self.loss_power()),
+            STORED_CHANGE.of(self.stored_power()),
+            BALANCE_ERROR.of(self.balance_error()),
         ];
         for c in LossClass::ALL.iter().filter(|c| c.is_loss()) {
-            f.push(Figure::new(
-                format!("loss.{}", c.name()),
-                self.class_power(*c),
-                "W",
-            ));
+            f.push(LOSS_CLASS.scoped(&[c.name()], self.class_power(*c)));
         }
-        f.push(Figure::new(
-            "loss.switch.coss_turn_on",
-            self.coss_turn_on / self.duration(),
-            "W",
-        ));
-        f.push(Figure::new(
-            "loss.switch.conduction",
-            self.switch_conduction_power(),
-            "W",
-        ));
+        f.push(COSS_TURN_ON.of(self.coss_turn_on / self.duration()));
+        f.push(SWITCH_CONDUCTION.of(self.switch_conduction_power()));
         for (name, class, e) in self.elements.iter().filter(|e| e.1.is_loss()) {
-            f.push(Figure::new(
-                format!("loss.{}.{name}", class.name()),
-                e / self.duration(),
-                "W",
-            ));
+            f.push(LOSS_ELEMENT.scoped(&[class.name(), name], e / self.duration()));
         }
-        f.push(Figure::new("efficiency.stage", self.efficiency(), "1"));
-        f.push(Figure::new("bias_power", bias, "W"));
-        f.push(Figure::new(
-            "efficiency.with_bias",
-            self.efficiency_with_bias(bias),
-            "1",
-        ));
+        f.push(EFFICIENCY_STAGE.of(self.efficiency()));
+        f.push(BIAS_POWER.of(bias));
+        f.push(EFFICIENCY_WITH_BIAS.of(self.efficiency_with_bias(bias)));
         f
     }
 }

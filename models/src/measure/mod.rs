@@ -8,7 +8,8 @@
 //! [`LossMeters`] makes engine meters (exact quadratic integrals) and reads them at two
 //! instants.
 //!
-//! Every result reduces to a list of [`Figure`]s, each with its name and unit.
+//! Every result reduces to a list of [`Figure`]s, each an instance of a declaration
+//! in the [`catalogue`] made beside the code that produces it.
 //!
 //! Fed from a run, measurements see the trace of the exact solution
 //! ([`stepflux_engine::TracePoint`]): every step end and switching instant, and each
@@ -17,16 +18,18 @@
 //! peaks, dips and ripple are the solution's own. Averages integrate the cubic
 //! through each pair of points and their slopes ([`window`]).
 
-mod coss;
-mod efficiency;
+pub mod catalogue;
+pub mod coss;
+pub mod efficiency;
 mod losses;
-mod reset_check;
-mod ripple;
-mod startup;
-mod step;
+pub mod reset_check;
+pub mod ripple;
+pub mod startup;
+pub mod step;
 mod tee;
 mod window;
 
+pub use catalogue::{Figure, FigureDef, Kind, Section, Value, Worse};
 pub use coss::CossTurnOn;
 pub use efficiency::LossReport;
 pub use losses::{EnergySnapshot, LossClass, LossMeters};
@@ -41,34 +44,6 @@ use stepflux_engine::{TraceKind, TracePoint};
 use crate::cycles::CycleRecord;
 use crate::error::ModelError;
 use crate::template::Probe;
-
-/// One reported number.
-#[derive(Clone, Debug, PartialEq)]
-pub struct Figure {
-    /// Dotted name, e.g. `startup.t90`.
-    pub name: String,
-    /// Value in `unit`.
-    pub value: f64,
-    /// SI unit symbol, `%` or `1` for a pure number.
-    pub unit: &'static str,
-}
-
-impl Figure {
-    /// A figure.
-    pub fn new(name: impl Into<String>, value: f64, unit: &'static str) -> Self {
-        Figure {
-            name: name.into(),
-            value,
-            unit,
-        }
-    }
-}
-
-impl std::fmt::Display for Figure {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        write!(f, "{} = {:.6e} {}", self.name, self.value, self.unit)
-    }
-}
 
 /// A streaming measurement: fed samples and cycle records, reports figures.
 pub trait Measurement {

@@ -24,10 +24,57 @@
 
 use std::fmt;
 
+use super::catalogue::figures;
 use super::{probe_index, Figure, Measurement};
+use super::{FigureDef, Value};
 use crate::cycles::CycleRecord;
 use crate::error::ModelError;
 use crate::template::{ForwardDesign, Probe, ResetScheme};
+
+figures! {
+    PASS = "reset_check.pass", "1", Flag, Lower, Files,
+        "core reset", "Whether every judged cycle reset the core within every criterion.";
+    CYCLES = "reset_check.cycles", "1", Count, Neither, Files,
+        "cycles judged", "Switching cycles the core-reset check judged.";
+    FAILED_CYCLES = "reset_check.failed_cycles", "1", Count, Higher, Files,
+        "failed cycles", "Cycles that failed a core-reset criterion.";
+    LAST_CYCLE_CUT = "reset_check.last_cycle_cut", "1", Flag, Neither, Files,
+        "last cycle cut", "Whether the run's end cut its last cycle short (that cycle is not judged on reset completion).";
+    BSAT_CYCLE = "reset_check.bsat_crossed.cycle", "1", Count, Neither, Files,
+        "Bsat first crossed in cycle", "First cycle whose peak flux density reached Bsat.";
+    BSAT_TIME = "reset_check.bsat_crossed.time", "s", Instant, Neither, Files,
+        "Bsat first crossed at", "Start of the first cycle whose peak flux density reached Bsat.";
+    BSAT_B_PEAK = "reset_check.bsat_crossed.b_peak", "T", Number, Higher, Files,
+        "flux density when Bsat was crossed", "Peak flux density of that cycle.";
+    CYCLE = "reset_check.*.cycle", "1", Count, Neither, Reset,
+        "cycle", "Number of the cycle (the first failing one, or the tightest).";
+    TIME = "reset_check.*.time", "s", Instant, Neither, Files,
+        "cycle start", "Start of the cycle.";
+    DUTY = "reset_check.*.duty", "1", Fraction, Neither, Reset,
+        "duty", "Duty of the cycle.";
+    CRITERION = "reset_check.*.criterion", "1", Choice, Neither, Files,
+        "tightest criterion", "The criterion with the smallest margin in the cycle: reset_incomplete, reset_margin, mag_current_start, flux_density, drain_voltage or a watched probe's name.";
+    CRITERION_MARGIN = "reset_check.*.criterion_margin", "1", Fraction, Lower, Files,
+        "tightest criterion margin", "Margin of the tightest criterion, a fraction of its limit (negative: failed).";
+    RESET_MARGIN_PCT = "reset_check.*.reset_margin_pct", "%", Number, Lower, Reset,
+        "reset margin", "Time from the end of reset to the next turn-on, percent of the period.";
+    RESET_MARGIN = "reset_check.*.reset_margin", "s", Number, Lower, Files,
+        "reset margin", "Time from the end of reset to the next turn-on.";
+    RESET_INCOMPLETE = "reset_check.*.reset_incomplete", "1", Flag, Higher, Files,
+        "reset incomplete", "Whether a reset diode still conducted at the next turn-on.";
+    MAG_CURRENT_START = "reset_check.*.mag_current_start", "A", Number, Higher, Reset,
+        "magnetising current at turn-on", "Magnetising current at the cycle's turn-on.";
+    B_PEAK = "reset_check.*.b_peak", "T", Number, Higher, Reset,
+        "peak flux density", "Peak flux density in the cycle.";
+    FLUX_MARGIN_PCT = "reset_check.*.flux_margin_pct", "%", Number, Lower, Reset,
+        "flux margin", "Margin of the peak flux density below Bsat, percent of Bsat.";
+    DRAIN_PEAK = "reset_check.*.drain_peak", "V", Number, Higher, Reset,
+        "drain peak", "Peak main-switch drain voltage in the cycle.";
+    PROBE_PEAK = "reset_check.*.*.peak", "V", Number, Higher, Files,
+        "peak", "Peak voltage of a watched probe in the cycle.";
+    PROBE_RATING = "reset_check.*.*.rating", "V", Number, Neither, Files,
+        "rating", "Voltage rating the watched probe is judged against.";
+}
 
 /// What a cycle is checked against.
 #[derive(Clone, Debug, PartialEq)]
@@ -329,29 +376,21 @@ impl Measurement for ResetCheck {
     fn figures(&self) -> Vec<Figure> {
         let v = &self.verdict();
         let mut f = vec![
-            Figure::new("reset_check.pass", f64::from(u8::from(v.passed())), "1"),
-            Figure::new("reset_check.cycles", v.cycles as f64, "1"),
-            Figure::new("reset_check.failed_cycles", v.failed as f64, "1"),
-            Figure::new(
-                "reset_check.last_cycle_cut",
-                f64::from(u8::from(self.last_cycle_cut())),
-                "1",
-            ),
+            PASS.of(v.passed()),
+            CYCLES.of(v.cycles),
+            FAILED_CYCLES.of(v.failed),
+            LAST_CYCLE_CUT.of(self.last_cycle_cut()),
         ];
         if let Some((index, start, b)) = self.bsat_crossed {
-            f.push(Figure::new(
-                "reset_check.bsat_crossed.cycle",
-                index as f64,
-                "1",
-            ));
-            f.push(Figure::new("reset_check.bsat_crossed.time", start, "s"));
-            f.push(Figure::new("reset_check.bsat_crossed.b_peak", b, "T"));
+            f.push(BSAT_CYCLE.of(index));
+            f.push(BSAT_TIME.of(start));
+            f.push(BSAT_B_PEAK.of(b));
         }
         if let Some(c) = &v.first_failure {
-            f.extend(cycle_figures("reset_check.first_failure", c));
+            f.extend(cycle_figures("first_failure", c));
         }
         if let Some(c) = &v.worst {
-            f.extend(cycle_figures("reset_check.worst", c));
+            f.extend(cycle_figures("worst", c));
         }
         f
     }
@@ -369,49 +408,30 @@ fn commit(v: &mut ResetVerdict, check: CycleCheck) {
     }
 }
 
-/// The numbers of one checked cycle; the failing criterion is named in a figure name.
-fn cycle_figures(prefix: &str, c: &CycleCheck) -> Vec<Figure> {
+/// The numbers of one checked cycle, `which` being `first_failure` or `worst`.
+fn cycle_figures(which: &str, c: &CycleCheck) -> Vec<Figure> {
     let r = &c.record;
+    let at = |d: &'static FigureDef, v: Value| d.scoped(&[which], v);
     let mut f = vec![
-        Figure::new(format!("{prefix}.cycle"), r.index as f64, "1"),
-        Figure::new(format!("{prefix}.time"), r.start, "s"),
-        Figure::new(format!("{prefix}.duty"), r.duty, "1"),
-        Figure::new(
-            format!("{prefix}.criterion.{}", c.worst.0.name()),
-            c.worst.1,
-            "1",
+        at(&CYCLE, r.index.into()),
+        at(&TIME, r.start.into()),
+        at(&DUTY, r.duty.into()),
+        at(&CRITERION, c.worst.0.name().into()),
+        at(&CRITERION_MARGIN, c.worst.1.into()),
+        at(
+            &RESET_MARGIN_PCT,
+            c.reset_margin.map_or(f64::NAN, |m| 100.0 * m).into(),
         ),
-        Figure::new(
-            format!("{prefix}.reset_margin_pct"),
-            c.reset_margin.map_or(f64::NAN, |m| 100.0 * m),
-            "%",
-        ),
-        Figure::new(
-            format!("{prefix}.reset_margin"),
-            r.reset_margin().unwrap_or(f64::NAN),
-            "s",
-        ),
-        Figure::new(
-            format!("{prefix}.reset_incomplete"),
-            f64::from(u8::from(r.reset_incomplete)),
-            "1",
-        ),
-        Figure::new(
-            format!("{prefix}.mag_current_start"),
-            r.mag_current_start,
-            "A",
-        ),
-        Figure::new(format!("{prefix}.b_peak"), r.b_peak, "T"),
-        Figure::new(
-            format!("{prefix}.flux_margin_pct"),
-            100.0 * c.flux_margin,
-            "%",
-        ),
-        Figure::new(format!("{prefix}.drain_peak"), r.drain_peak, "V"),
+        at(&RESET_MARGIN, r.reset_margin().unwrap_or(f64::NAN).into()),
+        at(&RESET_INCOMPLETE, r.reset_incomplete.into()),
+        at(&MAG_CURRENT_START, r.mag_current_start.into()),
+        at(&B_PEAK, r.b_peak.into()),
+        at(&FLUX_MARGIN_PCT, (100.0 * c.flux_margin).into()),
+        at(&DRAIN_PEAK, r.drain_peak.into()),
     ];
     for (name, peak, rating) in c.voltages.iter().flatten() {
-        f.push(Figure::new(format!("{prefix}.{name}.peak"), *peak, "V"));
-        f.push(Figure::new(format!("{prefix}.{name}.rating"), *rating, "V"));
+        f.push(PROBE_PEAK.scoped(&[which, name], *peak));
+        f.push(PROBE_RATING.scoped(&[which, name], *rating));
     }
     f
 }

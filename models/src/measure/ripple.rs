@@ -3,10 +3,22 @@
 
 use stepflux_engine::TracePoint;
 
+use super::catalogue::figures;
 use super::window::{WindowExtremes, WindowMean};
 use super::{at_point, probe_index, Figure, Measurement};
 use crate::error::ModelError;
 use crate::template::{Probe, Unit};
+
+figures! {
+    RIPPLE_PP = "*.ripple_pp", "*", Number, Higher, Steady,
+        "ripple (p-p)", "Peak-to-peak swing of the probe over the steady window.";
+    MEAN = "*.mean", "*", Number, Neither, Steady,
+        "mean", "Mean of the probe over the steady window.";
+    MIN = "*.min", "*", Number, Neither, Files,
+        "lowest", "Lowest value of the probe over the steady window.";
+    MAX = "*.max", "*", Number, Neither, Files,
+        "highest", "Highest value of the probe over the steady window.";
+}
 
 /// Peak-to-peak and time average of a probe over `[from, to]`.
 #[derive(Clone, Debug)]
@@ -82,11 +94,13 @@ impl Measurement for Ripple {
             return Vec::new();
         };
         let n = &self.name;
+        let at =
+            |d: &'static super::FigureDef, v: f64| d.scoped(&[n.as_str()], v).in_unit(self.unit);
         vec![
-            Figure::new(format!("{n}.ripple_pp"), r.peak_to_peak, self.unit),
-            Figure::new(format!("{n}.mean"), r.mean, self.unit),
-            Figure::new(format!("{n}.min"), r.min, self.unit),
-            Figure::new(format!("{n}.max"), r.max, self.unit),
+            at(&RIPPLE_PP, r.peak_to_peak),
+            at(&MEAN, r.mean),
+            at(&MIN, r.min),
+            at(&MAX, r.max),
         ]
     }
 }

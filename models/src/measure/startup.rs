@@ -3,11 +3,37 @@
 
 use stepflux_engine::TracePoint;
 
+use super::catalogue::figures;
 use super::window::crossing;
 use super::{at_point, percent, probe_index, Figure, Measurement};
 use crate::cycles::CycleRecord;
 use crate::error::ModelError;
 use crate::template::Probe;
+
+figures! {
+    T90 = "startup.t90", "s", Number, Higher, StartUp,
+        "time to 90 %", "Time from the start to the output's first reaching 90 % of the set point.";
+    PEAK = "startup.peak", "V", Number, Neither, StartUp,
+        "peak", "Highest output voltage during start-up.";
+    PEAK_TIME = "startup.peak_time", "s", Instant, Neither, StartUp,
+        "peak at", "When the start-up peak was reached.";
+    OVERSHOOT = "startup.overshoot", "V", Number, Higher, Files,
+        "overshoot", "Start-up peak above the set point, volts.";
+    OVERSHOOT_PCT = "startup.overshoot_pct", "%", Number, Higher, StartUp,
+        "overshoot", "Start-up peak above the set point, percent of the set point.";
+    MAX_DIP = "startup.max_dip_before_t90", "V", Number, Higher, Files,
+        "largest dip before 90 %", "Largest fall below the running maximum before 90 % of the set point.";
+    DIP_ALLOWANCE = "startup.dip_allowance", "V", Number, Neither, Files,
+        "dip allowance", "Dip tolerated in a monotonic rise (about the switching ripple).";
+    MONOTONIC = "startup.monotonic", "1", Flag, Lower, StartUp,
+        "monotonic rise", "Whether the output rose to 90 % without a dip beyond the allowance.";
+    MAX_DUTY = "startup.max_duty", "1", Fraction, Higher, StartUp,
+        "largest duty", "Largest duty cycle of any cycle during start-up.";
+    MAX_DUTY_TIME = "startup.max_duty_time", "s", Instant, Neither, Files,
+        "largest duty at", "Start of the cycle with the largest start-up duty.";
+    MAX_DUTY_CYCLE = "startup.max_duty_cycle", "1", Count, Neither, Files,
+        "largest duty in cycle", "Number of the cycle with the largest start-up duty.";
+}
 
 /// Start-up figures of the output voltage over `[from, to]`.
 ///
@@ -152,19 +178,19 @@ impl Measurement for StartUp {
             return Vec::new();
         };
         let mut f = vec![
-            Figure::new("startup.t90", r.t90.unwrap_or(f64::NAN), "s"),
-            Figure::new("startup.peak", r.peak.1, "V"),
-            Figure::new("startup.peak_time", r.peak.0, "s"),
-            Figure::new("startup.overshoot", r.overshoot, "V"),
-            Figure::new("startup.overshoot_pct", r.overshoot_percent, "%"),
-            Figure::new("startup.max_dip_before_t90", r.max_dip, "V"),
-            Figure::new("startup.dip_allowance", self.dip_allowance, "V"),
-            Figure::new("startup.monotonic", f64::from(u8::from(r.monotonic)), "1"),
+            T90.of(r.t90.unwrap_or(f64::NAN)),
+            PEAK.of(r.peak.1),
+            PEAK_TIME.of(r.peak.0),
+            OVERSHOOT.of(r.overshoot),
+            OVERSHOOT_PCT.of(r.overshoot_percent),
+            MAX_DIP.of(r.max_dip),
+            DIP_ALLOWANCE.of(self.dip_allowance),
+            MONOTONIC.of(r.monotonic),
         ];
         if let Some((d, t, k)) = r.max_duty {
-            f.push(Figure::new("startup.max_duty", d, "1"));
-            f.push(Figure::new("startup.max_duty_time", t, "s"));
-            f.push(Figure::new("startup.max_duty_cycle", k as f64, "1"));
+            f.push(MAX_DUTY.of(d));
+            f.push(MAX_DUTY_TIME.of(t));
+            f.push(MAX_DUTY_CYCLE.of(k));
         }
         f
     }

@@ -3,11 +3,41 @@
 
 use stepflux_engine::TracePoint;
 
+use super::catalogue::figures;
 use super::window::{crossing, CycleRange, WindowExtremes, WindowMean};
 use super::{at_point, percent, probe_index, Figure, Measurement};
 use crate::cycles::CycleRecord;
 use crate::error::ModelError;
 use crate::template::Probe;
+
+figures! {
+    UNDERSHOOT = "*.undershoot", "V", Number, Higher, Files,
+        "undershoot", "Largest fall of the output below the set point after a step, volts.";
+    UNDERSHOOT_PCT = "*.undershoot_pct", "%", Number, Higher, Files,
+        "undershoot", "Largest fall below the set point after a step, percent of the set point.";
+    OVERSHOOT = "*.overshoot", "V", Number, Higher, Files,
+        "overshoot", "Largest rise of the output above the set point after a step, volts.";
+    OVERSHOOT_PCT = "*.overshoot_pct", "%", Number, Higher, Files,
+        "overshoot", "Largest rise above the set point after a step, percent of the set point.";
+    MIN_TIME = "*.min_time", "s", Instant, Neither, Files,
+        "lowest at", "When the output was lowest after the step.";
+    BAND_PCT = "*.band_pct", "%", Number, Neither, Files,
+        "recovery band", "Half-width of the recovery band, percent of the set point.";
+    RECOVERY = "*.recovery", "s", Number, Higher, Files,
+        "recovery", "Time from the step until the output stays inside the recovery band.";
+    STEADY_ERROR = "*.steady_error", "V", Number, Magnitude, Files,
+        "steady error", "Mean output minus the set point at the end of the step's window.";
+    STEADY_ERROR_PCT = "*.steady_error_pct", "%", Number, Magnitude, Files,
+        "steady error", "Steady error, percent of the set point.";
+    DUTY_SPREAD_BEFORE = "*.duty_spread_before", "1", Fraction, Higher, Files,
+        "duty spread before", "Range of duty over the window before the step.";
+    DUTY_SPREAD_AFTER = "*.duty_spread_after", "1", Fraction, Higher, Files,
+        "duty spread after", "Range of duty over the settled window after the step.";
+    DUTY_MIN_AFTER = "*.duty_min_after", "1", Fraction, Neither, Files,
+        "lowest duty after", "Lowest duty in the settled window after the step.";
+    DUTY_MAX_AFTER = "*.duty_max_after", "1", Fraction, Neither, Files,
+        "highest duty after", "Highest duty in the settled window after the step.";
+}
 
 /// Settings of a [`StepResponse`].
 #[derive(Clone, Debug, PartialEq)]
@@ -245,42 +275,26 @@ impl Measurement for StepResponse {
         let s = &self.settings;
         let l = &s.label;
         let opt = |x: Option<f64>| x.unwrap_or(f64::NAN);
+        let at = |d: &'static super::FigureDef, v: f64| d.scoped(&[l.as_str()], v);
         let mut f = vec![
-            Figure::new(format!("{l}.undershoot"), r.undershoot, "V"),
-            Figure::new(
-                format!("{l}.undershoot_pct"),
-                percent(r.undershoot, s.set_point),
-                "%",
-            ),
-            Figure::new(format!("{l}.overshoot"), r.overshoot, "V"),
-            Figure::new(
-                format!("{l}.overshoot_pct"),
-                percent(r.overshoot, s.set_point),
-                "%",
-            ),
-            Figure::new(format!("{l}.min_time"), r.min.0, "s"),
-            Figure::new(format!("{l}.band_pct"), 100.0 * s.band, "%"),
-            Figure::new(format!("{l}.recovery"), opt(r.recovery), "s"),
-            Figure::new(format!("{l}.steady_error"), opt(r.steady_error), "V"),
-            Figure::new(
-                format!("{l}.steady_error_pct"),
+            at(&UNDERSHOOT, r.undershoot),
+            at(&UNDERSHOOT_PCT, percent(r.undershoot, s.set_point)),
+            at(&OVERSHOOT, r.overshoot),
+            at(&OVERSHOOT_PCT, percent(r.overshoot, s.set_point)),
+            at(&MIN_TIME, r.min.0),
+            at(&BAND_PCT, 100.0 * s.band),
+            at(&RECOVERY, opt(r.recovery)),
+            at(&STEADY_ERROR, opt(r.steady_error)),
+            at(
+                &STEADY_ERROR_PCT,
                 opt(r.steady_error.map(|e| percent(e, s.set_point))),
-                "%",
             ),
-            Figure::new(
-                format!("{l}.duty_spread_before"),
-                opt(r.duty_spread_before),
-                "1",
-            ),
-            Figure::new(
-                format!("{l}.duty_spread_after"),
-                opt(r.duty_spread_after),
-                "1",
-            ),
+            at(&DUTY_SPREAD_BEFORE, opt(r.duty_spread_before)),
+            at(&DUTY_SPREAD_AFTER, opt(r.duty_spread_after)),
         ];
         if let Some((lo, hi)) = r.duty_range_after {
-            f.push(Figure::new(format!("{l}.duty_min_after"), lo, "1"));
-            f.push(Figure::new(format!("{l}.duty_max_after"), hi, "1"));
+            f.push(at(&DUTY_MIN_AFTER, lo));
+            f.push(at(&DUTY_MAX_AFTER, hi));
         }
         f
     }

@@ -10,17 +10,17 @@
 //!   first disturbance, or before the end;
 //! - the core-reset check over every cycle of the run.
 
-use stepflux_engine::{Simulation, TracePoint, Turning};
-use stepflux_models::cycles::CycleRecord;
-use stepflux_models::disturbance::Disturbance;
-use stepflux_models::measure::{
+use crate::cycles::CycleRecord;
+use crate::disturbance::Disturbance;
+use crate::measure::{
     CossTurnOn, EnergySnapshot, Figure, LossMeters, LossReport, Measurement, ResetCheck,
     ResetLimits, Ripple, StartUp, StepResponse, StepSettings,
 };
-use stepflux_models::template::Probe;
-use stepflux_models::ModelError;
+use crate::template::Probe;
+use crate::ModelError;
+use stepflux_engine::{Simulation, TracePoint, Turning};
 
-use crate::job::{Drive, Job};
+use super::{Drive, Job};
 
 /// Probes whose ripple is measured over the steady window.
 const RIPPLE_PROBES: [&str; 2] = ["out.v", "lout.i"];
@@ -50,8 +50,8 @@ pub struct Plan {
 pub fn period(job: &Job) -> f64 {
     match &job.drive {
         Drive::Controller(c) => match c.mode {
-            stepflux_models::controller::OutputMode::SingleEnded => c.clock_period(),
-            stepflux_models::controller::OutputMode::Alternating => 2.0 * c.clock_period(),
+            crate::controller::OutputMode::SingleEnded => c.clock_period(),
+            crate::controller::OutputMode::Alternating => 2.0 * c.clock_period(),
         },
         Drive::OpenLoop(g) => g.period(),
     }
@@ -62,7 +62,7 @@ pub fn period(job: &Job) -> f64 {
 /// `to`/reference (the divider, or the isolated feedback's gain, is unchanged).
 fn step_responses(
     job: &Job,
-    c: &stepflux_models::controller::ControllerSpec,
+    c: &crate::controller::ControllerSpec,
     probes: &[Probe],
     times: &[f64],
     band: f64,

@@ -1,0 +1,112 @@
+//! The converter job: a validated, ready-to-run scenario ([`Job`], built by the
+//! binary from a scenario file: raw file → `Job`), the plan of its measurements
+//! ([`plan`]), the limits it is judged against ([`verdict`]) and its run ([`run`]).
+//! Everything here is in SI units and already checked; running it needs no further
+//! validation of user input.
+
+pub mod build;
+pub mod plan;
+pub mod run;
+pub mod verdict;
+
+use crate::controller::ControllerSpec;
+use crate::disturbance::Disturbance;
+use crate::gate::OpenLoopGate;
+use crate::template::ForwardDesign;
+
+/// How the switches are driven.
+// One per job, built once: boxing the controller would only add an indirection.
+#[allow(clippy::large_enum_variant)]
+#[derive(Clone, Debug, PartialEq)]
+pub enum Drive {
+    /// Fixed frequency and duty.
+    OpenLoop(OpenLoopGate),
+    /// The behavioural PWM controller.
+    Controller(ControllerSpec),
+}
+
+/// Initial state of the run.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Start {
+    /// Every inductor current and capacitor voltage at zero (a cold start).
+    Zero,
+    /// Given values of the dynamic states, in the engine's state order (deprecated:
+    /// use [`Start::Named`]).
+    States(Vec<f64>),
+    /// Given values of named states; states not named keep their initial values.
+    Named(Vec<NamedState>),
+    /// The periodic steady state of the initial operating point, found by shooting;
+    /// the controller's soft starts do not apply (it has been running for ever).
+    Steady,
+}
+
+/// One state given by its owner's name.
+#[derive(Clone, Debug, PartialEq)]
+pub struct NamedState {
+    /// Element name (`lout`, `cout`, `ctl.ea.c1`).
+    pub name: String,
+    /// SI value.
+    pub value: f64,
+    /// The unit the value was written with ("A", "V"), `None` for a plain number.
+    pub unit: Option<&'static str>,
+}
+
+/// Time settings of a run.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Analysis {
+    /// End of the run, seconds.
+    pub stop_time: f64,
+    /// Waveform output interval, seconds (switching instants are always saved too).
+    pub sample_interval: f64,
+    /// Initial state.
+    pub start: Start,
+}
+
+/// Spec limits a run is judged against; `None` means not checked.
+#[derive(Clone, Debug, PartialEq, Default)]
+pub struct Limits {
+    /// Highest start-up overshoot, percent of the set point.
+    pub startup_overshoot_percent: Option<f64>,
+    /// Longest start-up time to 90 % of the set point, seconds.
+    pub startup_time: Option<f64>,
+    /// Largest deviation after a load or line step, percent of the set point.
+    pub step_deviation_percent: Option<f64>,
+    /// Longest recovery into the band after a step, seconds.
+    pub recovery_time: Option<f64>,
+    /// Recovery band, percent of the set point (default 1 %).
+    pub recovery_band_percent: Option<f64>,
+    /// Largest output ripple peak-to-peak, volts.
+    pub ripple: Option<f64>,
+    /// Smallest reset margin, percent of the period.
+    pub reset_margin_percent: Option<f64>,
+    /// Smallest flux-density margin below Bsat, percent.
+    pub flux_margin_percent: Option<f64>,
+    /// Lowest efficiency of the power stage over the final window, percent.
+    pub efficiency_percent: Option<f64>,
+}
+
+/// One scenario, ready to run.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Job {
+    /// Name, also the output folder name (already checked to be a safe single path
+    /// component).
+    pub name: String,
+    /// Free text for reports.
+    pub description: String,
+    /// The power stage.
+    pub design: ForwardDesign,
+    /// How it is driven.
+    pub drive: Drive,
+    /// Load, line and reference steps.
+    pub disturbances: Vec<Disturbance>,
+    /// Time settings.
+    pub analysis: Analysis,
+    /// Spec limits.
+    pub limits: Limits,
+    /// Probe names to save as waveforms (empty: all).
+    pub save: Vec<String>,
+    /// Fixed controller bias power for whole-converter efficiency, watts.
+    pub bias_power: f64,
+    /// The scenario as given, echoed into outputs.
+    pub source_text: String,
+}
