@@ -82,7 +82,7 @@ fn old_and_new_names_give_the_same_job() {
         format!("{:?}", old.job.limits),
         format!("{:?}", new.job.limits)
     );
-    assert_eq!(new.job.limits.ripple_pp, Some(0.05));
+    assert_eq!(new.job.limits.ripple, Some(0.05));
 }
 
 #[test]
