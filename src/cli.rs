@@ -57,7 +57,7 @@ pub enum Command {
     #[command(
         after_help = "Example:\n  stepflux settle scenarios/demo-startup.json\n  \
         stepflux settle --json scenarios/rcd-clamp.json > point.json\n\n\
-        The steady state of the initial operating point (events ignored, soft starts \
+        The steady state of the initial operating point (disturbances ignored, soft starts \
         over) by shooting: every state by name, output mean and ripple, duty, efficiency \
         and losses, reset margin, flux and drain peaks. Exits 3 when there is no periodic \
         steady state (subharmonic or no convergence, with the states that do not settle)."
@@ -140,7 +140,7 @@ pub enum Command {
     },
     /// Run one or more scenario files, in parallel, writing each run's outputs.
     #[command(
-        after_help = "Example:\n  stepflux run scenarios/demo-startup.json scenarios/load-step.json --out results\n\n\
+        after_help = "Example:\n  stepflux run scenarios/demo-startup.json scenarios/demo-load-step.json --out results\n\n\
         Writes DIR/<scenario name>/waveforms.h5, summary.json and plots/*.svg for each \
         scenario. One bad or failing scenario does not stop the others; the exit code is \
         the most severe outcome (4 interrupted, 3 simulation failed, 2 bad input, 1 a limit \
@@ -170,7 +170,7 @@ pub enum Command {
     },
     /// Plot signals of a waveform file into an SVG file.
     #[command(
-        after_help = "Example:\n  stepflux plot out/demo/waveforms.h5 --signal out.v --signal lout.i -o vout.svg\n\n\
+        after_help = "Example:\n  stepflux plot out/demo/waveforms.h5 --signal out.v --signal lout.i --out vout.svg\n\n\
         One panel per signal against time; long signals keep every peak (min/max per \
         pixel column). `--x cycles/start` with `--signal cycles/duty` plots the cycle table."
     )]
@@ -191,7 +191,7 @@ pub enum Command {
         #[arg(long, value_name = "TIME")]
         to: Option<String>,
         /// SVG file to write.
-        #[arg(short = 'o', long = "output", value_name = "FILE.svg")]
+        #[arg(long = "out", alias = "output", value_name = "FILE.svg")]
         output: PathBuf,
     },
     /// Size a forward converter from its specification and write a complete scenario.

@@ -79,6 +79,19 @@ impl<T, E: Into<anyhow::Error>> ExitWith<T> for Result<T, E> {
     }
 }
 
+/// Refuses an output location that exists and is not a directory: bad input (exit 2)
+/// for every command that writes a results folder, checked before any work starts.
+pub fn usable_out(out: &std::path::Path) -> Result<(), Failure> {
+    if out.exists() && !out.is_dir() {
+        return Err(anyhow::anyhow!(
+            "output location {} exists and is not a directory",
+            out.display()
+        ))
+        .exit_with(Exit::BadInput);
+    }
+    Ok(())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -140,13 +140,7 @@ fn run(cli: Cli) -> Result<(), Failure> {
         }),
         Command::Compare { a, b, html } => compare_cmd::compare(&a, &b, html.as_deref()),
         Command::Demo { out } => {
-            if out.exists() && !out.is_dir() {
-                return Err(anyhow::anyhow!(
-                    "output location {} exists and is not a directory",
-                    out.display()
-                ))
-                .exit_with(Exit::BadInput);
-            }
+            stepflux::exit::usable_out(&out)?;
             let output = demo::run(&out, &|_| {}).exit_with(Exit::SimulationFailed)?;
             print::run_summary(&output);
             if output.summary.interrupted.is_some() {

@@ -14,8 +14,8 @@ use stepflux_models::job::verdict::verdicts;
 use stepflux_models::runaway::Runaway;
 
 use crate::job::{Job, Start};
-use crate::scenario::Loaded;
 use crate::report::{design_figures, Interruption, Summary, CAUTION};
+use crate::scenario::Loaded;
 use crate::steady::SteadyReport;
 use crate::writers::atomic::write_json;
 use crate::writers::{html, plots, waveforms::WaveformSink};
@@ -94,7 +94,13 @@ pub fn run_loaded(
     progress: &(dyn Fn(f64) + Sync),
     settings: RunSettings,
 ) -> Result<RunOutput> {
-    run(&loaded.job, Some(&loaded.built), out_root, progress, settings)
+    run(
+        &loaded.job,
+        Some(&loaded.built),
+        out_root,
+        progress,
+        settings,
+    )
 }
 
 fn run(

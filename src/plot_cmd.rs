@@ -1,4 +1,4 @@
-//! `stepflux plot FILE.h5 --signal NAME... -o FILE.svg`: plots saved signals of a
+//! `stepflux plot FILE.h5 --signal NAME... --out FILE.svg`: plots saved signals of a
 //! waveform file, one panel each, against time (or another 1-D dataset), optionally
 //! in a time window (`--from`, `--to`).
 

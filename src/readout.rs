@@ -232,15 +232,26 @@ fn sections(s: &Summary) -> Vec<Section> {
         s.measurements
             .iter()
             .filter(|f| f.def.section == section)
-            .filter(|f| section != CatalogueSection::Reset || f.key.starts_with("reset_check.worst."))
+            .filter(|f| {
+                section != CatalogueSection::Reset || f.key.starts_with("reset_check.worst.")
+            })
             .map(|f| (label(f), show(f)))
             .collect()
     };
     let mut out = vec![
-        (CatalogueSection::StartUp.title(), pick(CatalogueSection::StartUp)),
+        (
+            CatalogueSection::StartUp.title(),
+            pick(CatalogueSection::StartUp),
+        ),
         ("steps", steps(s)),
-        (CatalogueSection::Steady.title(), pick(CatalogueSection::Steady)),
-        (CatalogueSection::Reset.title(), pick(CatalogueSection::Reset)),
+        (
+            CatalogueSection::Steady.title(),
+            pick(CatalogueSection::Steady),
+        ),
+        (
+            CatalogueSection::Reset.title(),
+            pick(CatalogueSection::Reset),
+        ),
     ];
     out.retain(|(_, rows)| !rows.is_empty());
     out

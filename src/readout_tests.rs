@@ -81,9 +81,9 @@ fn limits_read_value_against_bound_with_units() {
     let s = summary(
         Vec::new(),
         vec![
-            v("ripple", 0.0333, 0.05, true),
-            v("recovery_time", 310e-6, 200e-6, false),
-            v("reset_margin_percent", 11.7, 5.0, true),
+            v("ripple_pp", 0.0333, 0.05, true),
+            v("step_recovery", 310e-6, 200e-6, false),
+            v("reset_margin_pct", 11.7, 5.0, true),
         ],
     );
     let texts: Vec<String> = readout(&s).verdicts.into_iter().map(|l| l.text).collect();

@@ -58,15 +58,7 @@ pub fn run(
     how: Reporting,
     allow_large: bool,
 ) -> Result<(), Failure> {
-    if out.exists() && !out.is_dir() {
-        return Err(Failure {
-            exit: Exit::BadInput,
-            error: anyhow::anyhow!(
-                "output location {} exists and is not a directory",
-                out.display()
-            ),
-        });
-    }
+    crate::exit::usable_out(out)?;
     // Handlers first: a signal while loading must not kill the process either.
     let stop = crate::interrupt::flag();
     // Everything is loaded before anything runs, so two scenarios that would write one
@@ -203,7 +195,10 @@ fn one(path: &Path, loaded: &Loaded, out: &Path, bars: &MultiProgress) -> Outcom
     match result {
         Ok(Ok(output)) => Outcome::Ran(Box::new(output)),
         Ok(Err(e)) => Outcome::Failed(crate::text::one_line(&e)),
-        Err(panic) => Outcome::Failed(format!("internal error (panic): {}", panic_text(&panic))),
+        Err(panic) => Outcome::Failed(format!(
+            "internal error (panic): {}",
+            crate::text::panic_text(&*panic)
+        )),
     }
 }
 
@@ -215,14 +210,6 @@ pub(crate) fn eta_or_unknown(state: &ProgressState, w: &mut dyn std::fmt::Write)
         true => write!(w, "?"),
         false => write!(w, "{:#}", HumanDuration(state.eta())),
     };
-}
-
-fn panic_text(panic: &Box<dyn std::any::Any + Send>) -> String {
-    panic
-        .downcast_ref::<&str>()
-        .map(|s| s.to_string())
-        .or_else(|| panic.downcast_ref::<String>().cloned())
-        .unwrap_or_else(|| "unknown".into())
 }
 
 const NOT_STARTED: &str = "not started: a stop was requested (SIGINT or SIGTERM)";

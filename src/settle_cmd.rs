@@ -15,11 +15,11 @@ use serde::Serialize;
 use crate::check::eng;
 use crate::exit::{Exit, ExitWith, Failure};
 use crate::job::{Drive, Job, NamedState, Start};
-use stepflux_models::job::plan::period;
 use crate::pipeline::{run_job_with, RunSettings};
 use crate::report::Figure;
 use crate::scenario;
 use crate::steady::{find_with_period, PeriodFigures, SteadyReport};
+use stepflux_models::job::plan::period;
 
 /// Periods run from the steady state to measure it (the pipeline's steady window is
 /// the last 20 of them).
@@ -192,11 +192,7 @@ pub fn report_text(p: &OperatingPoint) -> String {
         percent(p.get("efficiency.with_bias")),
     );
     out.push_str("losses:\n");
-    for f in p
-        .measurements
-        .iter()
-        .filter(|f| f.key.starts_with("loss."))
-    {
+    for f in p.measurements.iter().filter(|f| f.key.starts_with("loss.")) {
         line(
             &mut out,
             &f.key["loss.".len()..],

@@ -138,3 +138,12 @@ mod tests {
         assert!(s.chars().count() < 120, "{s}");
     }
 }
+
+/// The message of a caught panic (a `&str` or `String` payload), for reports.
+pub fn panic_text(panic: &(dyn std::any::Any + Send)) -> String {
+    panic
+        .downcast_ref::<&str>()
+        .map(|s| s.to_string())
+        .or_else(|| panic.downcast_ref::<String>().cloned())
+        .unwrap_or_else(|| "(no message)".into())
+}

@@ -88,7 +88,7 @@ fn resume_reruns_cases_whose_scenario_changed() {
     let out = root.join("out");
     code(&batch(&study, &out, &["--jobs", "2"]), &[0, 1]);
     // A tighter ripple limit changes every case's scenario, so nothing may be reused.
-    s["limits"]["ripple"] = serde_json::json!("1 mV");
+    s["limits"]["ripple_pp"] = serde_json::json!("1 mV");
     let study = write_study(&root, &s);
     let again = batch(&study, &out, &["--jobs", "2", "--resume"]);
     assert_eq!(
@@ -140,7 +140,7 @@ fn sigint_keeps_finished_cases_and_resume_does_the_rest() {
             "base": base_scenario(),
             "parameters": { "vin": "converter.input.voltage", "stop": "analysis.stop_time" },
             "corners": { "vin": ["18 V", "24 V", "30 V", "36 V"], "stop": ["0.3 s"] },
-            "limits": { "startup_time": null }
+            "limits": { "startup_t90": null }
         }),
     );
     let out = root.join("out");

@@ -107,6 +107,32 @@ fn output_path_that_is_a_file_is_bad_input() {
     assert!(stderr.contains("not a directory"), "stderr: {stderr}");
 }
 
+/// `run` and `batch` classify an unusable `--out` as `demo` does: bad input, exit 2
+/// (README "Exit codes"); batch used to exit 3.
+#[test]
+fn run_and_batch_refuse_a_file_as_output_folder_with_exit_2() {
+    let dir = scratch("run_batch_bad_out");
+    std::fs::create_dir_all(&dir).expect("scratch dir");
+    let not_a_dir = dir.join("plain_file");
+    std::fs::write(&not_a_dir, b"x").expect("write file");
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios");
+    for (command, input) in [
+        ("run", "demo-startup.json"),
+        ("batch", "study_corners.json"),
+    ] {
+        let output = stepflux()
+            .arg(command)
+            .arg(root.join(input))
+            .arg("--out")
+            .arg(&not_a_dir)
+            .output()
+            .expect("binary runs");
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert_eq!(output.status.code(), Some(2), "{command}: {stderr}");
+        assert!(stderr.contains("not a directory"), "{command}: {stderr}");
+    }
+}
+
 #[test]
 fn unknown_option_is_bad_input() {
     let status = stepflux()

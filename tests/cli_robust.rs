@@ -112,7 +112,7 @@ fn long_run(dir: &Path) -> Child {
         v["name"] = json!("long");
         v["analysis"]["stop_time"] = json!("20 s");
         v["analysis"]["sample_interval"] = json!("10 us");
-        v["save"] = json!(["out.v"]);
+        v["signals"] = json!(["out.v"]);
     });
     stepflux()
         .args(["run", "--quiet", "--out"])

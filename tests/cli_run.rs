@@ -90,7 +90,7 @@ fn plot_writes_an_svg_of_named_signals() {
     let status = stepflux()
         .args(["plot"])
         .arg(dir.join("two-switch/waveforms.h5"))
-        .args(["--signal", "drain.v", "--signal", "mag.i", "-o"])
+        .args(["--signal", "drain.v", "--signal", "mag.i", "--out"])
         .arg(&svg)
         .status()
         .expect("binary runs");
@@ -100,7 +100,7 @@ fn plot_writes_an_svg_of_named_signals() {
     let status = stepflux()
         .args(["plot"])
         .arg(dir.join("two-switch/waveforms.h5"))
-        .args(["--signal", "no.such", "-o"])
+        .args(["--signal", "no.such", "--out"])
         .arg(dir.join("x.svg"))
         .stderr(std::process::Stdio::null())
         .status()
@@ -113,7 +113,7 @@ fn plot_writes_an_svg_of_named_signals() {
         .args(["plot"])
         .arg(dir.join("two-switch/waveforms.h5"))
         .args([
-            "--signal", "mag.i", "--from", "20 us", "--to", "40 us", "-o",
+            "--signal", "mag.i", "--from", "20 us", "--to", "40 us", "--out",
         ])
         .arg(&zoom)
         .status()
@@ -124,7 +124,7 @@ fn plot_writes_an_svg_of_named_signals() {
     let status = stepflux()
         .args(["plot"])
         .arg(dir.join("two-switch/waveforms.h5"))
-        .args(["--signal", "mag.i", "--from", "1000 s", "-o"])
+        .args(["--signal", "mag.i", "--from", "1000 s", "--out"])
         .arg(dir.join("late.svg"))
         .stderr(std::process::Stdio::null())
         .status()

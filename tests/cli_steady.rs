@@ -76,8 +76,8 @@ fn a_scenario_started_steady_does_not_drift_over_100_periods() {
         s["analysis"]["start"] = Value::from("steady");
         s["analysis"]["stop_time"] = Value::from(100.0 * period);
         s["analysis"]["sample_interval"] = Value::from(period / 500.0);
-        s["events"] = Value::Array(Vec::new());
-        s["save"] = serde_json::json!(["out.v", "lout.i"]);
+        s["disturbances"] = Value::Array(Vec::new());
+        s["signals"] = serde_json::json!(["out.v", "lout.i"]);
         let path = write(&dir, "steady.json", &s);
         let out = dir.join(example_name);
         let output = stepflux()

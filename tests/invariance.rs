@@ -40,7 +40,7 @@ fn variant(example: &Path, dir: &Path, tag: &str, interval: &str, all: bool) -> 
     s["name"] = Value::from(name.clone());
     s.as_object_mut().expect("object").remove("$schema");
     s["analysis"]["sample_interval"] = Value::from(interval);
-    s["save"] = if all {
+    s["signals"] = if all {
         Value::Array(Vec::new())
     } else {
         Value::from(vec!["out.v"])

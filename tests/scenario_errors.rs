@@ -99,8 +99,8 @@ fn cases() -> Vec<Case> {
         ),
         case(
             "wrong_slew_unit",
-            edit(|v| v["events"] = json!([{ "line": { "time": "1 ms", "to": "20 V", "slew": "1 A/us" } }])),
-            &["events[0].line.slew: \"1 A/us\" is not a valid voltage slew rate"],
+            edit(|v| v["disturbances"] = json!([{ "line": { "time": "1 ms", "to": "20 V", "slew": "1 A/us" } }])),
+            &["disturbances[0].line.slew: \"1 A/us\" is not a valid voltage slew rate"],
         ),
         case(
             "not_a_number",
@@ -114,14 +114,14 @@ fn cases() -> Vec<Case> {
         ),
         case(
             "reset_field_range",
-            edit(|v| v["converter"]["reset"]["reset-winding"]["diode"]["rd"] = json!(0)),
-            &["converter.reset.reset-winding.diode.rd = 0 is not allowed; expected a finite value > 0"],
+            edit(|v| v["converter"]["reset"]["reset_winding"]["diode"]["r_on"] = json!(0)),
+            &["converter.reset.reset_winding.diode.r_on = 0 is not allowed; expected a finite value > 0"],
         ),
         case(
             "unknown_scheme",
             edit(|v| v["converter"]["reset"] = json!({ "flyback": {} })),
             &["converter.reset: expected one choice: an object with exactly one key, one of \
-               `reset-winding`, `rcd-clamp`, `two-switch`, `active-clamp`; found an object with \
+               `reset_winding`, `rcd_clamp`, `two_switch`, `active_clamp`; found an object with \
                the one key `flyback`"],
         ),
         case(
@@ -136,8 +136,8 @@ fn cases() -> Vec<Case> {
         ),
         case(
             "unknown_signal",
-            edit(|v| v["save"] = json!(["out.v", "vout"])),
-            &["save[1]: unknown signal \"vout\"; this converter has: in.v, in.i, out.v"],
+            edit(|v| v["signals"] = json!(["out.v", "vout"])),
+            &["signals[1]: unknown signal \"vout\"; this converter has: in.v, in.i, out.v"],
         ),
         // A duty above the reset limit and a drain stress above a rating used to be
         // refused here; they are designs that fail, simulated and shown failing
@@ -155,15 +155,15 @@ fn cases() -> Vec<Case> {
         case(
             "alternating_single_gate",
             edit(|v| v["drive"]["controller"]["mode"] = json!("alternating")),
-            &["drive.controller.mode = \"alternating\" is not allowed; expected \"single_ended\" for the reset-winding template", "would drive nothing"],
+            &["drive.controller.mode = \"alternating\" is not allowed; expected \"single_ended\" for the reset_winding template", "would drive nothing"],
         ),
         case(
             "reference_step_open_loop",
             edit(|v| {
                 v["drive"] = json!({ "open_loop": { "frequency": "150 kHz", "duty": 0.3 } });
-                v["events"] = json!([{ "reference": { "time": "1 ms", "to": "3 V" } }]);
+                v["disturbances"] = json!([{ "reference": { "time": "1 ms", "to": "3 V" } }]);
             }),
-            &["events[0].reference: infeasible: a reference step needs the controller drive"],
+            &["disturbances[0].reference: infeasible: a reference step needs the controller drive"],
         ),
         case(
             "wrong_state_count",
@@ -191,20 +191,20 @@ fn cases() -> Vec<Case> {
             "choice_empty",
             edit(|v| v["converter"]["reset"] = json!({})),
             &["converter.reset: expected one choice: an object with exactly one key, one of \
-               `reset-winding`, `rcd-clamp`, `two-switch`, `active-clamp`; found an empty object {}"],
+               `reset_winding`, `rcd_clamp`, `two_switch`, `active_clamp`; found an empty object {}"],
         ),
         case(
             "choice_two_keys",
             edit(|v| {
-                let winding = v["converter"]["reset"]["reset-winding"].clone();
-                v["converter"]["reset"] = json!({ "reset-winding": winding, "two-switch": {} });
+                let winding = v["converter"]["reset"]["reset_winding"].clone();
+                v["converter"]["reset"] = json!({ "reset_winding": winding, "two_switch": {} });
             }),
-            &["converter.reset: expected one choice", "found an object with 2 key(s): `reset-winding`, `two-switch`"],
+            &["converter.reset: expected one choice", "found an object with 2 key(s): `reset_winding`, `two_switch`"],
         ),
         case(
             "choice_as_text",
-            edit(|v| v["converter"]["reset"] = json!("reset-winding")),
-            &["converter.reset: expected one choice", "found the text \"reset-winding\""],
+            edit(|v| v["converter"]["reset"] = json!("reset_winding")),
+            &["converter.reset: expected one choice", "found the text \"reset_winding\""],
         ),
         case(
             "choice_wrong_type",
@@ -245,8 +245,8 @@ fn cases() -> Vec<Case> {
         ),
         case(
             "text_for_a_list",
-            edit(|v| v["save"] = json!("out.v")),
-            &["save: expected a list [ … ]; found the text \"out.v\""],
+            edit(|v| v["signals"] = json!("out.v")),
+            &["signals: expected a list [ … ]; found the text \"out.v\""],
         ),
         case(
             "bool_for_a_power",
@@ -311,8 +311,8 @@ fn cases() -> Vec<Case> {
         ),
         case(
             "limit_out_of_range",
-            edit(|v| v["limits"]["flux_margin_percent"] = json!(120)),
-            &["limits.flux_margin_percent = 120 is not allowed; expected 0 to 100"],
+            edit(|v| v["limits"]["flux_margin_pct"] = json!(120)),
+            &["limits.flux_margin_pct = 120 is not allowed; expected 0 to 100"],
         ),
     ]
 }

@@ -64,7 +64,7 @@ fn every_reset_scheme_has_an_example() {
         assert_eq!(v["valid"], true);
         templates.push(v["template"].as_str().unwrap_or_default().to_string());
     }
-    for t in ["reset-winding", "rcd-clamp", "two-switch", "active-clamp"] {
+    for t in ["reset_winding", "rcd_clamp", "two_switch", "active_clamp"] {
         assert!(
             templates.iter().any(|x| x == t),
             "no example of {t}: {templates:?}"
@@ -118,4 +118,32 @@ fn committed_schema_is_the_generated_one() {
         printed == committed,
         "scenarios/stepflux.schema.json is stale: regenerate with `stepflux schema > scenarios/stepflux.schema.json`"
     );
+}
+
+/// Every `scenarios/….json` named in the command-line help or the READMEs exists, so a
+/// copied example command runs (issue 11: the `run` help named a missing file).
+#[test]
+fn every_scenario_path_named_in_help_and_docs_exists() {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    for doc in [
+        "src/cli.rs",
+        "README.md",
+        "DEVELOPERS.md",
+        "scenarios/README.md",
+    ] {
+        let text = std::fs::read_to_string(root.join(doc)).expect(doc);
+        for (at, _) in text.match_indices("scenarios/") {
+            let tail = &text[at..];
+            let end = tail
+                .find(|c: char| !(c.is_ascii_alphanumeric() || "/_.-".contains(c)))
+                .unwrap_or(tail.len());
+            let path = tail[..end].trim_end_matches('.');
+            if path.ends_with(".json") {
+                assert!(
+                    root.join(path).exists(),
+                    "{doc} names {path}, which does not exist"
+                );
+            }
+        }
+    }
 }

@@ -103,7 +103,7 @@ fn scenario(d: &Draw) -> String {
             open["dead_time"] = json!(0.02 / d.frequency);
         }
         v["drive"] = json!({ "open_loop": open });
-        v["events"] = json!([]);
+        v["disturbances"] = json!([]);
     } else {
         v["drive"]["controller"]["oscillator"]["frequency"] = json!(d.frequency);
         v["drive"]["controller"]["max_duty"] = json!(d.duty.min(0.45));

@@ -87,7 +87,7 @@ fn a_load_resistance_step_recovers_and_leaves_the_steady_ripple_alone() {
     // The same 4 → 6 → 4 A steps as demo-load-step, made by the load resistor:
     // 1.25 Ω → 0.8333 Ω at 5 ms, back to 1.25 Ω at 6 ms (5 V / R).
     let mut by_r = load_step();
-    by_r["events"] = json!([
+    by_r["disturbances"] = json!([
         { "load_resistance": { "time": "5 ms", "to": 0.8333333333333334 } },
         { "load_resistance": { "time": "6 ms", "to": "1R25" } }
     ]);
@@ -118,7 +118,7 @@ fn a_load_resistance_step_recovers_and_leaves_the_steady_ripple_alone() {
     // Raising the load cannot lift the output by the 1.6 % spike of no load.
     let over = figure(&r, "load_step0.overshoot_pct").unwrap();
     assert!(over < 1.0, "load_step0 overshoot {over} %");
-    assert_eq!(verdict(&r, "recovery_time")["pass"], json!(true));
+    assert_eq!(verdict(&r, "step_recovery")["pass"], json!(true));
 }
 
 #[test]
@@ -127,7 +127,7 @@ fn a_reference_step_is_judged_against_the_new_set_point() {
     // = 5.2 V (the divider is unchanged). The output must settle there: steady error
     // within the ±1 % band, and the step limits judged on this step, not "-".
     let mut s = load_step();
-    s["events"] = json!([
+    s["disturbances"] = json!([
         { "reference": { "time": "5 ms", "to": "2.6 V" } },
         { "load_current": { "time": "6 ms", "to": "2 A", "slew": "1 A/us" } }
     ]);
@@ -142,7 +142,7 @@ fn a_reference_step_is_judged_against_the_new_set_point() {
         err.abs() < 0.01 * 5.2,
         "load step steady error {err} V about 5.2 V"
     );
-    for limit in ["step_deviation_percent", "recovery_time"] {
+    for limit in ["step_deviation_pct", "step_recovery"] {
         assert!(verdict(&s, limit)["value"].is_number(), "{limit}: {s:#}");
     }
 }
@@ -151,13 +151,13 @@ fn a_reference_step_is_judged_against_the_new_set_point() {
 /// 1/(1 + 1.5) = 0.40 (Erickson & Maksimović, §6.3.2).
 fn beyond_reset_limit(stop: &str, saturated: Option<&str>) -> Value {
     let mut s: Value = serde_json::from_str(STARTUP).expect("demo-startup parses");
-    s["converter"]["reset"]["reset-winding"]["turns"] = json!(18);
+    s["converter"]["reset"]["reset_winding"]["turns"] = json!(18);
     if let Some(l) = saturated {
         s["converter"]["transformer"]["saturated_inductance"] = json!(l);
     }
     s["drive"] = json!({ "open_loop": { "frequency": "150 kHz", "duty": 0.45 } });
     s["analysis"]["stop_time"] = json!(stop);
-    s["limits"] = json!({ "flux_margin_percent": 20 });
+    s["limits"] = json!({ "flux_margin_pct": 20 });
     s
 }
 
@@ -170,7 +170,7 @@ fn a_design_beyond_its_reset_limit_fails_at_check_and_is_simulated_by_run() {
     // diode drop (the check's closed form); knee 0.72 A.
     for key in [
         "design: FAIL",
-        "drive.open_loop.duty: duty 0.45 is above the reset-winding reset limit 0.4000",
+        "drive.open_loop.duty: duty 0.45 is above the reset_winding reset limit 0.4000",
         "grows by 0.0667 A per cycle",
         "knee current 0.720 A",
     ] {
@@ -228,7 +228,7 @@ fn the_controller_drives_an_active_clamp_in_single_ended_mode() {
     // complementary to the main one. The check accepts it (it used to be documented as
     // refused) and a short run simulates it without error.
     let mut s: Value = serde_json::from_str(include_str!("../scenarios/active-clamp.json"))
-        .expect("active-clamp parses");
+        .expect("active_clamp parses");
     let startup: Value = serde_json::from_str(STARTUP).expect("demo-startup parses");
     s["drive"] = startup["drive"].clone();
     s["drive"]["controller"]["aux_dead_time"] = json!("100 ns");

@@ -73,6 +73,7 @@ pub fn plan_text(text: &str, dir: &Path, file: &str) -> Result<usize> {
 
 /// `stepflux batch`.
 pub fn batch(args: &BatchArgs) -> Result<(), Failure> {
+    crate::exit::usable_out(&args.out)?;
     let study = study::load(&args.study)
         .context("study is not valid")
         .exit_with(Exit::BadInput)?;
@@ -144,9 +145,6 @@ fn run(
     meta: &StudyMeta,
     args: &BatchArgs,
 ) -> Result<Vec<CaseRecord>> {
-    if args.out.exists() && !args.out.is_dir() {
-        bail!("output location {} is not a directory", args.out.display());
-    }
     std::fs::create_dir_all(&layout.dir)
         .with_context(|| format!("creating {}", layout.dir.display()))?;
     record::write_json(&layout.dir.join("study.json"), meta)?;

@@ -1,5 +1,5 @@
 //! Dotted paths into a scenario's JSON: `converter.input.voltage`,
-//! `events[0].line.to`. Keys are taken literally between dots, so `reset-winding` needs
+//! `disturbances[0].line.to`. Keys are taken literally between dots, so `reset_winding` needs
 //! no quoting; `[n]` selects element n of an array.
 
 use anyhow::{anyhow, bail, Result};
@@ -126,17 +126,17 @@ mod tests {
 
     #[test]
     fn parses_keys_and_indices() {
-        let p = JsonPath::parse("events[1].line.to").unwrap();
+        let p = JsonPath::parse("disturbances[1].line.to").unwrap();
         assert_eq!(
             p.0,
             vec![
-                Step::Key("events".into()),
+                Step::Key("disturbances".into()),
                 Step::Index(1),
                 Step::Key("line".into()),
                 Step::Key("to".into())
             ]
         );
-        assert_eq!(p.display(), "events[1].line.to");
+        assert_eq!(p.display(), "disturbances[1].line.to");
         for bad in ["", "a..b", "a[x]", "a[1", "a]"] {
             assert!(JsonPath::parse(bad).is_err(), "{bad:?} must be refused");
         }

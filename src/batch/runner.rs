@@ -2,7 +2,6 @@
 //! its case ends. A case that errors — invalid scenario, simulation failure, even a
 //! panic — is recorded as errored and the others go on.
 
-use std::any::Any;
 use std::panic::{catch_unwind, AssertUnwindSafe};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
@@ -237,7 +236,9 @@ fn run_case(
                 Ok(Ok(summary)) if summary.interrupted.is_some() => return None,
                 Ok(Ok(summary)) => record.set_summary(&summary),
                 Ok(Err(e)) => record.set_error(crate::text::one_line(&e)),
-                Err(panic) => record.set_error(format!("panic: {}", panic_text(&*panic))),
+                Err(panic) => {
+                    record.set_error(format!("panic: {}", crate::text::panic_text(&*panic)))
+                }
             }
         }
     }
@@ -266,12 +267,4 @@ fn simulate(
             .with_context(|| format!("removing {}", output.dir.display()))?;
     }
     Ok(output.summary)
-}
-
-fn panic_text(panic: &(dyn Any + Send)) -> String {
-    panic
-        .downcast_ref::<&str>()
-        .map(|s| s.to_string())
-        .or_else(|| panic.downcast_ref::<String>().cloned())
-        .unwrap_or_else(|| "(no message)".into())
 }

@@ -8,12 +8,12 @@
 //!   "corners": { "vin": ["18 V", "24 V", "32 V"] },
 //!   "sweeps": [ { "points": 3, "scale": "log", "ranges": { "cout": { "start": "100 uF", "stop": "470 uF" } } } ],
 //!   "monte_carlo": { "samples": 10, "seed": 7, "tolerances": { "cout": { "uniform_percent": 20 } } },
-//!   "limits": { "ripple": "60 mV" }
+//!   "limits": { "ripple_pp": "60 mV" }
 //! }
 //! ```
 //!
 //! Parameters are named once and addressed by a dotted path into the scenario JSON,
-//! with `[n]` for array elements (`events[0].line.to`). The cases are the Cartesian
+//! with `[n]` for array elements (`disturbances[0].line.to`). The cases are the Cartesian
 //! product of every corner list and every sweep (the parameters of one sweep move
 //! together), each crossed with every Monte Carlo sample; see [`super::cases`].
 
@@ -57,7 +57,7 @@ pub struct StudyFile {
     pub base: Base,
     /// Short parameter names (used in the result tables) and the dotted JSON path each
     /// one sets in the scenario, e.g. `"vin": "converter.input.voltage"`,
-    /// `"step": "events[0].load_current.to"`.
+    /// `"step": "disturbances[0].load_current.to"`.
     pub parameters: BTreeMap<String, String>,
     /// Named lists of values; every combination is a case (names taken in alphabetical
     /// order, the last varying fastest).
@@ -297,6 +297,8 @@ fn merge_limits(base: &mut Value, limits: Option<&serde_json::Map<String, Value>
         .as_object_mut()
         .ok_or_else(|| anyhow!("the base scenario's `limits` is not an object"))?;
     for (k, v) in extra {
+        // A limit under its old name replaces the same limit under its new one, and back.
+        map.retain(|key, _| !crate::scenario::same_limit(key, k));
         map.insert(k.clone(), v.clone());
     }
     Ok(())

@@ -201,7 +201,11 @@ fn results_json(
     })
 }
 
-fn worst_json(meta: &StudyMeta, records: &[CaseRecord], units: &BTreeMap<String, String>) -> Value2 {
+fn worst_json(
+    meta: &StudyMeta,
+    records: &[CaseRecord],
+    units: &BTreeMap<String, String>,
+) -> Value2 {
     let ran: Vec<&CaseRecord> = records
         .iter()
         .filter(|r| r.status != Status::Errored)

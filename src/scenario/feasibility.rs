@@ -54,20 +54,20 @@ pub fn build(job: &Job) -> Result<Built, ModelError> {
     })
 }
 
-/// Checks `save` names and the length of given initial states against the build.
+/// Checks `signals` names and the length of given initial states against the build.
 pub fn check_build(ctx: &Ctx, job: &Job, built: &Built) -> Result<(), ScenarioError> {
     for (k, name) in job.save.iter().enumerate() {
         if !built.probes.contains(name) {
             return Err(ScenarioError::UnknownSignal {
                 file: ctx.file.to_string(),
-                field: format!("save[{k}]"),
+                field: format!("signals[{k}]"),
                 name: name.clone(),
                 available: built.probes.join(", "),
             });
         }
         if job.save[..k].contains(name) {
             return Err(ctx.range(
-                &format!("save[{k}]"),
+                &format!("signals[{k}]"),
                 format!("{name:?}"),
                 "each signal once",
             ));
@@ -316,11 +316,11 @@ fn switch_ratings(d: &ForwardDesign) -> Vec<(String, f64)> {
     )];
     match &d.reset {
         ResetScheme::TwoSwitch { high_side, .. } => list.push((
-            "converter.reset.two-switch.high_side.voltage_rating".into(),
+            "converter.reset.two_switch.high_side.voltage_rating".into(),
             high_side.voltage_rating,
         )),
         ResetScheme::ActiveClamp { aux_switch, .. } => list.push((
-            "converter.reset.active-clamp.aux_switch.voltage_rating".into(),
+            "converter.reset.active_clamp.aux_switch.voltage_rating".into(),
             aux_switch.voltage_rating,
         )),
         _ => {}
@@ -387,7 +387,7 @@ fn timing_warnings(job: &Job, warn: &mut dyn FnMut(&str, String)) {
     for (k, e) in job.disturbances.iter().enumerate() {
         if e.time() >= a.stop_time {
             warn(
-                &format!("events[{k}]"),
+                &format!("disturbances[{k}]"),
                 format!(
                     "at {} s, not before stop_time {} s: it never happens",
                     e.time(),

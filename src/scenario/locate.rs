@@ -1,5 +1,5 @@
 //! Where a field is in the file: the line and column of the value at a dotted path
-//! (`converter.reset.rcd-clamp.diode.rd`, `events[0].line.to`), so an error found after
+//! (`converter.reset.rcd_clamp.diode.r_on`, `disturbances[0].line.to`), so an error found after
 //! parsing still points the editor at the spot.
 //!
 //! A small scanner over text already known to be well-formed JSON; it reads only as far

@@ -5,7 +5,7 @@
 //! ```json
 //! {
 //!   "name": "startup",
-//!   "converter": { "input": { "voltage": "24 V" }, "reset": { "reset-winding": { … } }, … },
+//!   "converter": { "input": { "voltage": "24 V" }, "reset": { "reset_winding": { … } }, … },
 //!   "drive": { "open_loop": { "frequency": "150 kHz", "duty": 0.3 } },
 //!   "analysis": { "stop_time": "2 ms", "sample_interval": "1 us" }
 //! }
@@ -13,6 +13,7 @@
 //!
 //! `stepflux schema` prints the full JSON Schema; `scenarios/` has worked examples.
 
+mod deprecated;
 pub mod document;
 mod error;
 mod feasibility;
@@ -25,6 +26,7 @@ use std::path::Path;
 
 use stepflux_models::figures::DesignFigures;
 
+pub use deprecated::same_limit;
 pub use error::{ScenarioError, Warning};
 pub use feasibility::{design_point, sample_interval_on_grid};
 
@@ -73,7 +75,7 @@ fn validated(text: &str, file: &str) -> Result<Loaded, ScenarioError> {
     let raw = parse(text, file)?;
     let design = validate::design(&ctx, &raw.converter)?;
     let drive = validate::drive(&ctx, &raw.drive)?;
-    let disturbances = validate::events(&ctx, &raw.events, &drive)?;
+    let disturbances = validate::disturbances(&ctx, &raw.disturbances, &drive)?;
     let job = Job {
         name: validate::name(&ctx, &raw.name)?,
         description: raw.description,
@@ -82,7 +84,7 @@ fn validated(text: &str, file: &str) -> Result<Loaded, ScenarioError> {
         disturbances,
         analysis: validate::analysis(&ctx, &raw.analysis)?,
         limits: validate::limits(&ctx, &raw.limits)?,
-        save: raw.save,
+        save: raw.signals,
         bias_power: ctx.non_negative("bias_power", raw.bias_power.map_or(0.0, |w| w.si()))?,
         source_text: text.to_string(),
     };
@@ -92,9 +94,11 @@ fn validated(text: &str, file: &str) -> Result<Loaded, ScenarioError> {
     feasibility::check_build(&ctx, &job, &built)?;
     let figures = DesignFigures::compute(&job.design, &design_point(&job));
     let judged = feasibility::judge(&ctx, &job, &figures)?;
+    let mut warnings = old_names(text);
+    warnings.extend(judged.warnings);
     Ok(Loaded {
         job,
-        warnings: judged.warnings,
+        warnings,
         failures: judged.failures,
         figures,
         probes: built.probes,
@@ -102,6 +106,13 @@ fn validated(text: &str, file: &str) -> Result<Loaded, ScenarioError> {
         built: built.converter,
         file: file.to_string(),
     })
+}
+
+/// Deprecation warnings for names of the previous release (the text parsed already).
+fn old_names(text: &str) -> Vec<Warning> {
+    serde_json::from_str(text.trim_start_matches('\u{feff}'))
+        .map(|doc| deprecated::warnings(&doc))
+        .unwrap_or_default()
 }
 
 /// First stage: JSON → raw types, with the field path of any error.

@@ -20,7 +20,7 @@ pub fn check(ctx: &Ctx, job: &Job) -> Result<(), ScenarioError> {
         ("converter.transformer.secondary_turns", t.secondary_turns),
     ];
     if t.reset_turns != 0.0 {
-        windings.push(("converter.reset.reset-winding.turns", t.reset_turns));
+        windings.push(("converter.reset.reset_winding.turns", t.reset_turns));
     }
     for (field, n) in windings {
         ctx.within(field, n, TURNS.0, TURNS.1)?;

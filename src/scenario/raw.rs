@@ -2,7 +2,9 @@
 //! check units. Ranges and consistency are checked in [`super::validate`].
 //!
 //! Enumerations are written as an object with one key naming the choice, e.g.
-//! `"reset": { "rcd-clamp": { … } }`, so an error inside a choice carries its full path.
+//! `"reset": { "rcd_clamp": { … } }`, so an error inside a choice carries its full path.
+//! Every key and choice name is snake_case. Names of the previous release still load
+//! (serde aliases) with a deprecation warning naming the new field: [`super::deprecated`].
 //! Values carry their unit (see [`crate::units`]). The JSON Schema printed by
 //! `stepflux schema` is generated from these types, doc comments included.
 
@@ -44,16 +46,16 @@ pub struct Scenario {
     pub drive: Drive,
     /// Time settings of the run.
     pub analysis: Analysis,
-    /// Load, line and reference changes at set times.
-    #[serde(default)]
-    pub events: Vec<Event>,
+    /// Load, line and reference steps at set times.
+    #[serde(default, alias = "events")]
+    pub disturbances: Vec<Disturbance>,
     /// Specification limits the run is judged against (all optional).
     #[serde(default)]
     pub limits: Limits,
-    /// Signals to save as waveforms (empty: all). Names are the converter's probes,
+    /// Signals to write as waveforms (empty: all). Names are the converter's probes,
     /// e.g. "out.v", "mag.i", "core.b"; `stepflux check` lists them.
-    #[serde(default)]
-    pub save: Vec<String>,
+    #[serde(default, alias = "save")]
+    pub signals: Vec<String>,
     /// Fixed controller bias power for whole-converter efficiency (default 0 W).
     pub bias_power: Option<Watts>,
 }
@@ -222,7 +224,8 @@ pub struct Diode {
     /// Forward threshold voltage.
     pub vf: Volts,
     /// Forward (dynamic) resistance.
-    pub rd: Ohms,
+    #[serde(alias = "rd")]
+    pub r_on: Ohms,
     /// Off resistance (default 10 MΩ).
     pub r_off: Option<Ohms>,
     /// Junction capacitance (default 0).
@@ -259,23 +262,27 @@ pub struct Capacitor {
 pub struct Load {
     /// Load resistor (omit for none).
     pub resistance: Option<Ohms>,
-    /// Constant-current sink at t = 0 (omit for none; `load_current` events move it).
+    /// Constant-current sink at t = 0 (omit for none; `load_current` disturbances move it).
     pub current: Option<Amperes>,
 }
 
 /// How the core is reset while the switch is off; the choice names the template.
 #[derive(Debug, Deserialize, JsonSchema)]
-#[serde(rename_all = "kebab-case")]
+#[serde(rename_all = "snake_case")]
 pub enum Reset {
     /// Single switch; a reset winding and diode return the magnetising energy to the
     /// input.
+    #[serde(alias = "reset-winding")]
     ResetWinding(ResetWinding),
     /// Single switch; a diode, capacitor and resistor clamp the drain to the input.
+    #[serde(alias = "rcd-clamp")]
     RcdClamp(RcdClamp),
     /// High- and low-side switches; two diodes clamp the winding to the input rail.
+    #[serde(alias = "two-switch")]
     TwoSwitch(TwoSwitch),
     /// An auxiliary switch and a capacitor clamp the drain, gated complementary to the
     /// main switch.
+    #[serde(alias = "active-clamp")]
     ActiveClamp(ActiveClamp),
 }
 
@@ -595,7 +602,7 @@ pub enum StateValue {
 /// A change of operating point at a set time.
 #[derive(Debug, Deserialize, JsonSchema)]
 #[serde(rename_all = "snake_case")]
-pub enum Event {
+pub enum Disturbance {
     /// The load current sink moves to a new value.
     LoadCurrent(LoadCurrentStep),
     /// The load resistor is replaced by a new value at once.
@@ -652,28 +659,40 @@ pub struct ReferenceStep {
     pub slew: Option<VoltsPerSecond>,
 }
 
-/// Specification limits; each omitted limit is not checked.
+/// Specification limits; each omitted limit is not checked. Each is named after the
+/// figure it bounds.
 #[derive(Debug, Default, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct Limits {
-    /// Highest start-up overshoot, percent of the set point.
-    pub startup_overshoot_percent: Option<Ratio>,
-    /// Longest start-up time to 90 % of the set point.
-    pub startup_time: Option<Seconds>,
-    /// Largest deviation after a load or line step, percent of the set point.
-    pub step_deviation_percent: Option<Ratio>,
-    /// Longest recovery into the band after a step.
-    pub recovery_time: Option<Seconds>,
-    /// Recovery band, percent of the set point (default 1 %).
-    pub recovery_band_percent: Option<Ratio>,
-    /// Largest output ripple, peak to peak.
-    pub ripple: Option<Volts>,
-    /// Smallest reset margin, percent of the period.
-    pub reset_margin_percent: Option<Ratio>,
-    /// Smallest flux-density margin below Bsat, percent.
-    pub flux_margin_percent: Option<Ratio>,
-    /// Lowest power-stage efficiency over the final window, percent.
-    pub efficiency_percent: Option<Ratio>,
+    /// Highest start-up overshoot, percent of the set point (`startup.overshoot_pct`).
+    #[serde(alias = "startup_overshoot_percent")]
+    pub startup_overshoot_pct: Option<Ratio>,
+    /// Longest start-up time to 90 % of the set point (`startup.t90`).
+    #[serde(alias = "startup_time")]
+    pub startup_t90: Option<Seconds>,
+    /// Largest deviation after a load or line step, percent of the set point (the
+    /// larger of `load_stepN.undershoot_pct` and `load_stepN.overshoot_pct`).
+    #[serde(alias = "step_deviation_percent")]
+    pub step_deviation_pct: Option<Ratio>,
+    /// Longest recovery into the band after a step (`load_stepN.recovery`).
+    #[serde(alias = "recovery_time")]
+    pub step_recovery: Option<Seconds>,
+    /// Recovery band, percent of the set point (default 1 %; `load_stepN.band_pct`).
+    #[serde(alias = "recovery_band_percent")]
+    pub step_band_pct: Option<Ratio>,
+    /// Largest output ripple, peak to peak (`out.v.ripple_pp`).
+    #[serde(alias = "ripple")]
+    pub ripple_pp: Option<Volts>,
+    /// Smallest reset margin, percent of the period (`reset_check.worst.reset_margin_pct`).
+    #[serde(alias = "reset_margin_percent")]
+    pub reset_margin_pct: Option<Ratio>,
+    /// Smallest flux-density margin below Bsat, percent
+    /// (`reset_check.worst.flux_margin_pct`).
+    #[serde(alias = "flux_margin_percent")]
+    pub flux_margin_pct: Option<Ratio>,
+    /// Lowest power-stage efficiency over the final window, percent (`efficiency.stage`).
+    #[serde(alias = "efficiency_percent")]
+    pub efficiency_pct: Option<Ratio>,
     /// Smallest phase margin of the loop gain at the steady state, degrees.
     pub phase_margin_degrees: Option<f64>,
     /// Smallest gain margin of the loop gain at the steady state, dB.

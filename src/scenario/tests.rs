@@ -54,15 +54,15 @@ fn every_reset_scheme_builds_with_its_own_probes() {
     let switch = serde_json::json!({ "r_on": "50m", "voltage_rating": "100 V" });
     for (reset, probe) in [
         (
-            serde_json::json!({ "rcd-clamp": { "diode": diode, "resistance": "1k", "capacitor": { "capacitance": "100n" } } }),
+            serde_json::json!({ "rcd_clamp": { "diode": diode, "resistance": "1k", "capacitor": { "capacitance": "100n" } } }),
             "clamp.v",
         ),
         (
-            serde_json::json!({ "two-switch": { "high_side": switch, "clamp_diode": diode } }),
+            serde_json::json!({ "two_switch": { "high_side": switch, "clamp_diode": diode } }),
             "sw.hi.v",
         ),
         (
-            serde_json::json!({ "reset-winding": { "turns": 12, "diode": diode } }),
+            serde_json::json!({ "reset_winding": { "turns": 12, "diode": diode } }),
             "reset.i",
         ),
     ] {
@@ -96,10 +96,10 @@ fn warnings_carry_the_numbers() {
 fn schema_lists_every_template_and_refuses_unknown_fields() {
     let text = json_schema().to_string();
     for tag in [
-        "reset-winding",
-        "rcd-clamp",
-        "two-switch",
-        "active-clamp",
+        "reset_winding",
+        "rcd_clamp",
+        "two_switch",
+        "active_clamp",
         "open_loop",
         "poles_zeros",
     ] {

@@ -139,7 +139,7 @@ fn or_zero<T: Copy>(v: Option<T>, si: fn(T) -> f64) -> f64 {
 fn diode(d: &raw::Diode) -> Diode {
     Diode {
         vf: d.vf.si(),
-        rd: d.rd.si(),
+        rd: d.r_on.si(),
         r_off: d.r_off.map_or(DEFAULT_R_OFF, |r| r.si()),
         junction_capacitance: or_zero(d.junction_capacitance, |c| c.si()),
         reverse_rating: d.reverse_rating.si(),
@@ -178,11 +178,16 @@ fn capacitor(c: &raw::Capacitor) -> Capacitor {
 }
 
 /// Scenario path of a field the models name (`transformer.reset_turns`, `reset.diode.rd`,
-/// `switch.r_on`).
+/// `switch.r_on`). The models call a diode's forward resistance `rd`; the scenario calls
+/// it `r_on`, as the engine does.
 fn design_path(model_field: &str, scheme: &str) -> String {
     if model_field == "transformer.reset_turns" {
-        return "converter.reset.reset-winding.turns".into();
+        return "converter.reset.reset_winding.turns".into();
     }
+    let model_field = match model_field.strip_suffix(".rd") {
+        Some(diode) => format!("{diode}.r_on"),
+        None => model_field.to_string(),
+    };
     match model_field.strip_prefix("reset.") {
         Some(rest) => format!("converter.reset.{scheme}.{rest}"),
         None => format!("converter.{model_field}"),
@@ -218,21 +223,21 @@ pub fn design(ctx: &Ctx, c: &raw::Converter) -> Result<ForwardDesign, ScenarioEr
             transformer.reset_turns = w.turns.si();
             transformer.reset_leakage = or_zero(w.leakage, |v| v.si());
             transformer.reset_resistance = or_zero(w.resistance, |v| v.si());
-            let path = "converter.reset.reset-winding";
+            let path = "converter.reset.reset_winding";
             ctx.non_negative(&format!("{path}.leakage"), transformer.reset_leakage)?;
             ctx.non_negative(&format!("{path}.resistance"), transformer.reset_resistance)?;
             (
                 ResetScheme::ResetWinding {
                     diode: diode(&w.diode),
                 },
-                "reset-winding",
+                "reset_winding",
             )
         }
         raw::Reset::RcdClamp(r) => {
             let v0 = or_zero(r.initial_voltage, |v| v.si());
-            ctx.non_negative("converter.reset.rcd-clamp.initial_voltage", v0)?;
+            ctx.non_negative("converter.reset.rcd_clamp.initial_voltage", v0)?;
             ctx.non_negative(
-                "converter.reset.rcd-clamp.capacitor.esr",
+                "converter.reset.rcd_clamp.capacitor.esr",
                 or_zero(r.capacitor.esr, |v| v.si()),
             )?;
             let reset = ResetScheme::RcdClamp {
@@ -241,20 +246,20 @@ pub fn design(ctx: &Ctx, c: &raw::Converter) -> Result<ForwardDesign, ScenarioEr
                 capacitor: capacitor(&r.capacitor),
                 initial_voltage: v0,
             };
-            (reset, "rcd-clamp")
+            (reset, "rcd_clamp")
         }
         raw::Reset::TwoSwitch(s) => {
             let reset = ResetScheme::TwoSwitch {
                 high_side: switch(&s.high_side),
                 clamp_diode: diode(&s.clamp_diode),
             };
-            (reset, "two-switch")
+            (reset, "two_switch")
         }
         raw::Reset::ActiveClamp(a) => {
             let v0 = or_zero(a.initial_voltage, |v| v.si());
-            ctx.non_negative("converter.reset.active-clamp.initial_voltage", v0)?;
+            ctx.non_negative("converter.reset.active_clamp.initial_voltage", v0)?;
             ctx.non_negative(
-                "converter.reset.active-clamp.capacitor.esr",
+                "converter.reset.active_clamp.capacitor.esr",
                 or_zero(a.capacitor.esr, |v| v.si()),
             )?;
             let reset = ResetScheme::ActiveClamp {
@@ -262,7 +267,7 @@ pub fn design(ctx: &Ctx, c: &raw::Converter) -> Result<ForwardDesign, ScenarioEr
                 capacitor: capacitor(&a.capacitor),
                 initial_voltage: v0,
             };
-            (reset, "active-clamp")
+            (reset, "active_clamp")
         }
     };
     let design = ForwardDesign {
@@ -471,37 +476,37 @@ fn compensation(
     Ok(network)
 }
 
-/// The events, checked (in file order; the models sort them by time).
-pub fn events(
+/// The disturbances, checked (in file order; the models sort them by time).
+pub fn disturbances(
     ctx: &Ctx,
-    list: &[raw::Event],
+    list: &[raw::Disturbance],
     drive: &Drive,
 ) -> Result<Vec<Disturbance>, ScenarioError> {
     list.iter()
         .enumerate()
         .map(|(k, e)| {
-            let at = |kind: &str, field: &str| format!("events[{k}].{kind}.{field}");
+            let at = |kind: &str, field: &str| format!("disturbances[{k}].{kind}.{field}");
             let slew = |kind: &str, v: Option<f64>| ctx.non_negative(&at(kind, "slew"), v.unwrap_or(0.0));
             let time = |kind: &str, t: f64| ctx.non_negative(&at(kind, "time"), t);
             Ok(match e {
-                raw::Event::LoadCurrent(s) => Disturbance::LoadCurrent {
+                raw::Disturbance::LoadCurrent(s) => Disturbance::LoadCurrent {
                     time: time("load_current", s.time.si())?,
                     to: ctx.non_negative(&at("load_current", "to"), s.to.si())?,
                     slew: slew("load_current", s.slew.map(|v| v.si()))?,
                 },
-                raw::Event::LoadResistance(s) => Disturbance::LoadResistance {
+                raw::Disturbance::LoadResistance(s) => Disturbance::LoadResistance {
                     time: time("load_resistance", s.time.si())?,
                     to: ctx.positive(&at("load_resistance", "to"), s.to.si())?,
                 },
-                raw::Event::Line(s) => Disturbance::Line {
+                raw::Disturbance::Line(s) => Disturbance::Line {
                     time: time("line", s.time.si())?,
                     to: ctx.positive(&at("line", "to"), s.to.si())?,
                     slew: slew("line", s.slew.map(|v| v.si()))?,
                 },
-                raw::Event::Reference(s) => {
+                raw::Disturbance::Reference(s) => {
                     if !matches!(drive, Drive::Controller(_)) {
                         return Err(ctx.infeasible(
-                            &format!("events[{k}].reference"),
+                            &format!("disturbances[{k}].reference"),
                             "a reference step needs the controller drive; open_loop has no reference".into(),
                         ));
                     }
@@ -587,22 +592,15 @@ pub fn limits(ctx: &Ctx, l: &raw::Limits) -> Result<Limits, ScenarioError> {
     // Overshoot and deviation may exceed 100 % in a failing design; 1000 % only catches
     // a value typed as a fraction's reciprocal or a stray exponent.
     Ok(Limits {
-        startup_overshoot_percent: pct(
-            "startup_overshoot_percent",
-            l.startup_overshoot_percent,
-            1000.0,
-        )?,
-        startup_time: pos("startup_time", l.startup_time.map(|v| v.si()))?,
-        step_deviation_percent: pct("step_deviation_percent", l.step_deviation_percent, 1000.0)?,
-        recovery_time: pos("recovery_time", l.recovery_time.map(|v| v.si()))?,
-        recovery_band_percent: pos(
-            "recovery_band_percent",
-            l.recovery_band_percent.map(|v| v.si()),
-        )?,
-        ripple: pos("ripple", l.ripple.map(|v| v.si()))?,
-        reset_margin_percent: pct("reset_margin_percent", l.reset_margin_percent, 100.0)?,
-        flux_margin_percent: pct("flux_margin_percent", l.flux_margin_percent, 100.0)?,
-        efficiency_percent: pct("efficiency_percent", l.efficiency_percent, 100.0)?,
+        startup_overshoot_percent: pct("startup_overshoot_pct", l.startup_overshoot_pct, 1000.0)?,
+        startup_time: pos("startup_t90", l.startup_t90.map(|v| v.si()))?,
+        step_deviation_percent: pct("step_deviation_pct", l.step_deviation_pct, 1000.0)?,
+        recovery_time: pos("step_recovery", l.step_recovery.map(|v| v.si()))?,
+        recovery_band_percent: pos("step_band_pct", l.step_band_pct.map(|v| v.si()))?,
+        ripple: pos("ripple_pp", l.ripple_pp.map(|v| v.si()))?,
+        reset_margin_percent: pct("reset_margin_pct", l.reset_margin_pct, 100.0)?,
+        flux_margin_percent: pct("flux_margin_pct", l.flux_margin_pct, 100.0)?,
+        efficiency_percent: pct("efficiency_pct", l.efficiency_pct, 100.0)?,
         // A margin below 0 is an unstable loop, never a useful minimum; 180° and 60 dB
         // only catch a stray exponent.
         phase_margin_degrees: l

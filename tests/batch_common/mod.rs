@@ -44,7 +44,7 @@ pub fn quick_study(name: &str) -> Value {
             "seed": 11,
             "tolerances": { "cout": { "uniform_percent": 20 } }
         },
-        "limits": { "startup_time": null }
+        "limits": { "startup_t90": null }
     })
 }
 

@@ -56,7 +56,11 @@ impl Built {
 
     /// Probe names in sample order.
     pub fn probe_names(&self) -> Vec<String> {
-        self.converter.probes.iter().map(|p| p.name.clone()).collect()
+        self.converter
+            .probes
+            .iter()
+            .map(|p| p.name.clone())
+            .collect()
     }
 
     /// The dynamic states by name, in the engine's order.

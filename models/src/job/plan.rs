@@ -10,7 +10,6 @@
 //!   first disturbance, or before the end;
 //! - the core-reset check over every cycle of the run.
 
-use stepflux_engine::{Simulation, TracePoint, Turning};
 use crate::cycles::CycleRecord;
 use crate::disturbance::Disturbance;
 use crate::measure::{
@@ -20,6 +19,7 @@ use crate::measure::{
 use crate::run::ConverterRun;
 use crate::template::Probe;
 use crate::ModelError;
+use stepflux_engine::{Simulation, TracePoint, Turning};
 
 use super::{Drive, Job};
 
@@ -137,10 +137,7 @@ impl Plan {
             (first - STEADY_PERIODS * period(job)).max(0.5 * first),
             first,
         );
-        let band = job
-            .limits
-            .recovery_band_percent
-            .map_or(DEFAULT_BAND, |p| p / 100.0);
+        let band = job.limits.recovery_band_percent.map_or(DEFAULT_BAND, |p| p / 100.0);
         let startup = match set_point(job) {
             Some(sp) => Some(StartUp::new(probes, sp, DIP_ALLOWANCE * sp, 0.0, first)?),
             None => None,

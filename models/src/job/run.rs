@@ -394,7 +394,11 @@ impl Sink for Samples<'_, '_, '_> {
     }
 
     fn listens(&self) -> bool {
-        self.0.recorder.borrow().as_ref().is_some_and(|r| r.listens())
+        self.0
+            .recorder
+            .borrow()
+            .as_ref()
+            .is_some_and(|r| r.listens())
     }
 
     fn trace(&mut self, point: &TracePoint<'_>) -> Result<(), String> {

@@ -2,9 +2,8 @@
 //! naming the catalogue figures it bounds by identity, never by a name's prefix.
 
 use super::Limits;
-use crate::measure::{reset_check, startup, step, Figure, FigureDef};
 use crate::loopgain;
-use crate::measure::{efficiency, ripple};
+use crate::measure::{efficiency, reset_check, ripple, startup, step, Figure, FigureDef};
 
 /// Which side of the bound passes.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -49,7 +48,7 @@ pub struct LimitDef {
 /// Every limit, in the order verdicts are reported.
 pub static LIMITS: [LimitDef; 12] = [
     LimitDef {
-        field: "startup_overshoot_percent",
+        field: "startup_overshoot_pct",
         label: "start-up overshoot",
         unit: "%",
         bound: Bound::AtMost,
@@ -59,7 +58,7 @@ pub static LIMITS: [LimitDef; 12] = [
         get: |l| l.startup_overshoot_percent,
     },
     LimitDef {
-        field: "startup_time",
+        field: "startup_t90",
         label: "start-up time to 90 %",
         unit: "s",
         bound: Bound::AtMost,
@@ -69,7 +68,7 @@ pub static LIMITS: [LimitDef; 12] = [
         get: |l| l.startup_time,
     },
     LimitDef {
-        field: "step_deviation_percent",
+        field: "step_deviation_pct",
         label: "step deviation",
         unit: "%",
         bound: Bound::AtMost,
@@ -79,7 +78,7 @@ pub static LIMITS: [LimitDef; 12] = [
         get: |l| l.step_deviation_percent,
     },
     LimitDef {
-        field: "recovery_time",
+        field: "step_recovery",
         label: "step recovery",
         unit: "s",
         bound: Bound::AtMost,
@@ -89,7 +88,7 @@ pub static LIMITS: [LimitDef; 12] = [
         get: |l| l.recovery_time,
     },
     LimitDef {
-        field: "ripple",
+        field: "ripple_pp",
         label: "output ripple",
         unit: "V",
         bound: Bound::AtMost,
@@ -99,7 +98,7 @@ pub static LIMITS: [LimitDef; 12] = [
         get: |l| l.ripple,
     },
     LimitDef {
-        field: "reset_margin_percent",
+        field: "reset_margin_pct",
         label: "reset margin",
         unit: "%",
         bound: Bound::AtLeast,
@@ -109,7 +108,7 @@ pub static LIMITS: [LimitDef; 12] = [
         get: |l| l.reset_margin_percent,
     },
     LimitDef {
-        field: "flux_margin_percent",
+        field: "flux_margin_pct",
         label: "flux margin",
         unit: "%",
         bound: Bound::AtLeast,
@@ -119,7 +118,7 @@ pub static LIMITS: [LimitDef; 12] = [
         get: |l| l.flux_margin_percent,
     },
     LimitDef {
-        field: "efficiency_percent",
+        field: "efficiency_pct",
         label: "efficiency",
         unit: "%",
         bound: Bound::AtLeast,

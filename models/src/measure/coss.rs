@@ -15,10 +15,9 @@
 //! in the cycle record. A high-side or auxiliary switch's Coss energy stays inside its
 //! own v·i.
 
-use super::{Figure, Measurement};
 use super::catalogue::figures;
+use super::{Figure, Measurement};
 use crate::cycles::CycleRecord;
-
 
 figures! {
     TURN_ON_ENERGY = "coss.turn_on_energy", "J", Number, Higher, Files,
@@ -70,9 +69,6 @@ impl Measurement for CossTurnOn {
     }
 
     fn figures(&self) -> Vec<Figure> {
-        vec![
-            TURN_ON_ENERGY.of(self.energy),
-            TURN_ON_COUNT.of(self.count),
-        ]
+        vec![TURN_ON_ENERGY.of(self.energy), TURN_ON_COUNT.of(self.count)]
     }
 }

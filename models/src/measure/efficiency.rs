@@ -12,10 +12,10 @@
 //! core classes (the balance is unchanged: both sides grow alike); the gate drive is
 //! supplied with the bias, P_out/(P_in + P_gate + P_bias).
 
+use super::catalogue::figures;
 use super::losses::{EnergySnapshot, LossClass, LossMeters};
 use super::part_losses::PartEnergies;
 use super::Figure;
-use super::catalogue::figures;
 use crate::error::ModelError;
 
 figures! {

@@ -24,13 +24,12 @@
 
 use std::fmt;
 
-use super::{probe_index, Figure, Measurement};
 use super::catalogue::figures;
+use super::{probe_index, Figure, Measurement};
 use super::{FigureDef, Value};
 use crate::cycles::CycleRecord;
 use crate::error::ModelError;
 use crate::template::{ForwardDesign, Probe, ResetScheme};
-
 
 figures! {
     PASS = "reset_check.pass", "1", Flag, Lower, Files,

@@ -3,12 +3,11 @@
 
 use stepflux_engine::TracePoint;
 
+use super::catalogue::figures;
 use super::window::{WindowExtremes, WindowMean};
 use super::{at_point, probe_index, Figure, Measurement};
-use super::catalogue::figures;
 use crate::error::ModelError;
 use crate::template::{Probe, Unit};
-
 
 figures! {
     RIPPLE_PP = "*.ripple_pp", "*", Number, Higher, Steady,
@@ -95,7 +94,8 @@ impl Measurement for Ripple {
             return Vec::new();
         };
         let n = &self.name;
-        let at = |d: &'static super::FigureDef, v: f64| d.scoped(&[n.as_str()], v).in_unit(self.unit);
+        let at =
+            |d: &'static super::FigureDef, v: f64| d.scoped(&[n.as_str()], v).in_unit(self.unit);
         vec![
             at(&RIPPLE_PP, r.peak_to_peak),
             at(&MEAN, r.mean),

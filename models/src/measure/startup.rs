@@ -3,8 +3,8 @@
 
 use stepflux_engine::TracePoint;
 
-use super::window::crossing;
 use super::catalogue::figures;
+use super::window::crossing;
 use super::{at_point, percent, probe_index, Figure, Measurement};
 use crate::cycles::CycleRecord;
 use crate::error::ModelError;

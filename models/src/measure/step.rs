@@ -3,13 +3,12 @@
 
 use stepflux_engine::TracePoint;
 
+use super::catalogue::figures;
 use super::window::{crossing, CycleRange, WindowExtremes, WindowMean};
 use super::{at_point, percent, probe_index, Figure, Measurement};
-use super::catalogue::figures;
 use crate::cycles::CycleRecord;
 use crate::error::ModelError;
 use crate::template::Probe;
-
 
 figures! {
     UNDERSHOOT = "*.undershoot", "V", Number, Higher, Files,

@@ -55,13 +55,13 @@ pub enum ResetScheme {
 }
 
 impl ResetScheme {
-    /// Short name used in reports and file names.
+    /// The scenario's choice name for this scheme, used in messages and `check`.
     pub fn name(&self) -> &'static str {
         match self {
-            ResetScheme::ResetWinding { .. } => "reset-winding",
-            ResetScheme::RcdClamp { .. } => "rcd-clamp",
-            ResetScheme::TwoSwitch { .. } => "two-switch",
-            ResetScheme::ActiveClamp { .. } => "active-clamp",
+            ResetScheme::ResetWinding { .. } => "reset_winding",
+            ResetScheme::RcdClamp { .. } => "rcd_clamp",
+            ResetScheme::TwoSwitch { .. } => "two_switch",
+            ResetScheme::ActiveClamp { .. } => "active_clamp",
         }
     }
 }
