@@ -124,7 +124,8 @@ fn load(path: &Path) -> Result<Side> {
 
 /// A figure's value as a number: flags as 1 (yes) or 0 (no); choices have none.
 fn number(v: &Value) -> Option<f64> {
-    v.as_f64().or_else(|| v.as_bool().map(|b| f64::from(u8::from(b))))
+    v.as_f64()
+        .or_else(|| v.as_bool().map(|b| f64::from(u8::from(b))))
 }
 
 fn figure_list(list: Option<&Value>, into: &mut BTreeMap<String, (f64, String)>) {

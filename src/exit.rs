@@ -25,6 +25,15 @@ pub enum Exit {
 }
 
 impl Exit {
+    /// Every exit status, in code order (the README's table lists exactly these).
+    pub const ALL: [Exit; 5] = [
+        Exit::Ok,
+        Exit::SpecFailed,
+        Exit::BadInput,
+        Exit::SimulationFailed,
+        Exit::Interrupted,
+    ];
+
     pub const fn code(self) -> u8 {
         self as u8
     }

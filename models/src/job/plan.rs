@@ -137,7 +137,10 @@ impl Plan {
             (first - STEADY_PERIODS * period(job)).max(0.5 * first),
             first,
         );
-        let band = job.limits.recovery_band_percent.map_or(DEFAULT_BAND, |p| p / 100.0);
+        let band = job
+            .limits
+            .recovery_band_percent
+            .map_or(DEFAULT_BAND, |p| p / 100.0);
         let startup = match set_point(job) {
             Some(sp) => Some(StartUp::new(probes, sp, DIP_ALLOWANCE * sp, 0.0, first)?),
             None => None,

@@ -58,7 +58,6 @@ use crate::steady::map::{ClosedLoopMap, PeriodMap};
 use crate::steady::{shoot, ShootingOptions, SteadyError, SteadyState};
 use crate::template::ForwardDesign;
 
-
 crate::measure::catalogue::figures! {
     CROSSOVER = "loop.crossover", "Hz", Number, Neither, Files,
         "loop crossover", "Frequency where the sampled-data loop gain at the steady state crosses 0 dB.";

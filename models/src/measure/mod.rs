@@ -22,11 +22,11 @@ pub mod catalogue;
 pub mod coss;
 pub mod efficiency;
 mod losses;
+pub mod part_losses;
 pub mod reset_check;
 pub mod ripple;
 pub mod startup;
 pub mod step;
-pub mod part_losses;
 mod tee;
 mod window;
 

@@ -29,13 +29,12 @@
 
 use stepflux_engine::TracePoint;
 
-use super::{probe_index, Figure, Measurement};
 use super::catalogue::figures;
+use super::{probe_index, Figure, Measurement};
 use crate::components::{CoreLoss, GateDrive, Transitions};
 use crate::cycles::CycleRecord;
 use crate::error::ModelError;
 use crate::template::{ForwardDesign, Probe};
-
 
 figures! {
     TRANSITION_ENERGY = "parts.transition_energy", "J", Number, Higher, Files,

@@ -1,0 +1,73 @@
+//! The documents name what the code does: the README's exit-code table lists exactly
+//! the codes `src/exit.rs` defines, and DEVELOPERS.md's probe list is exactly the set
+//! of signals the example scenarios' converters carry (`check --json` "signals").
+//! Either fails when one side changes without the other.
+
+use std::collections::BTreeSet;
+use std::path::Path;
+use std::process::Command;
+
+use stepflux::exit::Exit;
+
+fn read(name: &str) -> String {
+    std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join(name)).expect(name)
+}
+
+#[test]
+fn readme_exit_codes_are_the_defined_ones() {
+    let readme = read("README.md");
+    let table = readme
+        .split("## Exit codes")
+        .nth(1)
+        .expect("README has an exit-code section");
+    let documented: BTreeSet<u8> = table
+        .lines()
+        .skip_while(|l| !l.starts_with('|'))
+        .take_while(|l| l.starts_with('|'))
+        .filter_map(|l| l.trim_matches('|').split('|').next()?.trim().parse().ok())
+        .collect();
+    let defined: BTreeSet<u8> = Exit::ALL.iter().map(|e| e.code()).collect();
+    assert_eq!(documented, defined);
+}
+
+/// The backticked names in DEVELOPERS.md's "Probe names are" paragraph.
+fn documented_probes() -> BTreeSet<String> {
+    let doc = read("DEVELOPERS.md");
+    let start = doc.find("Probe names are").expect("a probe list");
+    let para = &doc[start..];
+    let para = &para[..para.find("\n- ").unwrap_or(para.len())];
+    para.split('`')
+        .skip(1)
+        .step_by(2)
+        .filter(|s| *s != "part.quantity" && !s.contains('/'))
+        .map(str::to_string)
+        .collect()
+}
+
+#[test]
+fn documented_probes_are_the_examples_signals() {
+    let mut built = BTreeSet::new();
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios");
+    for entry in std::fs::read_dir(&dir).expect("scenarios/") {
+        let path = entry.expect("entry").path();
+        let name = path.file_name().and_then(|n| n.to_str()).unwrap_or("");
+        if !name.ends_with(".json") || name.contains("schema") || name.starts_with("study") {
+            continue;
+        }
+        let out = Command::new(env!("CARGO_BIN_EXE_stepflux"))
+            .args(["check", "--json"])
+            .arg(&path)
+            .output()
+            .expect("stepflux runs");
+        let v: serde_json::Value = serde_json::from_slice(&out.stdout)
+            .unwrap_or_else(|e| panic!("{name}: check --json is not JSON: {e}"));
+        for s in v["signals"].as_array().into_iter().flatten() {
+            built.insert(s.as_str().unwrap_or_default().to_string());
+        }
+    }
+    assert_eq!(
+        documented_probes(),
+        built,
+        "DEVELOPERS.md probe list vs the built converters"
+    );
+}
