@@ -189,7 +189,7 @@ fn one(path: &Path, loaded: &Loaded, out: &Path, bars: &MultiProgress) -> Outcom
         ));
     };
     let result = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
-        run_loaded(&loaded, out, &progress, RunSettings::interactive())
+        run_loaded(loaded, out, &progress, RunSettings::interactive())
     }));
     bar.finish_and_clear();
     match result {

@@ -90,6 +90,15 @@ pub fn storage_hint(message: &str) -> Option<&'static str> {
     )
 }
 
+/// The message of a caught panic (a `&str` or `String` payload), for reports.
+pub fn panic_text(panic: &(dyn std::any::Any + Send)) -> String {
+    panic
+        .downcast_ref::<&str>()
+        .map(|s| s.to_string())
+        .or_else(|| panic.downcast_ref::<String>().cloned())
+        .unwrap_or_else(|| "(no message)".into())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -137,13 +146,4 @@ mod tests {
         assert!(s.contains("(1000002 characters) is not allowed"), "{s}");
         assert!(s.chars().count() < 120, "{s}");
     }
-}
-
-/// The message of a caught panic (a `&str` or `String` payload), for reports.
-pub fn panic_text(panic: &(dyn std::any::Any + Send)) -> String {
-    panic
-        .downcast_ref::<&str>()
-        .map(|s| s.to_string())
-        .or_else(|| panic.downcast_ref::<String>().cloned())
-        .unwrap_or_else(|| "(no message)".into())
 }
