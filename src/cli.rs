@@ -10,13 +10,26 @@ use crate::batch::{Shard, Waveforms};
 #[command(
     name = "stepflux",
     version,
-    about = "Cycle-by-cycle time-domain simulator for forward converters and their PWM control loops",
-    after_help = "Exit codes: 0 ok, 1 a spec limit failed, 2 bad input, 3 simulation failed, \
-        4 interrupted (SIGINT/SIGTERM; partial results written)."
+    about = "Cycle-by-cycle time-domain simulator for forward converters and their PWM control loops"
 )]
+// The exit-code paragraph of `--help` is added at parse time from `exit::Exit`
+// (see [`Cli::parse_args`]), so it cannot drift from the codes the process returns.
 pub struct Cli {
     #[command(subcommand)]
     pub command: Command,
+}
+
+impl Cli {
+    /// Parses the process arguments with the exit-code line from [`crate::exit::Exit`]
+    /// under `--help`. Usage errors exit 2 and `--help` 0, as clap does, which match
+    /// `Exit::BadInput` and `Exit::Ok`.
+    pub fn parse_args() -> Cli {
+        use clap::{CommandFactory, FromArgMatches};
+        let matches = Cli::command()
+            .after_help(crate::exit::Exit::help_line())
+            .get_matches();
+        Cli::from_arg_matches(&matches).unwrap_or_else(|e| e.exit())
+    }
 }
 
 #[derive(Debug, Subcommand)]

@@ -38,6 +38,28 @@ impl Exit {
         self as u8
     }
 
+    /// A few words for `--help`; the README's table says the same at length.
+    pub const fn brief(self) -> &'static str {
+        match self {
+            Exit::Ok => "ok",
+            Exit::SpecFailed => {
+                "the design fails (a spec limit, a runaway core, check's paper figures)"
+            }
+            Exit::BadInput => "bad input",
+            Exit::SimulationFailed => "simulation failed",
+            Exit::Interrupted => "interrupted (SIGINT/SIGTERM; partial results written)",
+        }
+    }
+
+    /// The exit-code line `stepflux --help` ends with, built from [`Exit::ALL`].
+    pub fn help_line() -> String {
+        let codes: Vec<String> = Exit::ALL
+            .iter()
+            .map(|e| format!("{} {}", e.code(), e.brief()))
+            .collect();
+        format!("Exit codes: {}.", codes.join(", "))
+    }
+
     /// Rank among several outcomes (run, batch): the most severe decides the exit.
     /// An interruption outranks all, as the work was not done; a failed simulation
     /// outranks bad input, which outranks a failed limit.

@@ -4,8 +4,6 @@
 
 use std::process::ExitCode;
 
-use clap::Parser;
-
 use stepflux::cli::{Cli, Command};
 use stepflux::exit::{Exit, ExitWith, Failure};
 use stepflux::{
@@ -14,9 +12,7 @@ use stepflux::{
 };
 
 fn main() -> ExitCode {
-    // Clap exits on its own with 2 for usage errors and 0 for --help,
-    // consistent with `Exit`.
-    let cli = Cli::parse();
+    let cli = Cli::parse_args();
     match run(cli) {
         Ok(()) => Exit::Ok.into(),
         Err(failure) => {

@@ -76,21 +76,6 @@ pub fn find_for_run(job: &Job) -> Result<SteadyState, ModelError> {
     })
 }
 
-/// Writes the steady values over `x` (the run's states, named `names`) by name; the
-/// run may have states the steady search did not (load-step branches), which keep
-/// their values.
-pub fn apply(
-    steady: &SteadyState,
-    names: &[stepflux_models::steady::names::StateName],
-    x: &mut [f64],
-) {
-    for (name, value) in steady.named() {
-        if let Some(k) = names.iter().position(|n| n.name == name) {
-            x[k] = value;
-        }
-    }
-}
-
 /// One state of the steady operating point, for `summary.json` and `--json`.
 #[derive(Clone, Debug, Serialize, PartialEq)]
 pub struct StateValue {

@@ -1,5 +1,5 @@
 //! The open-loop gate source: fixed frequency and duty, with dead time around the
-//! complementary switch. It lets every template run before the controller exists, and
+//! complementary switch. It drives every open-loop run (no controller in the scenario), and
 //! is what the open-loop checks use.
 
 use stepflux_engine::Sink;

@@ -31,7 +31,7 @@ use crate::scenario::document;
 
 /// Longest study name: leaves room for the case suffix within the 64 characters a
 /// scenario name may have.
-const MAX_NAME: usize = 48;
+const NAME_MAX: usize = 48;
 
 /// Most cases one study may expand to; beyond this a typo (a sweep of 1e6 points) is
 /// far likelier than intent, and the plan alone would fill memory.
@@ -257,9 +257,9 @@ fn check_name(name: &str) -> Result<()> {
     let ok_chars = name
         .chars()
         .all(|c| c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.'));
-    if name.is_empty() || name.len() > MAX_NAME || name.starts_with('.') || !ok_chars {
+    if name.is_empty() || name.len() > NAME_MAX || name.starts_with('.') || !ok_chars {
         bail!(
-            "study name {name:?} must be 1 to {MAX_NAME} letters, digits, '-', '_' or '.', \
+            "study name {name:?} must be 1 to {NAME_MAX} letters, digits, '-', '_' or '.', \
              not starting with '.'"
         );
     }

@@ -20,7 +20,7 @@ use crate::gate::OpenLoopGate;
 use crate::measure::{Figure, LossMeters};
 use crate::run::ConverterRun;
 use crate::runaway::{Runaway, RunawayGuard};
-use crate::steady::names::{place, state_names};
+use crate::steady::names::{overlay, place, state_names};
 use crate::steady::SteadyState;
 use crate::template::{Converter, Probe};
 use crate::ModelError;
@@ -285,13 +285,11 @@ impl Driver {
                 let s = steady.ok_or_else(|| {
                     ModelError::Infeasible("analysis.start: the steady state was not found".into())
                 })?;
-                // The run may have states the steady search did not (load-step
-                // branches), which keep their values.
-                for (name, value) in s.named() {
-                    if let Some(k) = names.iter().position(|n| n.name == name) {
-                        x[k] = value;
-                    }
-                }
+                overlay(
+                    &names,
+                    s.named().iter().map(|(n, v)| (n.as_str(), *v)),
+                    &mut x,
+                );
             }
         }
         sim.set_states(&x)?;

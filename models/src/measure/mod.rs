@@ -2,8 +2,10 @@
 //! steps, ripple, and the per-cycle core-reset check.
 //!
 //! Everything streams. A measurement sees samples `(time, probe values, at_event)` and
-//! closed cycle records through a [`Tee`], which forwards both to the run's own sink
-//! and cycle sink, so writers keep streaming; each measurement keeps O(1) state (or
+//! closed cycle records; a job's run feeds its plan through its own fan-out
+//! (`job::run`), and [`Tee`] does the same for a hand-made set of measurements (the
+//! models tests' rigs), forwarding both streams to the run's own sinks so writers keep
+//! streaming. Each measurement keeps O(1) state (or
 //! O(window) where stated) and never stores a run. Energies are not sampled at all:
 //! [`LossMeters`] makes engine meters (exact quadratic integrals) and reads them at two
 //! instants.

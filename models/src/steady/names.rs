@@ -143,3 +143,18 @@ pub fn place(
     }
     Ok(())
 }
+
+/// Overlays the named values on `x` where a state of that name exists, leaving the
+/// others as they are: a run may carry states a steady search did not (load-step
+/// branches), which keep their values.
+pub fn overlay<'v>(
+    names: &[StateName],
+    values: impl IntoIterator<Item = (&'v str, f64)>,
+    x: &mut [f64],
+) {
+    for (name, value) in values {
+        if let Some(k) = names.iter().position(|n| n.name == name) {
+            x[k] = value;
+        }
+    }
+}

@@ -1,5 +1,5 @@
 //! Converter templates: a [`ForwardDesign`] expands into an engine [`Circuit`] with
-//! named probes, the gate-driven switches, and what the runner must watch.
+//! named probes, the gate-driven switches, and the elements a run and its measurements refer to.
 //!
 //! Node and probe names are this project's own dotted form `part.quantity`
 //! (`drain.v`, `mag.i`, `core.b`, `out.v` …). All templates share the input stage,
@@ -117,7 +117,7 @@ pub struct SaturationBranch {
     pub knee: f64,
 }
 
-/// Elements the runner and the measurements refer to.
+/// Elements a run (`job::run`) and the measurements refer to.
 #[derive(Clone, Debug, PartialEq)]
 pub struct KeyElements {
     /// Switches turned on and off together by the main gate.
