@@ -85,7 +85,7 @@ pub fn deserialize_figures<'de, D: Deserializer<'de>>(d: D) -> Result<Vec<Figure
 
 /// Units of probe-dependent figures read back: one of the probes' unit symbols.
 fn leak_unit(unit: &str) -> &'static str {
-    ["V", "A", "T", "W", "J", "s", "1"]
+    stepflux_models::template::PROBE_UNITS
         .into_iter()
         .find(|u| *u == unit)
         .unwrap_or("1")

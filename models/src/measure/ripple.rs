@@ -7,7 +7,7 @@ use super::catalogue::figures;
 use super::window::{WindowExtremes, WindowMean};
 use super::{at_point, probe_index, Figure, Measurement};
 use crate::error::ModelError;
-use crate::template::{Probe, Unit};
+use crate::template::{Probe, UnitSymbol};
 
 figures! {
     RIPPLE_PP = "*.ripple_pp", "*", Number, Higher, Steady,
@@ -24,7 +24,7 @@ figures! {
 #[derive(Clone, Debug)]
 pub struct Ripple {
     name: String,
-    unit: Unit,
+    unit: UnitSymbol,
     column: usize,
     mean: WindowMean,
     extremes: WindowExtremes,

@@ -89,8 +89,14 @@ pub struct ForwardDesign {
     pub load: Load,
 }
 
-/// Unit of a probe, for outputs.
-pub type Unit = &'static str;
+/// SI unit symbol of a probe, for outputs (`src/units.rs` parses units from text;
+/// this is only the symbol written beside a value).
+pub type UnitSymbol = &'static str;
+
+/// Every unit symbol a probe carries ("1" for a dimensionless block state), so a
+/// figure read back from JSON gets its unit from this list, not from a guess; a test
+/// builds every template and checks its probes against it.
+pub const PROBE_UNITS: [UnitSymbol; 7] = ["V", "A", "T", "W", "J", "s", "1"];
 
 /// A named probe: what to observe and its unit.
 #[derive(Clone, Debug, PartialEq)]
@@ -100,7 +106,7 @@ pub struct Probe {
     /// The quantity.
     pub signal: Signal,
     /// SI unit symbol.
-    pub unit: Unit,
+    pub unit: UnitSymbol,
 }
 
 /// The two-slope saturation branch: an extra inductor switched in parallel with the

@@ -3,7 +3,7 @@
 
 use stepflux_engine::{Circuit, ElementId, NodeId, Quantity, Signal, SwitchParams, Waveform};
 
-use super::{ForwardDesign, Probe, Unit};
+use super::{ForwardDesign, Probe, UnitSymbol};
 use crate::components::{Capacitor, Diode, InputSource, Switch};
 use crate::error::ModelError;
 
@@ -72,7 +72,7 @@ impl Net {
     }
 
     /// Adds a probe.
-    pub fn probe(&mut self, name: &str, signal: Signal, unit: Unit) {
+    pub fn probe(&mut self, name: &str, signal: Signal, unit: UnitSymbol) {
         self.probes.push(Probe {
             name: name.to_string(),
             signal,
