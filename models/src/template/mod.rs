@@ -95,7 +95,7 @@ pub type UnitSymbol = &'static str;
 
 /// Every unit symbol a probe carries ("1" for a dimensionless block state), so a
 /// figure read back from JSON gets its unit from this list, not from a guess; a test
-/// builds every template and checks its probes against it.
+/// builds the demo power stage and checks its probes against it.
 pub const PROBE_UNITS: [UnitSymbol; 7] = ["V", "A", "T", "W", "J", "s", "1"];
 
 /// A named probe: what to observe and its unit.
@@ -257,5 +257,21 @@ impl ForwardDesign {
             key,
             design: self.clone(),
         })
+    }
+}
+
+#[cfg(test)]
+mod unit_tests {
+    use super::PROBE_UNITS;
+
+    /// A probe whose unit is missing from the list would be read back from JSON
+    /// as dimensionless: the list must cover every probe a template makes.
+    #[test]
+    fn every_probe_unit_is_listed() {
+        let converter = crate::demo_design::demo_design().build().expect("demo builds");
+        assert!(!converter.probes.is_empty());
+        for p in &converter.probes {
+            assert!(PROBE_UNITS.contains(&p.unit), "{}: {:?}", p.name, p.unit);
+        }
     }
 }
