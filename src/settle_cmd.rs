@@ -4,7 +4,7 @@
 //!
 //! The steady state is found by shooting ([`crate::steady`]); the figures that need a
 //! waveform (ripple, the exact energy balance) come from a short run started there:
-//! [`SETTLED_PERIODS`] periods without the scenario's events, measured by the same
+//! [`SETTLED_PERIODS`] periods without the scenario's disturbances, measured by the same
 //! pipeline as `stepflux run` over its steady window.
 
 use std::path::Path;
@@ -55,7 +55,7 @@ impl OperatingPoint {
     }
 }
 
-/// Finds and measures the steady operating point of `job` (its events ignored).
+/// Finds and measures the steady operating point of `job` (its disturbances ignored).
 pub fn operating_point(job: &Job) -> Result<OperatingPoint> {
     let (steady, figures) = find_with_period(job)
         .map_err(|e| anyhow!(e))

@@ -30,6 +30,27 @@ fn readme_exit_codes_are_the_defined_ones() {
     assert_eq!(documented, defined);
 }
 
+/// Each command's `--help` ends with its exit codes as `exit::OUTCOMES` writes them, and
+/// no other help text writes a code ("Exits 3 when…" drifted from the code before).
+#[test]
+fn command_help_gives_the_exit_codes_from_one_table() {
+    for (name, outcomes) in stepflux::exit::OUTCOMES {
+        let out = Command::new(env!("CARGO_BIN_EXE_stepflux"))
+            .args([name, "--help"])
+            .output()
+            .expect("binary runs");
+        let help = String::from_utf8_lossy(&out.stdout);
+        let codes = stepflux::exit::command_help(outcomes);
+        assert!(help.trim_end().ends_with(&codes), "{name} --help:\n{help}");
+        let prose = help.trim_end().trim_end_matches(&codes).to_lowercase();
+        for word in [
+            "exits 0", "exits 1", "exits 2", "exits 3", "exits 4", "exit 2",
+        ] {
+            assert!(!prose.contains(word), "{name} --help writes \"{word}\"");
+        }
+    }
+}
+
 /// The backticked names in DEVELOPERS.md's "Probe names are" paragraph.
 fn documented_probes() -> BTreeSet<String> {
     let doc = read("DEVELOPERS.md");

@@ -426,7 +426,7 @@ fn timing_warnings(job: &Job, warn: &mut dyn FnMut(&str, String)) {
                 "drive.controller.lockout.start",
                 format!(
                     "input {} V is below the lockout start {} V: the controller will not \
-                     switch until a line event raises it",
+                     switch until a line step raises it",
                     job.design.input.voltage, l.start
                 ),
             );
