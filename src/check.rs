@@ -154,7 +154,7 @@ pub fn report_text(l: &Loaded) -> String {
             out.push_str(&format!("  warning: {w}\n"));
         }
     }
-    out.push_str(crate::report::CAUTION);
+    out.push_str(crate::summary::CAUTION);
     out.push('\n');
     out
 }

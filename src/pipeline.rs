@@ -14,9 +14,9 @@ use stepflux_models::job::verdict::verdicts;
 use stepflux_models::runaway::Runaway;
 
 use crate::job::{Job, Start};
-use crate::report::{design_figures, Interruption, Summary, CAUTION};
 use crate::scenario::Loaded;
 use crate::steady::SteadyReport;
+use crate::summary::{design_figures, Interruption, Summary, CAUTION};
 use crate::writers::atomic::write_json;
 use crate::writers::{html, plots, waveforms::WaveformSink};
 

@@ -16,9 +16,9 @@ use crate::check::eng;
 use crate::exit::{Exit, ExitWith, Failure};
 use crate::job::{Drive, Job, NamedState, Start};
 use crate::pipeline::{run_job_with, RunSettings};
-use crate::report::Figure;
 use crate::scenario;
 use crate::steady::{find_with_period, PeriodFigures, SteadyReport};
+use crate::summary::Figure;
 use stepflux_models::job::plan::period;
 
 /// Periods run from the steady state to measure it (the pipeline's steady window is

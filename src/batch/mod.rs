@@ -270,7 +270,7 @@ fn print_tally(dir: &Path, n: usize, c: &BTreeMap<&str, usize>, missing: usize) 
     println!("  report:  {}", dir.join("report.html").display());
     println!("  results: {}", dir.join("results.csv").display());
     println!("  worst:   {}", dir.join("worst.json").display());
-    println!("  {}", crate::report::CAUTION);
+    println!("  {}", crate::summary::CAUTION);
 }
 
 /// The study folders among `dirs`, all of one plan.

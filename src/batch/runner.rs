@@ -17,8 +17,8 @@ use super::record::{write_json, CaseRecord, Status};
 use super::study::Study;
 use crate::budget;
 use crate::pipeline::{run_loaded, RunSettings};
-use crate::report::Summary;
 use crate::scenario;
+use crate::summary::Summary;
 use crate::writers::atomic::remove_stale_temporaries;
 
 /// Which cases keep their waveform folder.

@@ -287,6 +287,6 @@ mod tests {
         assert!(failed < passed, "failed case first");
         assert!(page.contains("href=\"waveforms/s-c0002/report.html\""));
         assert!(!page.contains("waveforms/s-c0001"));
-        assert!(page.contains(&escape(crate::report::CAUTION)));
+        assert!(page.contains(&escape(crate::summary::CAUTION)));
     }
 }
