@@ -15,7 +15,6 @@ use std::path::{Path, PathBuf};
 use anyhow::{bail, Context, Result};
 use rayon::prelude::*;
 use serde::Serialize;
-use stepflux_models::components::Load;
 
 use crate::exit::{Exit, ExitWith, Failure};
 use crate::job::Job;
@@ -101,16 +100,6 @@ pub struct EfficiencyArgs {
     pub jobs: usize,
 }
 
-fn at(job: &Job, line: f64, load: f64) -> Job {
-    let mut j = job.clone();
-    j.design.input.voltage = line;
-    j.design.load = Load {
-        resistance: None,
-        current: Some(load),
-    };
-    j
-}
-
 /// Every point, in parallel (one per core, or `jobs`).
 pub fn sweep(job: &Job, lines: &[f64], loads: &[f64], jobs: usize) -> Result<Vec<Point>> {
     let grid: Vec<(f64, f64)> = lines
@@ -124,7 +113,7 @@ pub fn sweep(job: &Job, lines: &[f64], loads: &[f64], jobs: usize) -> Result<Vec
     Ok(pool.install(|| {
         grid.par_iter()
             .map(
-                |&(line_v, load_a)| match operating_point(&at(job, line_v, load_a)) {
+                |&(line_v, load_a)| match operating_point(&job.at_line_and_load(line_v, load_a)) {
                     Ok(p) => Point {
                         line_v,
                         load_a,

@@ -2,9 +2,9 @@
 //! operating point — every state by name, output mean and ripple, duty, efficiency and
 //! loss breakdown, reset margin, flux and stress peaks — as text or `--json`.
 //!
-//! The steady state is found by shooting ([`stepflux_models::job::steady`]); the figures that need a
-//! waveform (ripple, the exact energy balance) come from a short run started there:
-//! [`SETTLED_PERIODS`] periods without the scenario's disturbances, measured by the same
+//! The steady state is found by shooting ([`stepflux_models::job::steady`]); the figures
+//! that need a waveform (ripple, the exact energy balance) come from a short run started
+//! there ([`measuring_job`], without the scenario's disturbances), measured by the same
 //! pipeline as `stepflux run` over its steady window.
 
 use std::path::Path;
@@ -14,20 +14,12 @@ use serde::Serialize;
 
 use crate::check::eng;
 use crate::exit::{Exit, ExitWith, Failure};
-use crate::job::{Drive, Job, NamedState, Start};
+use crate::job::Job;
 use crate::pipeline::{run_job_with, RunSettings};
 use crate::scenario;
 use crate::steady::{PeriodFigures, SteadyReport};
 use crate::summary::Figure;
-use stepflux_models::job::plan::period;
-use stepflux_models::job::steady::find_with_cycle;
-
-/// Periods run from the steady state to measure it (the pipeline's steady window is
-/// the last 20 of them).
-pub const SETTLED_PERIODS: f64 = 40.0;
-/// Samples per period of that run: enough for the ripple's peaks to within 0.1 % of a
-/// period.
-const SAMPLES_PER_PERIOD: f64 = 1000.0;
+use stepflux_models::job::steady::{find_with_cycle, measuring_job};
 
 /// The steady operating point of one job.
 #[derive(Clone, Debug, Serialize)]
@@ -61,25 +53,7 @@ pub fn operating_point(job: &Job) -> Result<OperatingPoint> {
     let (steady, cycle) = find_with_cycle(job)
         .map_err(|e| anyhow!(e))
         .with_context(|| format!("finding the steady state of '{}'", job.name))?;
-    let mut run = job.clone();
-    run.disturbances.clear();
-    let t = period(job);
-    run.analysis.stop_time = SETTLED_PERIODS * t;
-    run.analysis.sample_interval = t / SAMPLES_PER_PERIOD;
-    run.analysis.start = Start::Named(
-        steady
-            .named()
-            .into_iter()
-            .map(|(name, value)| NamedState {
-                name,
-                value,
-                unit: None,
-            })
-            .collect(),
-    );
-    if let Drive::Controller(spec) = &run.drive {
-        run.drive = Drive::Controller(stepflux_models::steady::map::settled_spec(spec));
-    }
+    let run = measuring_job(job, &steady);
     let out = run_job_with(
         &run,
         Path::new("."),

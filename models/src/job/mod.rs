@@ -148,6 +148,19 @@ impl Job {
         }
     }
 
+    /// The job at input voltage `line` with its load replaced by a constant-current
+    /// sink of `current` amperes: one point of an efficiency sweep, the same current
+    /// whatever the output voltage does on the way.
+    pub fn at_line_and_load(&self, line: f64, current: f64) -> Job {
+        let mut j = self.clone();
+        j.design.input.voltage = line;
+        j.design.load = crate::components::Load {
+            resistance: None,
+            current: Some(current),
+        };
+        j
+    }
+
     /// The paper design figures (closed forms) at the job's design point: computed
     /// here only, for the check, the review, the plots' markers and the summary.
     pub fn design_figures(&self) -> crate::figures::DesignFigures {

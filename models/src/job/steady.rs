@@ -10,7 +10,7 @@ use crate::steady::map::{trial_options, ClosedLoopMap, OpenLoopMap, PeriodMap};
 use crate::steady::{shoot, ShootingOptions, SteadyError, SteadyState};
 use crate::ModelError;
 
-use super::{Drive, Job};
+use super::{Drive, Job, NamedState, Start};
 
 /// Event resolutions tried, as fractions of the period. A clamp diode that slides along
 /// its threshold (the error amplifier resting on its rail at light load) can chatter
@@ -83,4 +83,38 @@ pub fn find_with_cycle(job: &Job) -> Result<(SteadyState, CycleRecord), SteadyEr
         ModelError::Infeasible("the steady period has no switching cycle (no pulse)".into())
     })?;
     Ok((steady, record))
+}
+
+/// Periods a measuring run from the steady state lasts (the run's steady window is the
+/// last 20 of them).
+pub const MEASURING_PERIODS: f64 = 40.0;
+/// Samples per period of that run: enough for the ripple's peaks to within 0.1 % of a
+/// period. Samples never shape the figures (they come from the exact trace); this
+/// only sizes the waveform a caller may keep.
+const MEASURING_SAMPLES_PER_PERIOD: f64 = 1000.0;
+
+/// `job` as a short run from its steady state `steady`: [`MEASURING_PERIODS`] periods,
+/// no disturbances, the controller's soft starts over. The figures that need a
+/// waveform (ripple, the exact energy balance) are measured on it.
+pub fn measuring_job(job: &Job, steady: &SteadyState) -> Job {
+    let mut run = job.clone();
+    run.disturbances.clear();
+    let t = super::plan::period(job);
+    run.analysis.stop_time = MEASURING_PERIODS * t;
+    run.analysis.sample_interval = t / MEASURING_SAMPLES_PER_PERIOD;
+    run.analysis.start = Start::Named(
+        steady
+            .named()
+            .into_iter()
+            .map(|(name, value)| NamedState {
+                name,
+                value,
+                unit: None,
+            })
+            .collect(),
+    );
+    if let Drive::Controller(spec) = &run.drive {
+        run.drive = Drive::Controller(crate::steady::map::settled_spec(spec));
+    }
+    run
 }
