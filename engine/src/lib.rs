@@ -57,7 +57,7 @@ pub use event::{
 pub use ladder::{Tick, TimeGrid};
 pub use layout::{Layout, StateKind};
 pub use nodal::Nodal;
-pub use sim::{SimOptions, Simulation, StormGuard};
+pub use sim::{EventStamp, SimOptions, Simulation, StormGuard};
 pub use stepper::{Handover, Stepper};
 pub use system::{Meter, Observation, System, TopologyData};
 pub use topology::Topology;
