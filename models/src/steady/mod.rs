@@ -127,8 +127,12 @@ pub struct Counter {
     /// Map periods simulated (each clock period of an alternating output counts as
     /// half).
     pub periods: usize,
-    /// Difference Jacobians formed (nx periods each).
+    /// Newton Jacobians formed: exact ones (from the trial period's own run, no extra
+    /// periods) and difference ones.
     pub newton: usize,
+    /// Of those, difference Jacobians (nx periods each), formed only where the exact
+    /// one is unavailable.
+    pub differences: usize,
 }
 
 /// A converged periodic steady state.
