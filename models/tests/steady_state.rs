@@ -328,7 +328,10 @@ fn newton_converges_quadratically_near_the_solution() {
     let opts = ShootingOptions::default();
     let cases: Vec<(&str, SteadyState)> = vec![
         ("closed CCM", shoot(&mut closed_ccm(), &opts).unwrap()),
-        ("closed alternating", shoot(&mut closed_alternating(), &opts).unwrap()),
+        (
+            "closed alternating",
+            shoot(&mut closed_alternating(), &opts).unwrap(),
+        ),
         ("rcd clamp", shoot(&mut rcd(), &opts).unwrap()),
         ("open DCM", shoot(&mut open_dcm(), &opts).unwrap()),
     ];
@@ -336,16 +339,28 @@ fn newton_converges_quadratically_near_the_solution() {
         let h = &s.history;
         println!("{label}: residual history {h:?}");
         let above: Vec<f64> = h.iter().copied().take_while(|&r| r > 1.0).collect();
-        assert!(above.len() >= 3, "{label}: too few iterations to judge: {h:?}");
+        assert!(
+            above.len() >= 3,
+            "{label}: too few iterations to judge: {h:?}"
+        );
         let last = &above[above.len() - 3..];
         let q = order(last);
         let (c0, c1) = (last[1] / (last[0] * last[0]), last[2] / (last[1] * last[1]));
         println!("{label}: order {q:.2}, r_k+1/r_k² {c0:.2e}, {c1:.2e}");
         assert!(q >= 1.5, "{label}: order {q} from {h:?}");
-        assert!(c1 <= 10.0 * c0 && c0 <= 10.0 * c1, "{label}: {c0:e}, {c1:e}");
+        assert!(
+            c1 <= 10.0 * c0 && c0 <= 10.0 * c1,
+            "{label}: {c0:e}, {c1:e}"
+        );
         assert!(h[above.len()] <= 1.0, "{label}: {h:?}");
-        assert_eq!(s.work.differences, 0, "{label}: a difference Jacobian was needed");
-        assert!(s.spectral_radius < 1.0, "{label}: the steady orbit is stable");
+        assert_eq!(
+            s.work.differences, 0,
+            "{label}: a difference Jacobian was needed"
+        );
+        assert!(
+            s.spectral_radius < 1.0,
+            "{label}: the steady orbit is stable"
+        );
     }
 }
 
