@@ -7,6 +7,11 @@
 //! carry Van Loan's block exponential per rung, which was two thirds of the
 //! instructions of a search from a fresh run (measured with callgrind on the demo).
 //! Figures that need the energy account come from a run started at the steady state.
+//!
+//! [`PeriodMap::run_with_jacobian`] runs the same period with the engine's
+//! sensitivities on and returns ∂P/∂x with P(x). The open-loop gate acts at scheduled
+//! instants only; the closed loop's delayed turn-off is tied to its comparator crossing
+//! in `controller/modulator.rs`, so both maps' Jacobians include every saltation.
 
 use nalgebra::DMatrix;
 use stepflux_engine::{NullSink, SimOptions};
