@@ -18,7 +18,7 @@ use stepflux_engine::{SimOptions, TimeGrid};
 use crate::eng::eng;
 use crate::job::{Job, Start};
 use crate::pipeline::{run_job_with, RunSettings};
-use crate::scenario::{design_point, Loaded, ScenarioError};
+use crate::scenario::{Loaded, ScenarioError};
 use crate::writers::hdf5::DEFAULT_CHUNK_LEN;
 
 /// Switching instants saved as waveform rows per period besides the regular samples
@@ -72,11 +72,11 @@ pub struct Cost {
 /// The cost of running `l`.
 pub fn estimate(l: &Loaded) -> Cost {
     let job = &l.job;
-    let frequency = design_point(job).frequency;
+    let frequency = job.design_point().frequency;
     let a = &job.analysis;
     let periods = a.stop_time * frequency;
     let samples = a.stop_time / a.sample_interval + INSTANTS_PER_PERIOD * periods;
-    let signals = match job.save.len() {
+    let signals = match job.signals.len() {
         0 => l.probes.len(),
         n => n,
     };
@@ -214,7 +214,7 @@ impl Calibration {
 /// would pass [`CALIBRATION_BUDGET_S`]. A steady-state start is tried from a cold
 /// start: the shooting is a one-off cost the estimate leaves out.
 pub fn calibrate(l: &Loaded) -> Result<Calibration, String> {
-    let frequency = design_point(&l.job).frequency;
+    let frequency = l.job.design_point().frequency;
     let total = l.job.analysis.stop_time * frequency;
     let mut job = l.job.clone();
     if job.analysis.start == Start::Steady {

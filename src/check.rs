@@ -11,7 +11,7 @@ use crate::budget;
 use crate::eng::percent;
 use crate::exit::{Exit, ExitWith, Failure};
 use crate::job::Drive;
-use crate::scenario::{self, design_point, sample_interval_on_grid, Loaded};
+use crate::scenario::{self, Loaded};
 
 /// Validates the scenario at `path` and prints its figures, design failures and
 /// warnings to stdout, as text or as one JSON object. A design that fails by its own
@@ -70,7 +70,7 @@ fn drive_name(drive: &Drive) -> &'static str {
 /// The check report as JSON: SI units; the design figures in the catalogue's
 /// vocabulary (`design.flux_peak`, with its unit beside it), as in `summary.json`.
 pub fn report_json(l: &Loaded) -> serde_json::Value {
-    let p = design_point(&l.job);
+    let p = l.job.design_point();
     json!({
         "name": l.job.name,
         "valid": true,
@@ -92,8 +92,8 @@ pub fn report_json(l: &Loaded) -> serde_json::Value {
         },
         "sample_interval_s": {
             "requested": l.job.analysis.sample_interval,
-            "on_time_grid": sample_interval_on_grid(&l.job).map(|g| g.0),
-            "tick": sample_interval_on_grid(&l.job).map(|g| g.1),
+            "on_time_grid": l.job.sample_interval_on_grid().map(|g| g.0),
+            "tick": l.job.sample_interval_on_grid().map(|g| g.1),
         },
         "signals": l.probes,
         "design_passes": l.failures.is_empty(),
@@ -105,7 +105,7 @@ pub fn report_json(l: &Loaded) -> serde_json::Value {
 
 /// The check report as aligned text.
 pub fn report_text(l: &Loaded) -> String {
-    let p = design_point(&l.job);
+    let p = l.job.design_point();
     let d = &l.job.design;
     let mut out = format!(
         "{}: valid ({} template, {} drive)\n",
@@ -117,7 +117,7 @@ pub fn report_text(l: &Loaded) -> String {
         out.push_str(&format!("  {label:<44} {value}\n"));
     }
     let requested = l.job.analysis.sample_interval;
-    if let Some((actual, tick)) = sample_interval_on_grid(&l.job) {
+    if let Some((actual, tick)) = l.job.sample_interval_on_grid() {
         // The grid's tick is a few picoseconds, so only ten figures show the rounding.
         let value = match actual == requested {
             true => format!("{}, on the time grid", eng(requested, "s")),
@@ -154,7 +154,7 @@ pub fn report_text(l: &Loaded) -> String {
             out.push_str(&format!("  warning: {w}\n"));
         }
     }
-    out.push_str(crate::report::CAUTION);
+    out.push_str(crate::summary::CAUTION);
     out.push('\n');
     out
 }

@@ -12,8 +12,9 @@ use crate::batch::{Shard, Waveforms};
     version,
     about = "Cycle-by-cycle time-domain simulator for forward converters and their PWM control loops"
 )]
-// The exit-code paragraph of `--help` is added at parse time from `exit::Exit`
-// (see [`Cli::parse_args`]), so it cannot drift from the codes the process returns.
+// The exit-code paragraphs of `--help` are added at parse time from `exit` (see
+// [`Cli::parse_args`]), so they cannot drift from the codes the process returns: no
+// help text below writes a code.
 pub struct Cli {
     #[command(subcommand)]
     pub command: Command,
@@ -21,13 +22,23 @@ pub struct Cli {
 
 impl Cli {
     /// Parses the process arguments with the exit-code line from [`crate::exit::Exit`]
-    /// under `--help`. Usage errors exit 2 and `--help` 0, as clap does, which match
+    /// under `--help`, and each command's own exit codes from [`crate::exit::OUTCOMES`]
+    /// under its `--help`. Usage errors exit 2 and `--help` 0, as clap does, which match
     /// `Exit::BadInput` and `Exit::Ok`.
     pub fn parse_args() -> Cli {
         use clap::{CommandFactory, FromArgMatches};
-        let matches = Cli::command()
-            .after_help(crate::exit::Exit::help_line())
-            .get_matches();
+        let mut command = Cli::command().after_help(crate::exit::Exit::help_line());
+        for (name, outcomes) in crate::exit::OUTCOMES {
+            command = command.mut_subcommand(*name, |sub| {
+                let text = sub.get_after_help().map(|t| t.to_string());
+                let codes = crate::exit::command_help(outcomes);
+                sub.after_help(match text {
+                    Some(t) => format!("{t}\n\n{codes}"),
+                    None => codes,
+                })
+            });
+        }
+        let matches = command.get_matches();
         Cli::from_arg_matches(&matches).unwrap_or_else(|e| e.exit())
     }
 }
@@ -47,13 +58,7 @@ pub enum Command {
     #[command(
         after_help = "Example:\n  stepflux check scenarios/demo-startup.json\n  \
         stepflux check --json scenarios/rcd-clamp.json > figures.json\n\n\
-        Exits 0 when the scenario can run and its design passes by its paper figures \
-        (warnings included), 1 when it can run but the figures say the design fails (duty \
-        beyond the reset limit, drain stress above a rating: `run` shows how), 2 when it \
-        cannot run, with the file position or field path of the problem on stderr. Prints \
-        the run's cost estimate; past the default bounds (1e8 switching periods, 10 GB of \
-        waveforms, a sample interval below the engine's time quantum) it exits 2 unless \
-        --allow-large."
+        Prints the design's paper figures, its warnings and the run's cost estimate."
     )]
     Check {
         /// Scenario file (JSON; see `stepflux schema`).
@@ -72,8 +77,7 @@ pub enum Command {
         stepflux settle --json scenarios/rcd-clamp.json > point.json\n\n\
         The steady state of the initial operating point (disturbances ignored, soft starts \
         over) by shooting: every state by name, output mean and ripple, duty, efficiency \
-        and losses, reset margin, flux and drain peaks. Exits 3 when there is no periodic \
-        steady state (subharmonic or no convergence, with the states that do not settle)."
+        and losses, reset margin, flux and drain peaks."
     )]
     Settle {
         /// Scenario file (JSON; see `stepflux schema`).
@@ -91,7 +95,7 @@ pub enum Command {
         efficiency.csv and efficiency.json (SI units: power-stage efficiency, efficiency \
         with the scenario's bias_power, every element's loss) and efficiency.svg \
         (efficiency against output power, one colour per input voltage; solid: power \
-        stage, dashed: with the bias power). Exits 3 if a point has no steady state."
+        stage, dashed: with the bias power)."
     )]
     Efficiency {
         /// Scenario file (JSON; see `stepflux schema`).
@@ -123,8 +127,7 @@ pub enum Command {
         is injected at the same point into the switching simulation at each frequency \
         (the grid moved to frequencies commensurate with the switching period). Writes DIR/<name>-loop/ with loop.csv and \
         loop.json (hertz, dB, degrees) and loop.svg (Bode plot: switching model solid, \
-        averaged dashed, crossover and margins marked). Exits 2 for an open-loop \
-        scenario or a bad range, 3 when there is no steady state."
+        averaged dashed, crossover and margins marked)."
     )]
     Loop {
         /// Scenario file (JSON; see `stepflux schema`).
@@ -155,10 +158,9 @@ pub enum Command {
     #[command(
         after_help = "Example:\n  stepflux run scenarios/demo-startup.json scenarios/demo-load-step.json --out results\n\n\
         Writes DIR/<scenario name>/waveforms.h5, summary.json and plots/*.svg for each \
-        scenario. One bad or failing scenario does not stop the others; the exit code is \
-        the most severe outcome (4 interrupted, 3 simulation failed, 2 bad input, 1 a limit \
-        failed, 0 ok). Every scenario is loaded and checked before any runs; two of one \
-        name are refused. Ctrl-C or SIGTERM stops each run at its next slice, writing its \
+        scenario. One bad or failing scenario does not stop the others; the most severe \
+        outcome over the scenarios decides the exit code. Every scenario is loaded and \
+        checked before any runs; two of one name are refused. Ctrl-C or SIGTERM stops each run at its next slice, writing its \
         summary marked interrupted; a second signal ends the process at once."
     )]
     Run {
@@ -214,7 +216,7 @@ pub enum Command {
         Turns, magnetising inductance, output L and C, ratings and a first-cut voltage-mode \
         compensation (two zeros at the LC resonance, crossover at a tenth of the switching \
         frequency) from textbook relations; each choice is explained in the file's \
-        design_notes. Then checks the file like `stepflux check` (and exits like it)."
+        design_notes. Then checks the file like `stepflux check`."
     )]
     Size {
         /// Input voltage range, e.g. 36V..72V (or one voltage).
@@ -278,10 +280,8 @@ pub enum Command {
         results.json and worst.json. Shard I/N runs the cases whose 0-based index k has \
         k mod N = I-1. --shard-from-env takes I and N from a Slurm job array task: \
         I-1 = (SLURM_ARRAY_TASK_ID - SLURM_ARRAY_TASK_MIN) / SLURM_ARRAY_TASK_STEP and \
-        N = SLURM_ARRAY_TASK_COUNT. Exits 0 when every case passed, 1 when a case failed a \
-        limit, 3 when a case errored (3 wins), 2 when the study is invalid, 4 when stopped \
-        by SIGINT or SIGTERM (finished cases are kept; --resume does the rest and removes \
-        temporary files a crashed run left)."
+        N = SLURM_ARRAY_TASK_COUNT. --resume also removes temporary files a crashed run \
+        left."
     )]
     Batch {
         /// Study file (JSON; see `stepflux schema --study`).
@@ -300,7 +300,7 @@ pub enum Command {
         #[arg(long, value_name = "I/N")]
         shard: Option<Shard>,
         /// Run the shard of this job-array task: I and N from SLURM_ARRAY_TASK_ID,
-        /// _MIN, _STEP and _COUNT (exit 2 when they are missing or inconsistent).
+        /// _MIN, _STEP and _COUNT (bad input when they are missing or inconsistent).
         #[arg(long, conflicts_with = "shard")]
         shard_from_env: bool,
         /// Which cases keep their waveform folder.
@@ -319,8 +319,8 @@ pub enum Command {
     /// Join the results of batch shards into the tables of the whole study.
     #[command(
         after_help = "Example:\n  stepflux merge shard1 shard2 shard3 --out runs\n\n\
-        Each DIR is a batch --out folder (or the study folder inside it). Exits like \
-        batch; a case found in no folder counts as errored."
+        Each DIR is a batch --out folder (or the study folder inside it); a case \
+        found in no folder counts as errored."
     )]
     Merge {
         /// Shard output folders.

@@ -46,7 +46,7 @@ pub fn demo_job() -> Job {
             ripple: Some(0.05),
             ..Limits::default()
         },
-        save: Vec::new(),
+        signals: Vec::new(),
         bias_power: 0.15,
         source_text: "built-in demo (see src/demo.rs)".into(),
     }

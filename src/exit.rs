@@ -74,6 +74,100 @@ impl Exit {
     }
 }
 
+/// When `check` (and `size`, which checks the file it writes) ends with each code.
+const CHECK: &[(Exit, &str)] = &[
+    (
+        Exit::Ok,
+        "the scenario can run and its design passes by its paper figures (warnings included)",
+    ),
+    (
+        Exit::SpecFailed,
+        "it can run but the paper figures say the design fails (duty beyond the reset \
+         limit, drain stress above a rating: `run` shows how)",
+    ),
+    (
+        Exit::BadInput,
+        "it cannot run (the file position or field path of the problem on stderr), or its \
+         cost estimate is past the default bounds (1e8 switching periods, 10 GB of \
+         waveforms, a sample interval below the engine's time quantum) without --allow-large",
+    ),
+];
+
+/// When `batch` (and `merge`) ends with each code.
+const BATCH: &[(Exit, &str)] = &[
+    (Exit::Ok, "every case passed"),
+    (Exit::SpecFailed, "a case failed a limit"),
+    (
+        Exit::BadInput,
+        "the study or the shard given is invalid, or --out is unusable",
+    ),
+    (
+        Exit::SimulationFailed,
+        "a case errored (this outranks a failed limit; in `merge` a case found in no \
+         folder counts as errored)",
+    ),
+    (
+        Exit::Interrupted,
+        "stopped by SIGINT or SIGTERM: finished cases are kept, --resume does the rest",
+    ),
+];
+
+/// What each command's exit codes mean for it, shown under its `--help` (built at
+/// parse time, [`crate::cli::Cli::parse_args`]): the codes are written here only.
+pub const OUTCOMES: &[(&str, &[(Exit, &str)])] = &[
+    ("check", CHECK),
+    ("size", CHECK),
+    (
+        "settle",
+        &[(
+            Exit::SimulationFailed,
+            "there is no periodic steady state (subharmonic or no convergence, with the \
+             states that do not settle)",
+        )],
+    ),
+    (
+        "efficiency",
+        &[(Exit::SimulationFailed, "a point has no steady state")],
+    ),
+    (
+        "loop",
+        &[
+            (
+                Exit::BadInput,
+                "an open-loop scenario or a bad frequency range",
+            ),
+            (Exit::SimulationFailed, "there is no steady state"),
+        ],
+    ),
+    (
+        "run",
+        &[
+            (Exit::Ok, "every scenario ran and held its limits"),
+            (Exit::SpecFailed, "a limit failed"),
+            (Exit::BadInput, "a scenario or --out is unusable"),
+            (
+                Exit::SimulationFailed,
+                "a simulation failed or its results could not be written",
+            ),
+            (
+                Exit::Interrupted,
+                "stopped by SIGINT or SIGTERM (each run's summary marked interrupted)",
+            ),
+        ],
+    ),
+    ("batch", BATCH),
+    ("merge", BATCH),
+];
+
+/// The paragraph under one command's `--help`: "Exit codes: 0 when …; 1 when …."
+pub fn command_help(outcomes: &[(Exit, &str)]) -> String {
+    let lines: Vec<String> = outcomes
+        .iter()
+        .map(|(e, when)| format!("{} when {when}", e.code()))
+        .collect();
+    format!("Exit codes: {}.", lines.join("; "))
+}
+
 impl From<Exit> for ExitCode {
     fn from(exit: Exit) -> Self {
         ExitCode::from(exit.code())
@@ -126,6 +220,17 @@ pub fn usable_out(out: &std::path::Path) -> Result<(), Failure> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Every command named in the table exists, so no paragraph is silently dropped.
+    #[test]
+    fn outcomes_name_real_commands() {
+        use clap::CommandFactory;
+        let cli = crate::cli::Cli::command();
+        for (name, outcomes) in OUTCOMES {
+            assert!(cli.find_subcommand(name).is_some(), "{name}");
+            assert!(!outcomes.is_empty(), "{name}");
+        }
+    }
 
     #[test]
     fn codes_match_readme() {

@@ -407,7 +407,7 @@ pub fn report_text(r: &LoopReport) -> String {
 /// (`loop.gain_margin_db`, dB) of the sampled-data loop gain at the steady state, read
 /// from fs/1000 to fs/2. A figure that cannot be read (no controller, no steady state,
 /// no crossing in range) is null with the reason.
-pub fn loop_figures(job: &Job) -> Vec<crate::report::Figure> {
+pub fn loop_figures(job: &Job) -> Vec<crate::summary::Figure> {
     use stepflux_models::loopgain;
     let read = || -> Result<Margins> {
         let Drive::Controller(spec) = &job.drive else {

@@ -14,9 +14,9 @@ use stepflux_models::job::verdict::verdicts;
 use stepflux_models::runaway::Runaway;
 
 use crate::job::{Job, Start};
-use crate::report::{design_figures, Interruption, Summary, CAUTION};
 use crate::scenario::Loaded;
 use crate::steady::SteadyReport;
+use crate::summary::{design_figures, Interruption, Summary, CAUTION};
 use crate::writers::atomic::write_json;
 use crate::writers::{html, plots, waveforms::WaveformSink};
 
@@ -117,7 +117,9 @@ fn run(
             .with_context(|| format!("creating {}", dir.display()))?;
     }
     let steady = match job.analysis.start {
-        Start::Steady => Some(crate::steady::find_for_run(job).map_err(|e| anyhow::anyhow!(e))?),
+        Start::Steady => {
+            Some(stepflux_models::job::steady::find_for_run(job).map_err(|e| anyhow::anyhow!(e))?)
+        }
         _ => None,
     };
     let run = match built {
@@ -132,13 +134,13 @@ fn run(
         .iter()
         .map(|p| (p.name.clone(), p.unit))
         .collect();
-    let save = saved_indices(job, &probes);
+    let kept = saved_indices(job, &probes);
     let h5_path = dir.join("waveforms.h5");
     let mut file = match settings.waveforms {
         true => Some(WaveformSink::create(
             &h5_path,
             &probes,
-            &save,
+            &kept,
             &run.switchable_names(),
             &job.source_text,
         )?),
@@ -200,11 +202,11 @@ fn run(
     let ended = outcome?;
     file_result?;
     let plots = match ended {
-        Ended::Finished => write_plots(&h5_path, &dir, &probes, &save, job, worst_reset(&summary))?,
+        Ended::Finished => write_plots(&h5_path, &dir, &probes, &kept, job, worst_reset(&summary))?,
         // A run stopped early may hold too little to plot; the summary and the
         // waveform file are what matter then.
         Ended::Interrupted(_) | Ended::Runaway(_) => {
-            write_plots(&h5_path, &dir, &probes, &save, job, worst_reset(&summary))
+            write_plots(&h5_path, &dir, &probes, &kept, job, worst_reset(&summary))
                 .unwrap_or_default()
         }
     };
@@ -226,7 +228,7 @@ fn simulate(
     stop_flag: Option<&AtomicBool>,
 ) -> Result<Ended> {
     let stop = job.analysis.stop_time;
-    let periods = stop * crate::scenario::design_point(job).frequency;
+    let periods = stop * job.design_point().frequency;
     let slices = (periods / PERIODS_PER_SLICE)
         .ceil()
         .clamp(MIN_SLICES, MAX_SLICES) as usize;
@@ -265,13 +267,13 @@ fn recorder(file: &mut Option<WaveformSink>) -> Option<&mut dyn Recorder> {
 }
 
 fn saved_indices(job: &Job, probes: &[(String, &str)]) -> Vec<usize> {
-    if job.save.is_empty() {
+    if job.signals.is_empty() {
         return (0..probes.len()).collect();
     }
     probes
         .iter()
         .enumerate()
-        .filter(|(_, (n, _))| job.save.iter().any(|s| s == n))
+        .filter(|(_, (n, _))| job.signals.iter().any(|s| s == n))
         .map(|(k, _)| k)
         .collect()
 }
@@ -282,19 +284,17 @@ fn write_plots(
     h5: &Path,
     dir: &Path,
     probes: &[(String, &str)],
-    save: &[usize],
+    kept: &[usize],
     job: &Job,
     worst: Option<(f64, u64)>,
 ) -> Result<Vec<PathBuf>> {
-    let saved = |name: &str| save.iter().any(|&k| probes[k].0 == name);
+    let saved = |name: &str| kept.iter().any(|&k| probes[k].0 == name);
     let d = &job.design;
     let marker = |value: f64, label: &str| plots::Marker {
         value,
         label: label.into(),
     };
-    let reset_limit =
-        stepflux_models::figures::DesignFigures::compute(d, &crate::scenario::design_point(job))
-            .reset_limit_duty;
+    let reset_limit = job.design_figures().reset_limit_duty;
     let panel = |signal: &str, markers: Vec<plots::Marker>| plots::Panel {
         signal: signal.into(),
         markers,
@@ -359,7 +359,7 @@ fn write_plots(
     if let Some((time, cycle)) = worst {
         // Two periods before the tightest cycle's turn-on and three after: its reset
         // and the cycles either side.
-        let period = 1.0 / crate::scenario::design_point(job).frequency;
+        let period = 1.0 / job.design_point().frequency;
         let present: Vec<plots::Panel> =
             primary().into_iter().filter(|p| saved(&p.signal)).collect();
         if !present.is_empty() {

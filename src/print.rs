@@ -46,5 +46,5 @@ pub fn run_summary(output: &RunOutput) {
     for p in &output.plots {
         let _ = writeln!(out, "  {:<10} {}", "plot", p.display());
     }
-    let _ = writeln!(out, "  {}", crate::report::CAUTION);
+    let _ = writeln!(out, "  {}", crate::summary::CAUTION);
 }

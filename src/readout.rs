@@ -7,7 +7,7 @@ use crate::eng::{count, eng, pass_fail, percent, yes_no};
 use stepflux_models::job::verdict::Bound;
 use stepflux_models::measure::{step, Figure, Kind, Section as CatalogueSection, Value};
 
-use crate::report::{Summary, Verdict};
+use crate::summary::{Summary, Verdict};
 
 /// How a verdict line reads.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]

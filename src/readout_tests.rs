@@ -3,7 +3,7 @@
 //! numbers are three significant digits (src/eng.rs), so strings compare exactly.
 
 use super::*;
-use crate::report::{Figure, CAUTION};
+use crate::summary::{Figure, CAUTION};
 use stepflux_models::job::verdict::find_limit;
 use stepflux_models::measure::{catalogue, Value};
 

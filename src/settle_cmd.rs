@@ -2,9 +2,9 @@
 //! operating point — every state by name, output mean and ripple, duty, efficiency and
 //! loss breakdown, reset margin, flux and stress peaks — as text or `--json`.
 //!
-//! The steady state is found by shooting ([`crate::steady`]); the figures that need a
+//! The steady state is found by shooting ([`stepflux_models::job::steady`]); the figures that need a
 //! waveform (ripple, the exact energy balance) come from a short run started there:
-//! [`SETTLED_PERIODS`] periods without the scenario's events, measured by the same
+//! [`SETTLED_PERIODS`] periods without the scenario's disturbances, measured by the same
 //! pipeline as `stepflux run` over its steady window.
 
 use std::path::Path;
@@ -16,10 +16,11 @@ use crate::check::eng;
 use crate::exit::{Exit, ExitWith, Failure};
 use crate::job::{Drive, Job, NamedState, Start};
 use crate::pipeline::{run_job_with, RunSettings};
-use crate::report::Figure;
 use crate::scenario;
-use crate::steady::{find_with_period, PeriodFigures, SteadyReport};
+use crate::steady::{PeriodFigures, SteadyReport};
+use crate::summary::Figure;
 use stepflux_models::job::plan::period;
+use stepflux_models::job::steady::find_with_cycle;
 
 /// Periods run from the steady state to measure it (the pipeline's steady window is
 /// the last 20 of them).
@@ -55,9 +56,9 @@ impl OperatingPoint {
     }
 }
 
-/// Finds and measures the steady operating point of `job` (its events ignored).
+/// Finds and measures the steady operating point of `job` (its disturbances ignored).
 pub fn operating_point(job: &Job) -> Result<OperatingPoint> {
-    let (steady, figures) = find_with_period(job)
+    let (steady, cycle) = find_with_cycle(job)
         .map_err(|e| anyhow!(e))
         .with_context(|| format!("finding the steady state of '{}'", job.name))?;
     let mut run = job.clone();
@@ -92,7 +93,7 @@ pub fn operating_point(job: &Job) -> Result<OperatingPoint> {
         scenario: job.name.clone(),
         line_v: job.design.input.voltage,
         steady_state: SteadyReport::from(&steady),
-        period: figures,
+        period: PeriodFigures::from(&cycle),
         measurements: out.summary.measurements,
     })
 }

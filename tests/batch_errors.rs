@@ -2,9 +2,9 @@
 //! cases complete; an invalid study is refused before anything runs. Specification:
 //! issue 6 (error isolation, exit codes 1 / 3 / 2 as in README "Exit codes").
 
-mod batch_common;
+mod common;
 
-use batch_common::*;
+use common::*;
 use serde_json::json;
 
 #[test]

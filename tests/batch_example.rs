@@ -1,9 +1,9 @@
 //! The example study in scenarios/ is valid and expands as documented: corners crossed
 //! in parameter-name order (last fastest), each with the same Monte Carlo units.
 
-mod batch_common;
+mod common;
 
-use batch_common::*;
+use common::*;
 
 #[test]
 fn example_study_expands_line_load_corners_times_units() {

@@ -1,9 +1,9 @@
 //! Shards of a study, merged, give the tables of the unsharded run; a missing shard is
 //! reported. Specification: issue 6 (`--shard I/N`, `stepflux merge`).
 
-mod batch_common;
+mod common;
 
-use batch_common::*;
+use common::*;
 
 #[test]
 fn merged_shards_equal_the_unsharded_run() {

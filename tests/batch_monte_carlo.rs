@@ -3,9 +3,9 @@
 //! with bounds of four standard errors (a false alarm about once in 16 000 per check
 //! for a correct sampler; the draws are seeded, so the outcome is fixed).
 
-mod batch_common;
+mod common;
 
-use batch_common::*;
+use common::*;
 use serde_json::json;
 
 const N: usize = 2000;

@@ -2,11 +2,11 @@
 //! same tables as one uninterrupted run. Specification: issue 6 (determinism and
 //! resumability); comparisons are byte for byte, since the tables hold no clock values.
 
-mod batch_common;
+mod common;
 
 use std::path::Path;
 
-use batch_common::*;
+use common::*;
 use serde_json::{json, Value};
 
 #[test]

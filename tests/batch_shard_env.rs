@@ -3,12 +3,12 @@
 //! cases as `--shard I/N`; missing or inconsistent variables are bad input (exit 2,
 //! README "Exit codes"). Specification: issue 16 part 3 (a real cluster).
 
-mod batch_common;
+mod common;
 
 use std::path::Path;
 use std::process::Output;
 
-use batch_common::*;
+use common::*;
 
 const ARRAY_VARS: [&str; 5] = [
     "SLURM_ARRAY_TASK_ID",

@@ -4,17 +4,9 @@
 //! tell two designs apart).
 
 use std::path::PathBuf;
-use std::process::Command;
 
-fn stepflux() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_stepflux"))
-}
-
-fn example(name: &str) -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
-        .join("scenarios")
-        .join(name)
-}
+mod common;
+use common::{example, stepflux};
 
 #[test]
 fn two_runs_compare_figure_by_figure() {

@@ -1,22 +1,11 @@
 //! End-to-end checks of the `stepflux` binary: exit codes and the HDF5
 //! file the demo writes.
 
-use std::path::PathBuf;
-use std::process::Command;
-
 use h5::types::VarLenUnicode;
 use hdf5_metno as h5;
 
-fn stepflux() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_stepflux"))
-}
-
-fn scratch(name: &str) -> PathBuf {
-    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join(name);
-    // Stale output from an earlier run must not satisfy the assertions.
-    let _ = std::fs::remove_dir_all(&dir);
-    dir
-}
+mod common;
+use common::{scratch, stepflux};
 
 fn unit_of(file: &h5::File, name: &str) -> String {
     let unit: VarLenUnicode = file

@@ -9,18 +9,10 @@ use std::time::{Duration, Instant};
 
 use serde_json::{json, Value};
 
+mod common;
+use common::{scratch, stepflux};
+
 const DEMO: &str = include_str!("../scenarios/demo-startup.json");
-
-fn stepflux() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_stepflux"))
-}
-
-fn scratch(name: &str) -> PathBuf {
-    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join(name);
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).expect("scratch dir");
-    dir
-}
 
 /// The demo scenario with `edit` applied, written to `dir/<file>`.
 fn scenario(dir: &Path, file: &str, edit: impl FnOnce(&mut Value)) -> PathBuf {

@@ -2,25 +2,8 @@
 //! call, one of them bad; outputs per scenario; exit code by the most severe outcome
 //! (README "Exit codes").
 
-use std::path::PathBuf;
-use std::process::Command;
-
-fn stepflux() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_stepflux"))
-}
-
-fn scratch(name: &str) -> PathBuf {
-    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join(name);
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).expect("scratch dir");
-    dir
-}
-
-fn example(name: &str) -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
-        .join("scenarios")
-        .join(name)
-}
+mod common;
+use common::{example, scratch, stepflux};
 
 #[test]
 fn a_bad_scenario_does_not_stop_the_good_one() {

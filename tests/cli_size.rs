@@ -8,19 +8,10 @@
 //! integrator removes the steady error, so only the divider, the reference and the
 //! sampled mean can move it; the ripple target is the one the capacitor was sized for.
 
-use std::path::{Path, PathBuf};
-use std::process::Command;
+use std::path::Path;
 
-fn stepflux() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_stepflux"))
-}
-
-fn scratch(name: &str) -> PathBuf {
-    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join(name);
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).expect("scratch dir");
-    dir
-}
+mod common;
+use common::{scratch, stepflux};
 
 fn figure(summary: &serde_json::Value, name: &str) -> f64 {
     summary["measurements"]

@@ -3,22 +3,12 @@
 //! named initial states are checked against the circuit.
 
 use std::path::PathBuf;
-use std::process::Command;
 
 use hdf5_metno as h5;
 use serde_json::Value;
 
-fn stepflux() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_stepflux"))
-}
-
-fn scratch(name: &str) -> PathBuf {
-    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join(name);
-    // Stale output from an earlier run must not satisfy the assertions.
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).expect("scratch dir");
-    dir
-}
+mod common;
+use common::{scratch, stepflux};
 
 fn example(name: &str) -> Value {
     let path = PathBuf::from(env!("CARGO_MANIFEST_DIR"))

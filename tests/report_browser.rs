@@ -3,22 +3,17 @@
 //! `/usr/bin/chromium` is missing, unless `STEPFLUX_REQUIRE_BROWSER=1` (CI sets it),
 //! in which case a missing browser fails the test.
 
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::{Command, Stdio};
 use std::time::{Duration, Instant};
+
+mod common;
+use common::scratch;
 
 const CHROMIUM: &str = "/usr/bin/chromium";
 /// A headless screenshot of a page this size takes a few seconds; two minutes covers
 /// a loaded two-core machine. Past it the browser is stopped by its id.
 const BROWSER_TIMEOUT: Duration = Duration::from_secs(120);
-
-fn scratch(name: &str) -> PathBuf {
-    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join(name);
-    // Stale output from an earlier run must not satisfy the assertions.
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).expect("scratch folder");
-    dir
-}
 
 /// Screenshot of `page` into `png`; returns the browser's log (stderr).
 fn screenshot(page: &Path, png: &Path, profile: &Path) -> String {

@@ -77,7 +77,7 @@ fn old_and_new_names_give_the_same_job() {
         format!("{:?}", old.job.disturbances),
         format!("{:?}", new.job.disturbances)
     );
-    assert_eq!(old.job.save, new.job.save);
+    assert_eq!(old.job.signals, new.job.signals);
     assert_eq!(
         format!("{:?}", old.job.limits),
         format!("{:?}", new.job.limits)

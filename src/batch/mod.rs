@@ -36,7 +36,7 @@ use anyhow::{anyhow, bail, Context, Result};
 use crate::exit::{Exit, ExitWith, Failure};
 use cases::Case;
 use record::{CaseRecord, Status};
-use runner::Layout;
+use runner::StudyFolder;
 pub use runner::Waveforms;
 pub use shard::{Shard, ShardSource};
 use table::StudyMeta;
@@ -91,20 +91,20 @@ pub fn batch(args: &BatchArgs) -> Result<(), Failure> {
         return Ok(());
     }
     let meta = meta(&study, &plan);
-    let layout = Layout {
+    let folder = StudyFolder {
         dir: args.out.join(&study.name),
     };
-    let records = run(&study, &slice, &layout, &meta, args);
+    let records = run(&study, &slice, &folder, &meta, args);
     if crate::interrupt::requested() {
         return Err(anyhow!(
             "interrupted by SIGINT or SIGTERM: the finished cases' results are in {}; run \
              the same command with --resume to do the rest",
-            layout.cases().display()
+            folder.cases().display()
         ))
         .exit_with(Exit::Interrupted);
     }
     let records = records.exit_with(Exit::SimulationFailed)?;
-    outcome(&layout.dir, &records, &[], args.quiet)
+    outcome(&folder.dir, &records, &[], args.quiet)
 }
 
 /// The shard to run; one read from a job array's environment is named on stderr, so
@@ -141,13 +141,13 @@ fn meta(study: &study::Study, plan: &[Case]) -> StudyMeta {
 fn run(
     study: &study::Study,
     slice: &[Case],
-    layout: &Layout,
+    folder: &StudyFolder,
     meta: &StudyMeta,
     args: &BatchArgs,
 ) -> Result<Vec<CaseRecord>> {
-    std::fs::create_dir_all(&layout.dir)
-        .with_context(|| format!("creating {}", layout.dir.display()))?;
-    record::write_json(&layout.dir.join("study.json"), meta)?;
+    std::fs::create_dir_all(&folder.dir)
+        .with_context(|| format!("creating {}", folder.dir.display()))?;
+    record::write_json(&folder.dir.join("study.json"), meta)?;
     let settings = runner::Settings {
         jobs: match args.jobs {
             0 => default_jobs(),
@@ -158,16 +158,16 @@ fn run(
         quiet: args.quiet,
         allow_large: args.allow_large,
     };
-    let reused = runner::run_cases(study, slice, layout, settings)?;
+    let reused = runner::run_cases(study, slice, folder, settings)?;
     if reused > 0 && !args.quiet {
         eprintln!("{reused} case(s) reused from earlier results");
     }
     let ids: Vec<String> = slice.iter().map(|c| c.id.clone()).collect();
-    let (records, missing) = collect(std::slice::from_ref(&layout.dir), &ids)?;
+    let (records, missing) = collect(std::slice::from_ref(&folder.dir), &ids)?;
     if let Some(id) = missing.first() {
         bail!("the result file of case {id} is missing or unreadable after the run");
     }
-    table::write_tables(&layout.dir, meta, &records, &[])?;
+    table::write_tables(&folder.dir, meta, &records, &[])?;
     Ok(records)
 }
 
@@ -195,7 +195,7 @@ fn collect(dirs: &[PathBuf], ids: &[String]) -> Result<(Vec<CaseRecord>, Vec<Str
     for id in ids {
         let found = dirs
             .iter()
-            .find_map(|d| CaseRecord::read(&Layout { dir: d.clone() }.case_file(id)));
+            .find_map(|d| CaseRecord::read(&StudyFolder { dir: d.clone() }.case_file(id)));
         match found {
             Some(r) => records.push(r),
             None => missing.push(id.clone()),
@@ -270,7 +270,7 @@ fn print_tally(dir: &Path, n: usize, c: &BTreeMap<&str, usize>, missing: usize) 
     println!("  report:  {}", dir.join("report.html").display());
     println!("  results: {}", dir.join("results.csv").display());
     println!("  worst:   {}", dir.join("worst.json").display());
-    println!("  {}", crate::report::CAUTION);
+    println!("  {}", crate::summary::CAUTION);
 }
 
 /// The study folders among `dirs`, all of one plan.

@@ -8,7 +8,7 @@ use std::path::Path;
 
 use serde::{Deserialize, Serialize};
 
-use crate::report::{Figure, Summary, Verdict};
+use crate::summary::{Figure, Summary, Verdict};
 use crate::writers::figure_json::{
     deserialize_figures, deserialize_verdicts, serialize_figures, serialize_verdicts,
 };

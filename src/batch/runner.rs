@@ -17,8 +17,8 @@ use super::record::{write_json, CaseRecord, Status};
 use super::study::Study;
 use crate::budget;
 use crate::pipeline::{run_loaded, RunSettings};
-use crate::report::Summary;
 use crate::scenario;
+use crate::summary::Summary;
 use crate::writers::atomic::remove_stale_temporaries;
 
 /// Which cases keep their waveform folder.
@@ -49,12 +49,12 @@ pub struct Settings {
 
 /// Where a study's outputs go: `<out>/<study>/`.
 #[derive(Clone, Debug)]
-pub struct Layout {
+pub struct StudyFolder {
     /// The study folder.
     pub dir: PathBuf,
 }
 
-impl Layout {
+impl StudyFolder {
     /// Folder of the case result files.
     pub fn cases(&self) -> PathBuf {
         self.dir.join("cases")
@@ -101,12 +101,17 @@ impl Tally {
 
 /// Runs `cases` (skipping those already done when resuming); returns how many were
 /// reused from earlier result files.
-pub fn run_cases(study: &Study, cases: &[Case], layout: &Layout, s: Settings) -> Result<usize> {
-    std::fs::create_dir_all(layout.cases())
-        .with_context(|| format!("creating {}", layout.cases().display()))?;
+pub fn run_cases(
+    study: &Study,
+    cases: &[Case],
+    folder: &StudyFolder,
+    s: Settings,
+) -> Result<usize> {
+    std::fs::create_dir_all(folder.cases())
+        .with_context(|| format!("creating {}", folder.cases().display()))?;
     if s.resume {
         let stale =
-            remove_stale_temporaries(&layout.cases())? + remove_stale_temporaries(&layout.dir)?;
+            remove_stale_temporaries(&folder.cases())? + remove_stale_temporaries(&folder.dir)?;
         if stale > 0 && !s.quiet {
             eprintln!("removed {stale} temporary file(s) an earlier run left behind");
         }
@@ -124,7 +129,7 @@ pub fn run_cases(study: &Study, cases: &[Case], layout: &Layout, s: Settings) ->
     let tally = Tally::default();
     let todo: Vec<_> = prepared
         .iter()
-        .filter(|(c, text)| !(s.resume && reusable(layout, c, text, &tally)))
+        .filter(|(c, text)| !(s.resume && reusable(folder, c, text, &tally)))
         .collect();
     let reused = cases.len() - todo.len();
     let bar = match s.quiet {
@@ -143,11 +148,11 @@ pub fn run_cases(study: &Study, cases: &[Case], layout: &Layout, s: Settings) ->
             if stop.load(Ordering::Relaxed) {
                 return;
             }
-            let Some(record) = run_case(study, case, text, layout, s, stop) else {
+            let Some(record) = run_case(study, case, text, folder, s, stop) else {
                 return;
             };
             tally.add(record.status);
-            if let Err(e) = write_json(&layout.case_file(&case.id), &record) {
+            if let Err(e) = write_json(&folder.case_file(&case.id), &record) {
                 if let Ok(mut slot) = write_error.lock() {
                     slot.get_or_insert(e);
                 }
@@ -164,8 +169,13 @@ pub fn run_cases(study: &Study, cases: &[Case], layout: &Layout, s: Settings) ->
 }
 
 /// An earlier result of exactly this case exists.
-fn reusable(layout: &Layout, case: &Case, text: &Result<String, String>, tally: &Tally) -> bool {
-    let Some(old) = CaseRecord::read(&layout.case_file(&case.id)) else {
+fn reusable(
+    folder: &StudyFolder,
+    case: &Case,
+    text: &Result<String, String>,
+    tally: &Tally,
+) -> bool {
+    let Some(old) = CaseRecord::read(&folder.case_file(&case.id)) else {
         return false;
     };
     let same = old.fingerprint == case_fingerprint(text);
@@ -206,7 +216,7 @@ fn run_case(
     study: &Study,
     case: &Case,
     text: &Result<String, String>,
-    layout: &Layout,
+    folder: &StudyFolder,
     s: Settings,
     stop: &'static AtomicBool,
 ) -> Option<CaseRecord> {
@@ -230,7 +240,7 @@ fn run_case(
         Ok(text) => {
             let label = format!("{} case {}", study.file, case.id);
             let run = catch_unwind(AssertUnwindSafe(|| {
-                simulate(text, &label, &layout.waveforms(), s, stop)
+                simulate(text, &label, &folder.waveforms(), s, stop)
             }));
             match run {
                 Ok(Ok(summary)) if summary.interrupted.is_some() => return None,

@@ -17,17 +17,34 @@ use stepflux_models::measure::Kind;
 use crate::eng::{count, eng, pass_fail, percent, prefixed};
 use crate::writers::html::{caution, escape, page};
 
-/// Figures shown per case and in the worst-case table, with a label.
-const KEY: [(&str, &str); 8] = [
-    ("startup.overshoot_pct", "start-up overshoot"),
-    ("startup.t90", "start-up time"),
-    ("out.v.ripple_pp", "output ripple"),
-    ("reset_check.worst.reset_margin_pct", "reset margin"),
-    ("reset_check.worst.flux_margin_pct", "flux margin"),
-    ("reset_check.worst.drain_peak", "drain peak"),
-    ("reset_check.failed_cycles", "failed cycles"),
-    ("efficiency.stage", "efficiency"),
+/// Figures shown per case and in the worst-case table (which figures a study page
+/// leads with is this page's choice; their labels, units and worse directions are the
+/// catalogue's).
+const KEY: [&str; 8] = [
+    "startup.overshoot_pct",
+    "startup.t90",
+    "out.v.ripple_pp",
+    "reset_check.worst.reset_margin_pct",
+    "reset_check.worst.flux_margin_pct",
+    "reset_check.worst.drain_peak",
+    "reset_check.failed_cycles",
+    "efficiency.stage",
 ];
+
+/// A column heading from the figure's declaration: its label, and the section it is
+/// read in ("start-up", "core reset, tightest cycle") so the short label stays clear.
+fn heading(name: &str) -> String {
+    use stepflux_models::measure::catalogue::{find, Section};
+    match find(name) {
+        Some(d) if d.section == Section::Files => escape(d.label),
+        Some(d) => format!(
+            "{}<br><small>{}</small>",
+            escape(d.label),
+            escape(d.section.title())
+        ),
+        None => escape(name),
+    }
+}
 
 /// Sorts a table by the clicked column: numbers by their `data-v`, else text;
 /// a second click reverses.
@@ -151,13 +168,14 @@ fn worst_table(b: &mut String, dir: &Path, records: &[CaseRecord]) {
         .filter(|r| r.status != Status::Errored)
         .collect();
     b.push_str("<h2>Worst cases</h2><table><tr><th>figure</th><th>worst</th><th>case</th></tr>");
-    for (name, label) in KEY {
+    for name in KEY {
         let Some(rule) = worst_of(name) else { continue };
         if let Some((r, v)) = worst_case(&ran, name, rule) {
             let unit = value_of(r, name).map_or("", |(_, u)| u);
             let _ = write!(
                 b,
-                "<tr><th>{label}</th><td>{}</td><td>{}</td></tr>",
+                "<tr><th>{}</th><td>{}</td><td>{}</td></tr>",
+                heading(name),
                 escape(&shown(name, v, unit)),
                 case_cell(dir, r)
             );
@@ -172,8 +190,8 @@ fn cases_table(b: &mut String, dir: &Path, meta: &StudyMeta, records: &[CaseReco
     for p in meta.parameters.keys() {
         let _ = write!(b, "<th>{}</th>", escape(p));
     }
-    for (_, label) in KEY {
-        let _ = write!(b, "<th>{label}</th>");
+    for name in KEY {
+        let _ = write!(b, "<th>{}</th>", heading(name));
     }
     b.push_str("<th>failed limits</th></tr></thead><tbody>");
     // Failing cases first: errored, failed, passed; by index within each.
@@ -201,7 +219,7 @@ fn cases_table(b: &mut String, dir: &Path, meta: &StudyMeta, records: &[CaseReco
             let v = r.parameters.get(p).copied().unwrap_or(f64::NAN);
             let _ = write!(b, "{}", cell(v, &prefixed(v)));
         }
-        for (name, _) in KEY {
+        for name in KEY {
             let text = value_of(r, name).map(|(v, u)| (v, shown(name, v, u)));
             let (v, text) = text.unwrap_or((f64::NAN, "n/a".into()));
             let _ = write!(b, "{}", cell(v, &text));
@@ -269,6 +287,6 @@ mod tests {
         assert!(failed < passed, "failed case first");
         assert!(page.contains("href=\"waveforms/s-c0002/report.html\""));
         assert!(!page.contains("waveforms/s-c0001"));
-        assert!(page.contains(&escape(crate::report::CAUTION)));
+        assert!(page.contains(&escape(crate::summary::CAUTION)));
     }
 }

@@ -144,7 +144,7 @@ fn json_value(f: &Figure) -> Value2 {
     }
 }
 
-fn verdicts_json(v: &[crate::report::Verdict]) -> Value2 {
+fn verdicts_json(v: &[crate::summary::Verdict]) -> Value2 {
     json!(crate::writers::figure_json::Verdicts(v))
 }
 

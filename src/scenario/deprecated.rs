@@ -6,7 +6,7 @@
 
 use serde_json::Value;
 
-use super::error::Warning;
+use stepflux_models::job::review::Finding;
 
 /// Old top-level keys and their new names.
 const TOP: &[(&str, &str)] = &[("events", "disturbances"), ("save", "signals")];
@@ -33,7 +33,7 @@ const RESET: &[(&str, &str)] = &[
 ];
 
 /// One warning per old name in the scenario document `doc`, in document order.
-pub fn warnings(doc: &Value) -> Vec<Warning> {
+pub fn warnings(doc: &Value) -> Vec<Finding> {
     let mut out = Vec::new();
     renamed(doc, "", TOP, &mut out);
     if let Some(limits) = doc.get("limits") {
@@ -54,7 +54,7 @@ pub fn same_limit(a: &str, b: &str) -> bool {
             .any(|(old, new)| (a == *old && b == *new) || (a == *new && b == *old))
 }
 
-fn renamed(node: &Value, at: &str, names: &[(&str, &str)], out: &mut Vec<Warning>) {
+fn renamed(node: &Value, at: &str, names: &[(&str, &str)], out: &mut Vec<Finding>) {
     let Some(map) = node.as_object() else { return };
     for (old, new) in names {
         if map.contains_key(*old) {
@@ -66,7 +66,7 @@ fn renamed(node: &Value, at: &str, names: &[(&str, &str)], out: &mut Vec<Warning
 /// A diode's forward resistance was `rd`; it is `r_on`, the engine's name. Diodes sit
 /// at several depths (rectifier, body diodes, clamp diodes), so every object with a
 /// forward threshold `vf` and an `rd` is one.
-fn diode_resistance(node: &Value, at: &str, out: &mut Vec<Warning>) {
+fn diode_resistance(node: &Value, at: &str, out: &mut Vec<Finding>) {
     let Some(map) = node.as_object() else { return };
     if map.contains_key("vf") && map.contains_key("rd") {
         out.push(deprecation(&join(at, "rd"), "r_on"));
@@ -83,8 +83,8 @@ fn join(at: &str, key: &str) -> String {
     }
 }
 
-fn deprecation(field: &str, new: &str) -> Warning {
-    Warning {
+fn deprecation(field: &str, new: &str) -> Finding {
+    Finding {
         field: field.to_string(),
         message: format!("deprecated name, still read in this release; write `{new}` instead"),
     }

@@ -1,7 +1,6 @@
 //! What loading a scenario can fail at, each with where in the file and what is
 //! allowed; and the design warnings returned alongside a valid scenario.
 
-use std::fmt;
 use std::path::PathBuf;
 
 use stepflux_models::ModelError;
@@ -107,21 +106,6 @@ pub enum ScenarioError {
         /// The models' error.
         error: ModelError,
     },
-}
-
-/// A concern about a valid scenario: it runs, but the designer should look.
-#[derive(Clone, Debug, PartialEq)]
-pub struct Warning {
-    /// Dotted path of the field most to blame.
-    pub field: String,
-    /// What, with the numbers.
-    pub message: String,
-}
-
-impl fmt::Display for Warning {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "{}: {}", self.field, self.message)
-    }
 }
 
 impl ScenarioError {

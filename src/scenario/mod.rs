@@ -27,8 +27,8 @@ use std::path::Path;
 use stepflux_models::figures::DesignFigures;
 
 pub use deprecated::same_limit;
-pub use error::{ScenarioError, Warning};
-pub use feasibility::{design_point, sample_interval_on_grid};
+pub use error::ScenarioError;
+pub use stepflux_models::job::review::Finding;
 
 use crate::job::Job;
 use validate::Ctx;
@@ -39,10 +39,10 @@ pub struct Loaded {
     /// The validated job.
     pub job: Job,
     /// Design concerns that do not stop the run.
-    pub warnings: Vec<Warning>,
+    pub warnings: Vec<Finding>,
     /// Ways the design fails by its own paper figures (the run still simulates it and
     /// shows how; `check` exits 1).
-    pub failures: Vec<Warning>,
+    pub failures: Vec<Finding>,
     /// Paper design figures at the scenario's operating range.
     pub figures: DesignFigures,
     /// Probe names of the converter as built, in sample order.
@@ -84,7 +84,7 @@ fn validated(text: &str, file: &str) -> Result<Loaded, ScenarioError> {
         disturbances,
         analysis: validate::analysis(&ctx, &raw.analysis)?,
         limits: validate::limits(&ctx, &raw.limits)?,
-        save: raw.signals,
+        signals: raw.signals,
         bias_power: ctx.non_negative("bias_power", raw.bias_power.map_or(0.0, |w| w.si()))?,
         source_text: text.to_string(),
     };
@@ -92,7 +92,7 @@ fn validated(text: &str, file: &str) -> Result<Loaded, ScenarioError> {
     let built = feasibility::build(&job)
         .map_err(|e| ctx.model("converter", e, &|f| format!("converter.{f}")))?;
     feasibility::check_build(&ctx, &job, &built)?;
-    let figures = DesignFigures::compute(&job.design, &design_point(&job));
+    let figures = job.design_figures();
     let judged = feasibility::judge(&ctx, &job, &figures)?;
     let mut warnings = old_names(text);
     warnings.extend(judged.warnings);
@@ -109,7 +109,7 @@ fn validated(text: &str, file: &str) -> Result<Loaded, ScenarioError> {
 }
 
 /// Deprecation warnings for names of the previous release (the text parsed already).
-fn old_names(text: &str) -> Vec<Warning> {
+fn old_names(text: &str) -> Vec<Finding> {
     serde_json::from_str(text.trim_start_matches('\u{feff}'))
         .map(|doc| deprecated::warnings(&doc))
         .unwrap_or_default()

@@ -3,7 +3,6 @@
 //! validation so each rule has one home.
 
 use super::error::ScenarioError;
-use super::feasibility::design_point;
 use super::validate::Ctx;
 use crate::job::Job;
 
@@ -25,7 +24,7 @@ pub fn check(ctx: &Ctx, job: &Job) -> Result<(), ScenarioError> {
     for (field, n) in windings {
         ctx.within(field, n, TURNS.0, TURNS.1)?;
     }
-    let period = 1.0 / design_point(job).frequency;
+    let period = 1.0 / job.design_point().frequency;
     let stop = job.analysis.stop_time;
     if stop < period {
         return Err(ctx.range(

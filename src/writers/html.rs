@@ -9,7 +9,7 @@ use std::path::{Path, PathBuf};
 use anyhow::{Context, Result};
 
 use crate::readout::{readout, Mark};
-use crate::report::Summary;
+use crate::summary::Summary;
 
 /// Our own light palette: pale paper, slate text, green for pass, brick for fail,
 /// amber for a warning.
@@ -62,7 +62,7 @@ pub fn page(title: &str, body: &str, script: &str) -> String {
 pub fn caution() -> String {
     format!(
         "<p class=\"caution\"><strong>Safety.</strong> {}</p>",
-        escape(crate::report::CAUTION)
+        escape(crate::summary::CAUTION)
     )
 }
 
@@ -156,6 +156,6 @@ mod tests {
         let html = page("t", &caution(), "let x = 1;");
         assert!(html.starts_with("<!DOCTYPE html>"));
         assert!(!html.contains("src=") && !html.contains("href=") && !html.contains("http"));
-        assert!(html.contains(&escape(crate::report::CAUTION)));
+        assert!(html.contains(&escape(crate::summary::CAUTION)));
     }
 }

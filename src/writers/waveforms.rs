@@ -56,12 +56,12 @@ pub struct WaveformSink {
 
 impl WaveformSink {
     /// Creates the file. `probes` lists every probe (name, unit) in sample order;
-    /// `save` the indices to keep.
+    /// `kept` the indices of the signals to keep.
     /// `switchable` names the switches and diodes in topology bit order.
     pub fn create(
         path: &Path,
         probes: &[(String, &str)],
-        save: &[usize],
+        kept: &[usize],
         switchable: &[String],
         scenario: &str,
     ) -> Result<Self> {
@@ -86,8 +86,8 @@ impl WaveformSink {
             "at_event",
             "1 where the sample is taken at a switching instant",
         )?;
-        let mut saved = Vec::with_capacity(save.len());
-        for &k in save {
+        let mut saved = Vec::with_capacity(kept.len());
+        for &k in kept {
             let (name, unit) = &probes[k];
             saved.push((k, w.add_signal(name, unit)?));
         }

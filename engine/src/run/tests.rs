@@ -31,6 +31,17 @@ fn open_buck() -> (System, ElementId, ElementId) {
     )
 }
 
+/// Settles the diodes of `topo` at `z`, time 0, with fresh scratch buffers.
+fn settle(
+    system: &mut System,
+    topo: &mut Arc<TopologyData>,
+    z: &DVector<f64>,
+    flipped: &mut Vec<ElementId>,
+) {
+    let (mut visited, mut g) = (Vec::new(), vec![0.0; system.diode_count()]);
+    settle_diodes(system, topo, z, 0.0, &mut visited, flipped, &mut g).unwrap();
+}
+
 #[test]
 fn settling_reports_only_its_own_flips() {
     // Regression: `flipped` used to keep entries from earlier settles (gate changes
@@ -40,31 +51,12 @@ fn settling_reports_only_its_own_flips() {
     let (mut system, s, d) = open_buck();
     let mut topo = system.topology(initial_topology(&system)).unwrap();
     let z = initial_state(&system);
-    let (mut visited, mut flipped) = (Vec::new(), vec![s, s]);
-    let mut g = vec![0.0; system.diode_count()];
-    settle_diodes(
-        &mut system,
-        &mut topo,
-        &z,
-        0.0,
-        &mut visited,
-        &mut flipped,
-        &mut g,
-    )
-    .unwrap();
+    let mut flipped = vec![s, s];
+    settle(&mut system, &mut topo, &z, &mut flipped);
     assert_eq!(flipped, vec![d]);
     let bit = system.layout().bit_of[d.index()].unwrap();
     assert!(topo.topology.is_on(bit));
     // Already consistent: nothing flips, and nothing stale remains.
-    settle_diodes(
-        &mut system,
-        &mut topo,
-        &z,
-        0.0,
-        &mut visited,
-        &mut flipped,
-        &mut g,
-    )
-    .unwrap();
+    settle(&mut system, &mut topo, &z, &mut flipped);
     assert!(flipped.is_empty());
 }

@@ -1,16 +1,22 @@
 //! The converter job: a validated, ready-to-run scenario ([`Job`], built by the
 //! binary from a scenario file: raw file → `Job`), the plan of its measurements
-//! ([`plan`]), the limits it is judged against ([`verdict`]) and its run ([`run`]).
+//! ([`plan`]), the paper review of its design before it runs ([`review`]), the limits
+//! it is judged against ([`verdict`]) and its run ([`run`]).
 //! Everything here is in SI units and already checked; running it needs no further
 //! validation of user input.
 
 pub mod build;
 pub mod plan;
+pub mod review;
 pub mod run;
+pub mod steady;
 pub mod verdict;
 
-use crate::controller::ControllerSpec;
+use stepflux_engine::{SimOptions, TimeGrid};
+
+use crate::controller::{ControllerSpec, OutputMode};
 use crate::disturbance::Disturbance;
+use crate::figures::DesignPoint;
 use crate::gate::OpenLoopGate;
 use crate::template::ForwardDesign;
 
@@ -123,7 +129,7 @@ pub struct Job {
     /// Spec limits.
     pub limits: Limits,
     /// Probe names to save as waveforms (empty: all).
-    pub save: Vec<String>,
+    pub signals: Vec<String>,
     /// Fixed controller bias power for whole-converter efficiency, watts.
     pub bias_power: f64,
     /// The scenario as given, echoed into outputs.
@@ -140,5 +146,61 @@ impl Job {
             }
             (drive, _) => drive.clone(),
         }
+    }
+
+    /// The paper design figures (closed forms) at the job's design point: computed
+    /// here only, for the check, the review, the plots' markers and the summary.
+    pub fn design_figures(&self) -> crate::figures::DesignFigures {
+        crate::figures::DesignFigures::compute(&self.design, &self.design_point())
+    }
+
+    /// Where the design figures are evaluated: the clock (the main switch's frequency,
+    /// half the clock in alternating mode), the duty clamp, the set point, and the
+    /// lowest and highest line over the job's line steps.
+    pub fn design_point(&self) -> DesignPoint {
+        let job = self;
+        let lines = std::iter::once(job.design.input.voltage).chain(
+            job.disturbances.iter().filter_map(|d| match d {
+                Disturbance::Line { to, .. } => Some(*to),
+                _ => None,
+            }),
+        );
+        let (low_line, high_line) =
+            lines.fold((f64::MAX, f64::MIN), |(lo, hi), v| (lo.min(v), hi.max(v)));
+        match &job.drive {
+            Drive::OpenLoop(g) => DesignPoint {
+                frequency: g.frequency,
+                max_duty: g.duty,
+                set_point: None,
+                low_line,
+                high_line,
+            },
+            Drive::Controller(c) => DesignPoint {
+                // In alternating mode the main switch runs on output A, at half the clock.
+                frequency: match c.mode {
+                    OutputMode::SingleEnded => c.oscillator.frequency,
+                    OutputMode::Alternating => c.oscillator.frequency / 2.0,
+                },
+                max_duty: c.max_duty,
+                set_point: Some(c.voltage_loop.set_point()),
+                low_line,
+                high_line,
+            },
+        }
+    }
+
+    /// The sample interval as the run will keep it, on its integer time grid (the
+    /// run's options are those of the drive's clock period), and the grid's tick,
+    /// seconds.
+    pub fn sample_interval_on_grid(&self) -> Option<(f64, f64)> {
+        let job = self;
+        let period = match &job.drive {
+            Drive::Controller(c) => c.clock_period(),
+            Drive::OpenLoop(g) => g.period(),
+        };
+        let o = SimOptions::for_period(period);
+        let grid = TimeGrid::new(o.max_step, o.event_resolution).ok()?;
+        let ticks = grid.tick(job.analysis.sample_interval).max(1);
+        Some((grid.time(ticks), grid.quantum))
     }
 }

@@ -111,9 +111,5 @@ impl Summary {
 
 /// The paper design figures of a job (closed forms at its operating range).
 pub fn design_figures(job: &Job) -> Vec<Figure> {
-    stepflux_models::figures::DesignFigures::compute(
-        &job.design,
-        &crate::scenario::design_point(job),
-    )
-    .figures()
+    job.design_figures().figures()
 }

@@ -1,5 +1,6 @@
-//! Shared by the `batch_*` tests: running the binary on small studies of the demo
-//! scenario cut to 1 ms, so a dozen cases take well under a second of CPU each run.
+//! Shared by the tests that drive the binary: the binary itself, scratch folders, the
+//! example scenarios, and (for the `batch_*` tests) small studies of the demo scenario
+//! cut to 1 ms, so a dozen cases take well under a second of CPU each run.
 
 #![allow(dead_code)] // Each test file uses its own subset of these helpers.
 
@@ -19,6 +20,13 @@ pub fn scratch(name: &str) -> PathBuf {
     let _ = std::fs::remove_dir_all(&dir);
     std::fs::create_dir_all(&dir).unwrap();
     dir
+}
+
+/// An example scenario shipped in `scenarios/`.
+pub fn example(name: &str) -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("scenarios")
+        .join(name)
 }
 
 /// The example scenario the studies start from.
