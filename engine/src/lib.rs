@@ -5,7 +5,9 @@
 //! cut-sets), per-topology state equations by nodal analysis, exact stepping with the
 //! matrix exponential on an integer time grid, event location, diode-state settling,
 //! a storm guard, streaming output through a [`Sink`], exact quadratic meters (energy
-//! integrals), and a second, independent integration path through `ode_solvers`
+//! integrals), on request the sensitivity ∂x/∂x₀ carried along a run (step propagators
+//! with saltation matrices at switching instants, [`Simulation::track_sensitivity`]),
+//! and a second, independent integration path through `ode_solvers`
 //! (Dop853) for cross-checks.
 //!
 //! It must not depend on, or know of: converters, controllers, files, threads,
@@ -57,7 +59,7 @@ pub use event::{
 pub use ladder::{Tick, TimeGrid};
 pub use layout::{Layout, StateKind};
 pub use nodal::Nodal;
-pub use sim::{SimOptions, Simulation, StormGuard};
+pub use sim::{EventStamp, SimOptions, Simulation, StormGuard};
 pub use stepper::{Handover, Stepper};
 pub use system::{Meter, Observation, System, TopologyData};
 pub use topology::Topology;

@@ -7,6 +7,7 @@ use nalgebra::DVector;
 use crate::circuit::{Circuit, ElementId};
 use crate::error::EngineError;
 use crate::event::{EventFn, EventSlot, Sink, StepOutcome, Stop, Turning};
+use crate::sim::EventStamp;
 use crate::system::{Observation, System};
 use crate::topology::Topology;
 
@@ -98,6 +99,20 @@ pub trait Stepper {
                 _ => {}
             }
         }
+    }
+
+    /// The latest armed crossing whose instant a driver may tie a delayed action to
+    /// ([`Stepper::delay_from`]); `None` on a path that carries no sensitivities (the
+    /// default) or while none are tracked.
+    fn last_event_stamp(&self) -> Option<EventStamp> {
+        None
+    }
+
+    /// Says the present instant comes a fixed delay after the crossing `stamp`
+    /// ([`crate::Simulation::delay_from`]); a no-op on a path that carries no
+    /// sensitivities (the default).
+    fn delay_from(&mut self, stamp: EventStamp) {
+        let _ = stamp;
     }
 
     /// Where the run stands now.

@@ -15,6 +15,8 @@ use crate::run::RunState;
 use crate::system::{Observation, System};
 use crate::topology::Topology;
 use meters::MeterSums;
+pub use sensitivity::EventStamp;
+use sensitivity::Sensitivity;
 use sources::SourceParts;
 use spans::Spans;
 
@@ -121,6 +123,10 @@ pub struct Simulation {
     trace: trace::TraceState,
     /// Longest next step, ticks: short after a switching instant, growing after.
     ramp: Tick,
+    /// ∂x/∂x₀ carried along when asked for ([`Simulation::track_sensitivity`]).
+    sens: Option<Sensitivity>,
+    /// The latest armed crossing, while sensitivities are tracked.
+    last_stamp: Option<EventStamp>,
 }
 
 impl Simulation {
@@ -196,6 +202,8 @@ impl Simulation {
             peek_b: vec![0.0; ext_rows],
             trace: trace::TraceState::new(n_probes),
             ramp: step::RAMP_START,
+            sens: None,
+            last_stamp: None,
         };
         sim.refresh_next_break();
         sim.sources_changed();
@@ -229,6 +237,7 @@ impl Simulation {
     /// Replaces the dynamic states x (length nx) and settles the diodes.
     pub fn set_states(&mut self, x: &[f64]) -> Result<(), EngineError> {
         self.run.set_states(x)?;
+        self.restart_sensitivity();
         self.pending_flagged = true;
         self.settle()
     }
@@ -389,6 +398,7 @@ impl StormRing {
 }
 
 mod meters;
+mod sensitivity;
 mod sources;
 mod spans;
 mod step;

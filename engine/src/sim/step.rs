@@ -29,6 +29,7 @@ impl Simulation {
         if self.tick >= stop {
             return Ok(StepOutcome::StopTime);
         }
+        self.sensitivity_step_starts();
         // Output samples never end a step: where steps fall depends on the circuit,
         // its drive and the stop time alone (samples inside a step are read off it
         // afterwards, see `trace.rs`).
@@ -73,6 +74,9 @@ impl Simulation {
                     .sources
                     .get(topology, id, ladder, stacked, &z[ladder.nx..]);
                 ladder.step(stacked, z, b, &mut self.ext);
+                if let Some(s) = self.sens.as_mut() {
+                    s.propose(stacked, ladder.rows);
+                }
                 let armed = &self.armed[..self.armed_len];
                 let t_hi = self.run.system.grid.time(self.tick + span);
                 all_events(&self.ext[ev.clone()], armed, nd, t_hi, &mut self.g_hi);
@@ -80,6 +84,9 @@ impl Simulation {
                     && self.hidden(&topo, span, n).is_none()
                 {
                     len = span;
+                    if let Some(s) = self.sens.as_mut() {
+                        s.commit();
+                    }
                 }
             }
         }
@@ -110,8 +117,10 @@ impl Simulation {
                 }
             }
             let (j, d) = ladder.longest_within(len);
+            let entry = ladder.index(j, d);
             self.meters
-                .add(&self.run.topo, ladder.index(j, d), self.run.z.as_slice());
+                .add(&self.run.topo, entry, self.run.z.as_slice());
+            Self::sensitivity_moves(&mut self.sens, &ladder.steps[entry], ladder.rows);
             self.ramp = self.ramp.saturating_mul(RAMP_GROWTH);
         }
         ladder.state_from(&self.ext, self.run.z.as_mut_slice());
@@ -136,6 +145,7 @@ impl Simulation {
         let ladder = topo.ladder();
         let entry = ladder.index(j, d);
         self.meters.add(topo, entry, self.run.z.as_slice());
+        Self::sensitivity_moves(&mut self.sens, &ladder.steps[entry], ladder.rows);
         table_step(
             ladder,
             topo.topology,
@@ -227,7 +237,9 @@ impl Simulation {
         event_values(rows, armed, nd, t_hi, &mut self.g_hi, candidates);
         self.check_finite()?;
         self.read_stretch(topo, sink)?;
-        let armed = (positive(&self.g_hi, candidates) >> nd) as u64;
+        let fired = positive(&self.g_hi, candidates);
+        self.sensitivity_event(fired);
+        let armed = (fired >> nd) as u64;
         self.run.flipped.clear();
         self.settle()?;
         let diode = self.run.flipped.first().copied();

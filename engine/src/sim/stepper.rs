@@ -22,6 +22,7 @@ impl Simulation {
         let grid = self.run.system.grid;
         let tick = grid.tick(from.time);
         self.run.take_over(from, grid.time(tick))?;
+        self.restart_sensitivity();
         self.tick = tick;
         self.refresh_next_break();
         self.sources_changed();
@@ -61,5 +62,13 @@ impl Stepper for Simulation {
 
     fn advance(&mut self, until: f64, sink: &mut dyn Sink) -> Result<Stop, EngineError> {
         Simulation::advance(self, until, sink)
+    }
+
+    fn last_event_stamp(&self) -> Option<super::EventStamp> {
+        Simulation::last_event_stamp(self)
+    }
+
+    fn delay_from(&mut self, stamp: super::EventStamp) {
+        Simulation::delay_from(self, stamp)
     }
 }

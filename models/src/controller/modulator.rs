@@ -10,7 +10,7 @@
 //! is the latch.
 
 use stepflux_engine::{
-    Direction, EventFn, Meter, Signal, SimOptions, Simulation, Sink, Stepper, Stop,
+    Direction, EventFn, EventStamp, Meter, Signal, SimOptions, Simulation, Sink, Stepper, Stop,
 };
 
 use super::{ControllerParts, ControllerSpec, OutputMode};
@@ -355,12 +355,13 @@ impl<S: Stepper> ClosedLoop<S> {
                 .start_cycle(output_period, limit * t_clock / output_period, cycles);
         }
         let t_limit = t0 + limit * t_clock;
-        let Some(t_off) = self.pulse_end(t0, t_limit, sink)? else {
+        let Some((t_off, tripped)) = self.pulse_end(t0, t_limit, sink)? else {
             return Ok(());
         };
         if self.go(t_off + delay, sink)?.is_none() {
             return Ok(());
         }
+        self.follow(tripped);
         self.set_output(b_side, false)?;
         if !b_side {
             self.run.set_cycle_duty((t_off - t0) / output_period);
@@ -372,31 +373,43 @@ impl<S: Stepper> ClosedLoop<S> {
             {
                 return Ok(());
             }
+            self.follow(tripped);
             self.set_complement(true)?;
         }
         self.go(t_next, sink)?;
         Ok(())
     }
 
+    /// Tells the stepper that what changes now follows the comparator's crossing
+    /// `tripped` by a fixed delay, so its instant moves with the state (for the
+    /// sensitivities behind the steady-state search; see
+    /// [`stepflux_engine::Simulation::delay_from`]). Instants set by the clock or the
+    /// duty clamp (`None`) do not.
+    fn follow(&mut self, tripped: Option<EventStamp>) {
+        if let Some(stamp) = tripped {
+            self.run.sim.delay_from(stamp);
+        }
+    }
+
     /// When the pulse's off command comes: the comparator crossing after blanking and
-    /// minimum on-time, or the duty clamp, whichever is first; `None` when the run
-    /// ends before it.
+    /// minimum on-time (with its stamp), or the duty clamp, whichever is first; `None`
+    /// when the run ends before it.
     fn pulse_end(
         &mut self,
         t0: f64,
         t_limit: f64,
         sink: &mut dyn Sink,
-    ) -> Result<Option<f64>, ModelError> {
+    ) -> Result<Option<(f64, Option<EventStamp>)>, ModelError> {
         let t_arm = t0 + self.spec.blanking.max(self.spec.min_on_time);
         if t_arm >= t_limit {
-            return Ok(Some(t_limit));
+            return Ok(Some((t_limit, None)));
         }
         if self.go(t_arm, sink)?.is_none() {
             return Ok(None);
         }
         let t_arm = t_arm.max(self.run.sim.time());
         if self.control_voltage() >= self.ramp(t0, t_arm) {
-            return Ok(Some(t_arm));
+            return Ok(Some((t_arm, None)));
         }
         let o = &self.spec.oscillator;
         let slot = self.run.sim.arm(EventFn {
@@ -409,8 +422,8 @@ impl<S: Stepper> ClosedLoop<S> {
         let stop = self.go(t_limit, sink)?;
         self.run.sim.disarm(slot);
         Ok(match stop {
-            Some(Stop::Armed { time, .. }) => Some(time),
-            Some(Stop::Reached) => Some(t_limit),
+            Some(Stop::Armed { time, .. }) => Some((time, self.run.sim.last_event_stamp())),
+            Some(Stop::Reached) => Some((t_limit, None)),
             None => None,
         })
     }

@@ -7,7 +7,13 @@
 //! carry Van Loan's block exponential per rung, which was two thirds of the
 //! instructions of a search from a fresh run (measured with callgrind on the demo).
 //! Figures that need the energy account come from a run started at the steady state.
+//!
+//! [`PeriodMap::run_with_jacobian`] runs the same period with the engine's
+//! sensitivities on and returns ∂P/∂x with P(x). The open-loop gate acts at scheduled
+//! instants only; the closed loop's delayed turn-off is tied to its comparator crossing
+//! in `controller/modulator.rs`, so both maps' Jacobians include every saltation.
 
+use nalgebra::DMatrix;
 use stepflux_engine::{NullSink, SimOptions};
 
 use super::names::{state_names, StateName};
@@ -55,11 +61,32 @@ pub trait PeriodMap {
     fn apply(&mut self, x0: &[f64]) -> Result<Vec<f64>, ModelError> {
         self.run_from(x0, 1, &mut Discard)
     }
+
+    /// Pᵐ(x0) over m = `periods` map periods and its Jacobian ∂Pᵐ/∂x0, the monodromy
+    /// matrix the engine carries along the same run (step propagators and saltation
+    /// matrices, [`stepflux_engine::Simulation::track_sensitivity`]); the Jacobian is
+    /// `None` when the map cannot give it (the default: the search then forms it by
+    /// differences) or the run met an instant it could not account for.
+    fn run_with_jacobian(
+        &mut self,
+        x0: &[f64],
+        periods: usize,
+    ) -> Result<(Vec<f64>, Option<DMatrix<f64>>), ModelError> {
+        Ok((self.run_from(x0, periods, &mut Discard)?, None))
+    }
 }
 
 fn states_of(run: &ConverterRun) -> Vec<f64> {
     let nx = run.sim.system().layout().nx();
     run.sim.state().as_slice()[..nx].to_vec()
+}
+
+/// The states and their sensitivity to the states the run was restored with, and
+/// the run back to carrying none.
+fn states_and_jacobian(run: &mut ConverterRun) -> (Vec<f64>, Option<DMatrix<f64>>) {
+    let jac = run.sim.sensitivity().cloned();
+    run.sim.track_sensitivity(false);
+    (states_of(run), jac)
 }
 
 /// Options for trial periods: no samples (nothing is written), events located to
@@ -126,6 +153,21 @@ impl PeriodMap for OpenLoopMap {
             .run_periods(&mut self.run, periods, &mut NullSink, cycles)?;
         self.run.finish(cycles);
         Ok(states_of(&self.run))
+    }
+
+    fn run_with_jacobian(
+        &mut self,
+        x0: &[f64],
+        periods: usize,
+    ) -> Result<(Vec<f64>, Option<DMatrix<f64>>), ModelError> {
+        self.run.restore(&self.at, x0)?;
+        self.run.sim.track_sensitivity(true);
+        let ran = self
+            .gate
+            .run_periods(&mut self.run, periods, &mut NullSink, &mut Discard);
+        let out = states_and_jacobian(&mut self.run);
+        ran?;
+        Ok(out)
     }
 }
 
@@ -232,6 +274,20 @@ impl PeriodMap for ClosedLoopMap {
         let t_end = self.at.run.handover.time + periods as f64 * self.period();
         self.lp.run_until(t_end, &mut NullSink, cycles)?;
         Ok(states_of(&self.lp.run))
+    }
+
+    fn run_with_jacobian(
+        &mut self,
+        x0: &[f64],
+        periods: usize,
+    ) -> Result<(Vec<f64>, Option<DMatrix<f64>>), ModelError> {
+        self.lp.restore(&self.at, x0)?;
+        self.lp.run.sim.track_sensitivity(true);
+        let t_end = self.at.run.handover.time + periods as f64 * self.period();
+        let ran = self.lp.advance_to(t_end, &mut NullSink, &mut Discard);
+        let out = states_and_jacobian(&mut self.lp.run);
+        ran?;
+        Ok(out)
     }
 }
 

@@ -8,21 +8,36 @@
 //! (I − J) Δ = P(x) − x, x ← x + λΔ. In alternating mode T is two clock periods (one
 //! period of each output); open loop, one gate period.
 //!
-//! **Jacobian.** J = ∂P/∂x is formed by forward differences: nx + 1 period runs per
-//! Newton iteration, column j from a run with x_j raised by
-//! h_j = 10⁻⁶·max(|x_j|, 1 unit). This is the documented alternative the issue allows
-//! to the product of segment propagators with saltation corrections: it needs nothing
-//! from the engine beyond running a period from a given state, so it is right for every
-//! reset scheme, CCM and DCM, diode and comparator events and the controller's
-//! sequential logic alike, with no per-event bookkeeping to get wrong. Its price is
-//! nx + 1 periods per iteration instead of about one, and an error in J of order
-//! h·|P''| plus the event quantisation (a switching instant is located to one tick, so
-//! P is a staircase of 1e-12·T steps in duty with [`map::trial_options`]; h shifts a
-//! crossing by hundreds of ticks). With J off by a relative ε, Newton converges
-//! linearly with ratio about ε, which for ε ≈ 10⁻³ looks superlinear over the few
-//! iterations that matter: each one gains about three digits (the tests check a
-//! reduction by at least 100 per iteration near the solution), not the doubling of
-//! digits of exact Newton.
+//! **Jacobian.** J = ∂P/∂x is the monodromy matrix of the period, carried along the
+//! trial run itself by the engine ([`stepflux_engine::Simulation::track_sensitivity`]):
+//! the product of the state part Φ_xx = e^{A·τ} of each step's cached propagator with a
+//! saltation matrix S = I + (f⁺ − f⁻)·∇gᵀ / (∇g·f⁻ + ∂g/∂t) at each switching instant
+//! that moves with the state (Aprille & Trick §III; Leine & Nijmeijer, "Dynamics and
+//! Bifurcations of Non-smooth Mechanical Systems", Springer 2004, §3.5): g the event
+//! function that crossed (a diode's switching function, the magnetising current at the
+//! saturation knee, the control voltage against the falling ramp, whose rate is
+//! ∂g/∂t), f∓ the vector fields before and after. Clock edges, the duty clamp, dead
+//! times after the clock and source breakpoints are scheduled (S = I); the comparator's
+//! turn-off a gate delay after its crossing (and the auxiliary switch a dead time
+//! later) is tied to that crossing (`modulator.rs`, [`stepflux_engine::Simulation::delay_from`]),
+//! so its saltation uses the crossing's time sensitivity; a diode settling cascade at
+//! one instant is one update from the first field to the last, which equals the
+//! product of the stagewise saltations in order. J comes with P(x) from the same run
+//! for one nx × nx product per step, so each Newton iteration costs one period, and J
+//! is exact up to the one-tick location of each instant. Newton then converges
+//! quadratically (the tests check the order and the constant on the demo): from the
+//! averaged start the closed-loop demo takes 7 periods (3 plain, 4 Newton), against 17
+//! with the forward-difference Jacobian and Broyden updates used before.
+//!
+//! **Fallback.** A map that cannot give J (the trait's default, a test map) or a run
+//! that meets an instant it cannot account for (two crossings within one tick, a grazing
+//! crossing) gets J by forward differences, nx + 1 period runs, column j from a run with
+//! x_j raised by h_j = 10⁻⁶·max(|x_j|, 1 unit), then carried along by Broyden's update
+//! while full steps reduce the residual. Its error, of order h·|P''| plus the event
+//! quantisation (a switching instant is located to one tick, so P is a staircase of
+//! 1e-12·T steps in duty with [`map::trial_options`]; h shifts a crossing by hundreds of
+//! ticks), makes that convergence only superlinear; the tests also use it, as central
+//! differences, to check the exact J.
 //!
 //! **Convergence** is judged per state: |P(x)_i − x_i| ≤ rtol·|x_i| + atol(kind) with
 //! floors per kind (current, voltage, block state), and the Newton correction, which
@@ -87,9 +102,10 @@ impl Default for Tolerance {
 pub struct ShootingOptions {
     /// When to stop.
     pub tolerance: Tolerance,
-    /// Relative finite-difference perturbation of the Jacobian.
+    /// Relative finite-difference perturbation of the fallback Jacobian (used only
+    /// where the exact one is unavailable).
     pub perturbation: f64,
-    /// Newton iterations per attempt.
+    /// Jacobians formed per attempt (one per Newton iteration with the exact one).
     pub max_newton: usize,
     /// Step halvings tried per iteration.
     pub line_search: usize,
@@ -105,9 +121,10 @@ impl Default for ShootingOptions {
     /// 1e-6 perturbation (about the square root of the tick staircase's relative size
     /// on the trial grid, the usual choice for a forward difference); 3 plain periods
     /// first (from the averaged equilibrium the first period crosses the duty clamp and
-    /// the amplifier rails, where a difference Jacobian says little about the next
-    /// steps: on the demo that start costs a wasted Jacobian, 17 periods against 34);
-    /// 12 iterations, 4 halvings, 10 plain periods and 3 retries.
+    /// the amplifier rails, where the linearisation says little about the next steps:
+    /// with the exact Jacobian the demo takes 20 / 5 / 6 / 7 periods after 0 / 1 / 2 / 3
+    /// plain ones, but after 1 its DCM case's first Newton step lands in an event storm,
+    /// measured); 12 Jacobians per attempt, 4 halvings, 10 plain periods and 3 retries.
     fn default() -> Self {
         ShootingOptions {
             tolerance: Tolerance::default(),
@@ -127,8 +144,12 @@ pub struct Counter {
     /// Map periods simulated (each clock period of an alternating output counts as
     /// half).
     pub periods: usize,
-    /// Difference Jacobians formed (nx periods each).
+    /// Newton Jacobians formed: exact ones (from the trial period's own run, no extra
+    /// periods) and difference ones.
     pub newton: usize,
+    /// Of those, difference Jacobians (nx periods each), formed only where the exact
+    /// one is unavailable.
+    pub differences: usize,
 }
 
 /// A converged periodic steady state.
@@ -210,8 +231,8 @@ const KICK: f64 = 1e-3;
 /// multiplier, and 200 periods take a 1e-3 push on a multiplier of 1.05 to order one.
 const ATTRACTOR_PERIODS: usize = 200;
 
-/// Multipliers this close above 1 are taken as the forward difference's error, not as
-/// instability.
+/// Multipliers this close above 1 are taken as the error of a fallback difference
+/// Jacobian, not as instability (the exact one is far closer).
 const STABILITY_MARGIN: f64 = 1e-2;
 
 /// Finds the periodic steady state of `map` from its [`PeriodMap::guess`].

@@ -1,5 +1,6 @@
-//! Newton's method on x = Pᵐ(x) with a finite-difference Jacobian and a halving line
-//! search (see the module doc of [`super`] for the method and why).
+//! Newton's method on x = Pᵐ(x) with the exact Jacobian the engine carries along each
+//! trial period (differences and Broyden's update where a map has none) and a halving
+//! line search (see the module doc of [`super`] for the method and why).
 
 use nalgebra::{DMatrix, DVector};
 
@@ -54,6 +55,8 @@ pub(crate) struct Iterate {
     pub x: Vec<f64>,
     pub fx: Vec<f64>,
     pub norm: f64,
+    /// ∂Pᵐ/∂x at x, from the same run, when the map gives it.
+    pub jac: Option<DMatrix<f64>>,
 }
 
 impl Iterate {
@@ -80,20 +83,30 @@ pub(crate) struct Solver<'a, M: PeriodMap> {
 }
 
 impl<M: PeriodMap> Solver<'_, M> {
+    /// Pᵐ(x), with its exact Jacobian when the map gives one: a Newton iterate needs
+    /// it, and it comes from the same run for one nx × nx product per step.
     pub fn evaluate(&mut self, x: Vec<f64>) -> Result<Iterate, ModelError> {
-        let fx = self
-            .map
-            .run_from(&x, self.power, &mut super::map::Discard)?;
+        let (fx, jac) = self.map.run_with_jacobian(&x, self.power)?;
         self.count.periods += self.power;
         let r: Vec<f64> = fx.iter().zip(&x).map(|(f, x)| f - x).collect();
         let norm = self.opts.tolerance.norm(self.map.names(), &x, &r);
-        Ok(Iterate { x, fx, norm })
+        Ok(Iterate { x, fx, norm, jac })
+    }
+
+    /// The Jacobian at `at`: the exact one its run carried, else by differences.
+    fn jacobian(&mut self, at: &mut Iterate) -> Result<DMatrix<f64>, ModelError> {
+        self.count.newton += 1;
+        match at.jac.take() {
+            Some(j) => Ok(j),
+            None => self.differences(at),
+        }
     }
 
     /// J_ij ≈ (Pᵐ(x + h_j e_j)_i − Pᵐ(x)_i) / h_j, one forward difference per state,
-    /// h_j = perturbation · max(|x_j|, typical_j).
-    fn jacobian(&mut self, at: &Iterate) -> Result<DMatrix<f64>, ModelError> {
-        self.count.newton += 1;
+    /// h_j = perturbation · max(|x_j|, typical_j): the fallback for a map or a point
+    /// without an exact Jacobian.
+    pub fn differences(&mut self, at: &Iterate) -> Result<DMatrix<f64>, ModelError> {
+        self.count.differences += 1;
         let n = at.x.len();
         let mut j = DMatrix::zeros(n, n);
         for col in 0..n {
@@ -113,19 +126,21 @@ impl<M: PeriodMap> Solver<'_, M> {
     }
 
     /// Newton from `start`; the residual norm of each accepted iterate is pushed on
-    /// `history`. The Jacobian is formed by differences once, then carried along by
-    /// Broyden's rank-one update (Broyden, "A class of methods for solving nonlinear
-    /// simultaneous equations", Math. Comp. 19, 1965) while full steps keep reducing
-    /// the residual; a step that does not is retried with a fresh difference Jacobian
-    /// and, if that fails too, halved.
+    /// `history`. Each iterate brings its exact Jacobian when the map gives one
+    /// (Newton proper: quadratic convergence); otherwise the Jacobian is formed by
+    /// differences once, then carried along by Broyden's rank-one update (Broyden, "A
+    /// class of methods for solving nonlinear simultaneous equations", Math. Comp. 19,
+    /// 1965) while full steps keep reducing the residual, and a step that does not is
+    /// retried with a fresh difference Jacobian. A step that fails with a fresh
+    /// Jacobian is halved.
     pub fn solve(&mut self, start: Iterate, history: &mut Vec<f64>) -> Result<Outcome, ModelError> {
         let mut it = start;
         history.push(it.norm);
-        let mut jac = self.jacobian(&it)?;
+        let before = self.count.newton;
+        let mut jac = self.jacobian(&mut it)?;
         let mut fresh = true;
         let mut steps = 0;
-        while steps < 4 * self.opts.max_newton && self.count.newton <= self.opts.max_newton {
-            steps += 1;
+        loop {
             let Some(step) = newton_step(&jac, &it) else {
                 return Ok(Outcome::Stalled(it));
             };
@@ -136,27 +151,36 @@ impl<M: PeriodMap> Solver<'_, M> {
                 // it along a slowly decaying mode).
                 return Ok(Outcome::Converged(it, jac));
             }
-            let trial = self.evaluate(add(&it.x, &step, 1.0))?;
+            let formed = self.count.newton - before;
+            if steps == 4 * self.opts.max_newton || formed > self.opts.max_newton {
+                return Ok(Outcome::Stalled(it));
+            }
+            steps += 1;
+            let mut trial = self.evaluate(add(&it.x, &step, 1.0))?;
             if trial.norm < it.norm || trial.norm <= 1.0 {
-                self.broyden(&mut jac, &it, &trial);
+                fresh = trial.jac.is_some();
+                if fresh {
+                    jac = self.jacobian(&mut trial)?;
+                } else {
+                    self.broyden(&mut jac, &it, &trial);
+                }
                 history.push(trial.norm);
                 it = trial;
-                fresh = false;
             } else if !fresh {
-                jac = self.jacobian(&it)?;
+                jac = self.differences(&it)?;
+                self.count.newton += 1;
                 fresh = true;
             } else {
                 match self.line_search(&it, &step)? {
-                    Some(next) => {
+                    Some(mut next) => {
                         history.push(next.norm);
+                        jac = self.jacobian(&mut next)?;
                         it = next;
-                        jac = self.jacobian(&it)?;
                     }
                     None => return Ok(Outcome::Stalled(it)),
                 }
             }
         }
-        Ok(Outcome::Stalled(it))
     }
 
     /// Broyden's update J ← J + (y − J s) (D²s)ᵀ / (sᵀD²s), s the step, y the change of
