@@ -9,6 +9,9 @@
 //! switching period ([`stepflux_models::loopgain::commensurate`]) and every model is
 //! evaluated there.
 //!
+//! Beside the loop gain, each model gives the closed loop's control-to-output, output
+//! impedance (dB re 1 Ω) and line-to-output at the same steady state.
+//!
 //! Writes `DIR/<name>-loop/`: `loop.csv` and `loop.json` (SI units, degrees and dB) and
 //! `loop.svg` (Bode plot), and prints crossover and margins.
 
@@ -109,6 +112,14 @@ pub struct Curves {
     pub control_to_output_db: Vec<f64>,
     /// Control-to-output phase, degrees.
     pub control_to_output_deg: Vec<f64>,
+    /// Closed-loop output impedance magnitude, dB re 1 Ω.
+    pub output_impedance_db: Vec<f64>,
+    /// Closed-loop output impedance phase, degrees.
+    pub output_impedance_deg: Vec<f64>,
+    /// Closed-loop line-to-output magnitude, dB (volts of output per volt of input).
+    pub line_to_output_db: Vec<f64>,
+    /// Closed-loop line-to-output phase, degrees.
+    pub line_to_output_deg: Vec<f64>,
     /// Crossover and margins.
     pub margins: MarginReport,
 }
@@ -174,6 +185,10 @@ fn curves(bode: &Bode, m: Margins) -> Curves {
         loop_gain_deg: unwrap_deg(bode.iter().map(|p| p.loop_gain)),
         control_to_output_db: bode.iter().map(|p| db(p.control_to_output)).collect(),
         control_to_output_deg: unwrap_deg(bode.iter().map(|p| p.control_to_output)),
+        output_impedance_db: bode.iter().map(|p| db(p.output_impedance)).collect(),
+        output_impedance_deg: unwrap_deg(bode.iter().map(|p| p.output_impedance)),
+        line_to_output_db: bode.iter().map(|p| db(p.line_to_output)).collect(),
+        line_to_output_deg: unwrap_deg(bode.iter().map(|p| p.line_to_output)),
         margins: m.into(),
     }
 }
@@ -334,9 +349,13 @@ pub fn csv(r: &LoopReport) -> String {
     let mut out = String::from(
         "frequency_hz,sampled_loop_gain_db,sampled_loop_gain_deg,\
          sampled_control_to_output_db,sampled_control_to_output_deg,\
+         sampled_output_impedance_db,sampled_output_impedance_deg,\
+         sampled_line_to_output_db,sampled_line_to_output_deg,\
          injected_loop_gain_db,injected_loop_gain_deg,injected_amplitude_v,\
          averaged_loop_gain_db,averaged_loop_gain_deg,\
-         averaged_control_to_output_db,averaged_control_to_output_deg\n",
+         averaged_control_to_output_db,averaged_control_to_output_deg,\
+         averaged_output_impedance_db,averaged_output_impedance_deg,\
+         averaged_line_to_output_db,averaged_line_to_output_deg\n",
     );
     let join = |v: &[f64]| {
         v.iter()
@@ -350,8 +369,12 @@ pub fn csv(r: &LoopReport) -> String {
             c.loop_gain_deg[k],
             c.control_to_output_db[k],
             c.control_to_output_deg[k],
+            c.output_impedance_db[k],
+            c.output_impedance_deg[k],
+            c.line_to_output_db[k],
+            c.line_to_output_deg[k],
         ]),
-        None => ",,,".into(),
+        None => ",,,,,,,".into(),
     };
     let injected = |c: Option<&InjectedCurves>, k: usize| match c {
         Some(c) => join(&[c.loop_gain_db[k], c.loop_gain_deg[k], c.amplitude_v[k]]),
@@ -400,44 +423,4 @@ pub fn report_text(r: &LoopReport) -> String {
         (None, None) => {}
     }
     out
-}
-
-/// The loop figures of a run whose limits ask for them: crossover (`loop.crossover`,
-/// Hz), phase margin (`loop.phase_margin_deg`, °) and gain margin
-/// (`loop.gain_margin_db`, dB) of the sampled-data loop gain at the steady state, read
-/// from fs/1000 to fs/2. A figure that cannot be read (no controller, no steady state,
-/// no crossing in range) is null with the reason.
-pub fn loop_figures(job: &Job) -> Vec<crate::report::Figure> {
-    use stepflux_models::loopgain;
-    let read = || -> Result<Margins> {
-        let Drive::Controller(spec) = &job.drive else {
-            bail!("the scenario runs open loop, so it has no loop gain");
-        };
-        let (_, m) = sampled_model(&job.design, spec, &LinearOptions::default())
-            .map_err(|e| anyhow!(e))
-            .context("linearising the period map at the steady state")?;
-        let fs = 1.0 / m.period;
-        Ok(margins(fs / 1000.0, fs / 2.0, |f| Ok(m.at(f)?.loop_gain))?)
-    };
-    let (values, why) = match read() {
-        Ok(m) => ([m.crossover, m.phase_margin, m.gain_margin], None),
-        Err(e) => ([None; 3], Some(crate::text::one_line(&e))),
-    };
-    let defs = [
-        &loopgain::CROSSOVER,
-        &loopgain::PHASE_MARGIN,
-        &loopgain::GAIN_MARGIN,
-    ];
-    defs.into_iter()
-        .zip(values)
-        .map(|(def, value)| {
-            let f = def.of(value.unwrap_or(f64::NAN));
-            match value {
-                Some(_) => f,
-                None => f.because(why.clone().unwrap_or_else(|| {
-                    "no crossing between fs/1000 and fs/2 (the loop gain stays on one side)".into()
-                })),
-            }
-        })
-        .collect()
 }

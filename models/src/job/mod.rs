@@ -1,10 +1,11 @@
 //! The converter job: a validated, ready-to-run scenario ([`Job`], built by the
 //! binary from a scenario file: raw file → `Job`), the plan of its measurements
-//! ([`plan`]), the limits it is judged against ([`verdict`]) and its run ([`run`]).
+//! ([`plan`]), the loop figures read from the sampled-data model ([`loop_figures`]), the limits it is judged against ([`verdict`]) and its run ([`run`]).
 //! Everything here is in SI units and already checked; running it needs no further
 //! validation of user input.
 
 pub mod build;
+pub mod loop_figures;
 pub mod plan;
 pub mod run;
 pub mod verdict;
