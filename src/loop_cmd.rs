@@ -13,7 +13,8 @@
 //! impedance (dB re 1 Ω) and line-to-output at the same steady state.
 //!
 //! Writes `DIR/<name>-loop/`: `loop.csv` and `loop.json` (SI units, degrees and dB) and
-//! `loop.svg` (Bode plot), and prints crossover and margins.
+//! `loop.svg` (Bode plot of the loop gain), `closed-loop.svg` (output impedance and
+//! line-to-output), and prints crossover and margins.
 
 use std::path::{Path, PathBuf};
 
@@ -34,7 +35,7 @@ use crate::exit::{Exit, ExitWith, Failure};
 use crate::job::{Drive, Job};
 use crate::scenario;
 use crate::units::{self, Unit};
-use crate::writers::bode_plot;
+use crate::writers::{bode_plot, response_plot};
 
 /// Which switching-model methods to run.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
@@ -333,6 +334,7 @@ pub fn run(args: &LoopArgs) -> Result<(), Failure> {
         print!("{}", report_text(&report));
         println!("  table: {}", dir.join("loop.csv").display());
         println!("  plot:  {}", dir.join("loop.svg").display());
+        println!("  closed loop: {}", dir.join("closed-loop.svg").display());
     }
     Ok(())
 }
@@ -341,7 +343,8 @@ fn write(dir: &Path, r: &LoopReport) -> Result<()> {
     std::fs::create_dir_all(dir).with_context(|| format!("creating {}", dir.display()))?;
     std::fs::write(dir.join("loop.csv"), csv(r))?;
     std::fs::write(dir.join("loop.json"), serde_json::to_string_pretty(r)?)?;
-    bode_plot::plot(r, &dir.join("loop.svg"))
+    bode_plot::plot(r, &dir.join("loop.svg"))?;
+    response_plot::plot(r, &dir.join("closed-loop.svg"))
 }
 
 /// One row per frequency, SI units; empty cells for a model not run or not available.

@@ -70,6 +70,70 @@ fn demo_loop_gain_is_written_and_printed() {
     assert_eq!(json["frequency_hz"].as_array().unwrap().len(), 40);
 }
 
+/// The closed loop's output impedance and line-to-output reach the files: columns of
+/// both models in loop.csv and loop.json, and closed-loop.svg. The models' own tests
+/// (`models/tests/loop_output_impedance.rs`) pin the agreement; here the command must
+/// carry it through: below fs/20 the two models' columns within the same 0.5 dB and 3°
+/// (Middlebrook & Ćuk, PESC 1976), and the output impedance below 1 Ω, as a 5 V, 4 A
+/// regulator's must be (common practice).
+#[test]
+fn output_impedance_and_line_to_output_are_written() {
+    let dir = scratch("cli_loop_zout");
+    let out = stepflux()
+        .args(["loop", "--points", "20", "--to", "7.5kHz", "--out"])
+        .arg(&dir)
+        .arg(scenario("demo-startup.json"))
+        .output()
+        .expect("run");
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let folder = dir.join("demo-startup-loop");
+    let csv = std::fs::read_to_string(folder.join("loop.csv")).expect("csv");
+    let header: Vec<&str> = csv.lines().next().unwrap().split(',').collect();
+    for model in ["sampled", "averaged"] {
+        for col in ["output_impedance_db", "line_to_output_deg"] {
+            assert!(
+                header.contains(&format!("{model}_{col}").as_str()),
+                "{header:?}"
+            );
+        }
+    }
+    for row in csv.lines().skip(1) {
+        assert_eq!(row.split(',').count(), header.len(), "{row}");
+    }
+    let json: Value =
+        serde_json::from_str(&std::fs::read_to_string(folder.join("loop.json")).unwrap()).unwrap();
+    let col = |model: &str, key: &str| -> Vec<f64> {
+        json[model][key]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|v| v.as_f64().unwrap())
+            .collect()
+    };
+    for (key, tol) in [
+        ("output_impedance_db", 0.5),
+        ("output_impedance_deg", 3.0),
+        ("line_to_output_db", 0.5),
+        ("line_to_output_deg", 3.0),
+    ] {
+        let (s, a) = (col("sampled", key), col("averaged", key));
+        assert_eq!(s.len(), 20);
+        for (x, y) in s.iter().zip(&a) {
+            assert!((x - y).abs() <= tol, "{key}: {x} vs {y}");
+        }
+    }
+    assert!(col("sampled", "output_impedance_db")
+        .iter()
+        .all(|&z| z < 0.0));
+    assert!(std::fs::read_to_string(folder.join("closed-loop.svg"))
+        .expect("svg")
+        .contains("Zout"));
+}
+
 /// An open-loop scenario has no loop to break, and a range beyond fs/2 is not on the
 /// unit circle's upper half: both are bad input (exit 2).
 #[test]
@@ -173,5 +237,17 @@ fn loop_limits_are_judged_in_the_summary() {
         assert_eq!(verdict["pass"], Value::from(code == 0));
         let pm = verdict["value"].as_f64().unwrap();
         assert!((45.0..60.0).contains(&pm), "{pm}");
+        // The peak closed-loop output impedance rides along, in ohms: tens of mΩ for
+        // a 5 V, 4 A output (its resonant peak near crossover, common practice).
+        let z = summary["measurements"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|m| m["name"] == "loop.peak_output_impedance")
+            .expect("peak output impedance")
+            .clone();
+        assert_eq!(z["unit"], "Ω");
+        let z = z["value"].as_f64().unwrap();
+        assert!(z > 1e-3 && z < 0.5, "{z} Ω");
     }
 }
