@@ -5,12 +5,10 @@
 //! Each input is held over the period like the control input of [`super::linearise`]
 //! and differenced the same way: two period runs from the steady state's boundary with
 //! the input at u₀ ± h give Γ_j, the duty's and the output's rows, per ampere or per
-//! volt. The input is moved in the design itself (the load sink's current, the source's
-//! voltage) and a period map built for each side, so the run is the converter as
-//! simulated with only that value changed. The sink's current cannot go negative (the
-//! template refuses it), so when it sits at zero (a resistive load, as on the demo) the
-//! difference is taken between 0 and 2h: the derivative at h instead of 0, an operating
-//! point 1 µA away, far below any figure's resolution.
+//! volt. The input is the converter's own source (the load sink, the input source) set
+//! in the engine at the boundary, so the run is the converter as simulated with only
+//! that value changed; the engine takes a sink current of either sign, so the
+//! difference is centred even on a resistive load whose sink sits at 0 A.
 //!
 //! **Which output.** The output is read as its mean over the period, ⟨v̂ₒ⟩ₖ = C̄x̂ₖ +
 //! D̄ⱼûₖ (an engine meter, [`super::sampler`]), not at the clock edge: the edge sample
@@ -61,27 +59,17 @@ impl Disturbed {
         }
     }
 
-    /// The design with this input at `value`.
-    fn with(self, design: &ForwardDesign, value: f64) -> ForwardDesign {
-        let mut d = design.clone();
-        match self {
-            Disturbed::LoadCurrent => d.load.current = Some(value),
-            Disturbed::Line => d.input.voltage = value,
-        }
-        d
-    }
-
     /// The input's value in `design`.
-    fn value(self, design: &ForwardDesign) -> f64 {
+    pub(crate) fn value(self, design: &ForwardDesign) -> f64 {
         match self {
             Disturbed::LoadCurrent => design.load.current.unwrap_or(0.0),
             Disturbed::Line => design.input.voltage,
         }
     }
 
-    /// The step: the same relative size as a state's, of at least 1 A or 1 V.
+    /// The step: [`LinearOptions::input_step`] of the value, of at least 1 A or 1 V.
     fn step(self, design: &ForwardDesign, opts: &LinearOptions) -> f64 {
-        opts.state_step * self.value(design).abs().max(1.0)
+        opts.input_step * self.value(design).abs().max(1.0)
     }
 }
 
@@ -106,15 +94,21 @@ pub fn linearise_input(
     input: Disturbed,
     opts: &LinearOptions,
 ) -> Result<InputColumn, ModelError> {
+    let mut sampler = Sampler::new(design, spec)?;
+    column(&mut sampler, design, steady, input, opts)
+}
+
+/// [`linearise_input`] on a sampler of `design` already built.
+pub(crate) fn column(
+    sampler: &mut Sampler,
+    design: &ForwardDesign,
+    steady: &SteadyState,
+    input: Disturbed,
+    opts: &LinearOptions,
+) -> Result<InputColumn, ModelError> {
     let h = input.step(design, opts);
-    let u0 = input.value(design);
-    let lower = match input {
-        Disturbed::LoadCurrent => (u0 - h).max(0.0),
-        Disturbed::Line => u0 - h,
-    };
-    let run = |value: f64| Sampler::new(&input.with(design, value), spec)?.sample(&steady.x, 0.0);
-    let minus = run(lower)?;
-    let plus = run(lower + 2.0 * h)?;
+    let plus = sampler.sample_input(&steady.x, input, h)?;
+    let minus = sampler.sample_input(&steady.x, input, -h)?;
     let d = difference(&plus, &minus, h);
     Ok(InputColumn {
         gamma: DVector::from_vec(d.x),

@@ -10,6 +10,7 @@
 
 use stepflux_engine::{Meter, NullSink, Quantity, Signal};
 
+use super::Disturbed;
 use crate::controller::modulator::{ClosedLoop, LoopSnapshot};
 use crate::controller::ControllerSpec;
 use crate::cycles::CycleRecord;
@@ -42,6 +43,10 @@ pub(crate) struct Sampler {
     lp: ClosedLoop,
     at: LoopSnapshot,
     period: f64,
+    /// Periods run since the last [`Sampler::restore`].
+    periods: usize,
+    /// The load sink's current and the source voltage as built, amperes and volts.
+    base: [f64; 2],
 }
 
 impl Sampler {
@@ -63,10 +68,13 @@ impl Sampler {
             }])
         };
         let lp = ClosedLoop::with_meters(design, &spec, &[], trial_options(period), meter)?;
+        let base = [design.load.current.unwrap_or(0.0), design.input.voltage];
         Ok(Sampler {
             at: lp.snapshot(),
             lp,
             period,
+            periods: 0,
+            base,
         })
     }
 
@@ -75,14 +83,35 @@ impl Sampler {
         self.period
     }
 
-    /// One period from states `x` with `u` volts held at the modulator's control input.
-    pub fn sample(&mut self, x: &[f64], u: f64) -> Result<Sample, ModelError> {
+    /// Back to the first clock edge with states `x`, every source as built.
+    pub fn restore(&mut self, x: &[f64]) -> Result<(), ModelError> {
         self.lp.restore(&self.at, x)?;
+        self.periods = 0;
+        Ok(())
+    }
+
+    /// Holds `input` at `offset` from its value as built (amperes or volts; the engine
+    /// takes a sink current of either sign) until the next [`Sampler::hold`] or
+    /// [`Sampler::restore`].
+    pub fn hold(&mut self, input: Disturbed, offset: f64) -> Result<(), ModelError> {
+        let key = &self.lp.converter.key;
+        let (element, base) = match input {
+            Disturbed::LoadCurrent => (key.load_sink, self.base[0]),
+            Disturbed::Line => (key.input_source, self.base[1]),
+        };
+        self.lp.run.sim.set_source(element, base + offset, 0.0)?;
+        Ok(())
+    }
+
+    /// One period from where the loop stands, with `u` volts held at the modulator's
+    /// control input.
+    pub fn period_on(&mut self, u: f64) -> Result<Sample, ModelError> {
         // The meter keeps integrating across a return: read the period as a difference.
         let before = self.lp.run.sim.meters()[0];
         self.lp.control_offset = u;
         let mut cycles: Vec<CycleRecord> = Vec::new();
-        let t_end = self.at.run.handover.time + self.period;
+        self.periods += 1;
+        let t_end = self.at.run.handover.time + self.periods as f64 * self.period;
         let ran = self.lp.run_until(t_end, &mut NullSink, &mut cycles);
         self.lp.control_offset = 0.0;
         ran?;
@@ -97,6 +126,24 @@ impl Sampler {
         let nx = self.lp.run.sim.system().layout().nx();
         let x = self.lp.run.sim.state().as_slice()[..nx].to_vec();
         Ok(Sample { x, duty, out, mean })
+    }
+
+    /// One period from states `x` with `u` volts held at the modulator's control input.
+    pub fn sample(&mut self, x: &[f64], u: f64) -> Result<Sample, ModelError> {
+        self.restore(x)?;
+        self.period_on(u)
+    }
+
+    /// One period from states `x` with `input` held at `offset` from its value as built.
+    pub fn sample_input(
+        &mut self,
+        x: &[f64],
+        input: Disturbed,
+        offset: f64,
+    ) -> Result<Sample, ModelError> {
+        self.restore(x)?;
+        self.hold(input, offset)?;
+        self.period_on(0.0)
     }
 }
 
