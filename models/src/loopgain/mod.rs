@@ -15,7 +15,8 @@
 //! a loop that also meters the output's period mean, [`sampler`]), so diodes, the
 //! comparator and the sequential logic need no per-event bookkeeping. The load current
 //! and the source voltage are two more held inputs, four more runs ([`inputs`]), for
-//! the closed loop's output impedance and line-to-output.
+//! the closed loop's output impedance and line-to-output; [`inject_input`] measures the
+//! same two by moving the source sinusoidally in the switching simulation.
 //!
 //! **Where the loop is broken.** u is a voltage in series at the modulator's control
 //! input, between the error amplifier's output and the PWM comparator
@@ -44,6 +45,7 @@
 //! the phase first falls through −180°.
 
 mod injection;
+mod input_injection;
 mod inputs;
 mod response;
 mod sampler;
@@ -53,6 +55,7 @@ mod tests;
 use nalgebra::{DMatrix, DVector};
 
 pub use injection::{commensurate, inject, inject_at, InjectionOptions, InjectionPoint};
+pub use input_injection::{inject_input, InputInjection};
 pub use inputs::{linearise_input, Disturbed, InputColumn};
 pub use response::{
     log_grid, margins, margins_on_grid, peak_output_impedance, Bode, BodePoint, Margins,
