@@ -25,8 +25,9 @@ use serde::Serialize;
 use stepflux_models::averaged::AveragedModel;
 use stepflux_models::controller::ControllerSpec;
 use stepflux_models::loopgain::{
-    commensurate, inject, log_grid, loop_map, margins, margins_on_grid, sampled_model, Bode,
-    InjectionOptions, InjectionPoint, LinearOptions, Margins, SampledModel,
+    commensurate, inject, inject_input, log_grid, loop_map, margins, margins_on_grid,
+    sampled_model, Bode, Disturbed, InjectionOptions, InjectionPoint, InputInjection,
+    LinearOptions, Margins, SampledModel,
 };
 use stepflux_models::steady::SteadyState;
 
@@ -134,7 +135,15 @@ pub struct InjectedCurves {
     pub loop_gain_deg: Vec<f64>,
     /// Injection amplitude the linearity search settled on, volts.
     pub amplitude_v: Vec<f64>,
-    /// Switching periods simulated, all frequencies and amplitudes.
+    /// Closed-loop output impedance by a sinusoidal load current, dB re 1 Ω.
+    pub output_impedance_db: Vec<f64>,
+    /// Its phase, degrees.
+    pub output_impedance_deg: Vec<f64>,
+    /// Closed-loop line-to-output by a sinusoidal input voltage, dB.
+    pub line_to_output_db: Vec<f64>,
+    /// Its phase, degrees.
+    pub line_to_output_deg: Vec<f64>,
+    /// Switching periods simulated, all frequencies, amplitudes and inputs.
     pub periods: usize,
     /// Crossover and margins, interpolated between grid points.
     pub margins: MarginReport,
@@ -242,23 +251,43 @@ fn injected(
     grid: &[f64],
 ) -> Result<InjectedCurves> {
     let opts = InjectionOptions::default();
-    let points: Vec<InjectionPoint> = grid
+    type Point = (InjectionPoint, InputInjection, InputInjection);
+    let points: Vec<Point> = grid
         .par_iter()
         .map_init(
             || loop_map(&job.design, spec),
-            |map, &f| -> Result<InjectionPoint> {
+            |map, &f| -> Result<Point> {
                 let map = map.as_mut().map_err(|e| anyhow!("{e}"))?;
-                inject(map, spec, steady, f, &opts)
-                    .with_context(|| format!("injecting at {}", eng(f, "Hz")))
+                let input = |i| inject_input(&job.design, spec, steady, i, f, &opts);
+                Ok((
+                    inject(map, spec, steady, f, &opts)?,
+                    input(Disturbed::LoadCurrent)?,
+                    input(Disturbed::Line)?,
+                ))
             },
         )
+        .zip(grid)
+        .map(|(p, f)| p.with_context(|| format!("injecting at {}", eng(*f, "Hz"))))
         .collect::<Result<_>>()?;
-    let t: Vec<(f64, Complex<f64>)> = points.iter().map(|p| (p.frequency, p.loop_gain)).collect();
+    let t: Vec<(f64, Complex<f64>)> = points
+        .iter()
+        .map(|p| (p.0.frequency, p.0.loop_gain))
+        .collect();
+    let db = |c: Complex<f64>| 20.0 * c.norm().log10();
+    let z = || points.iter().map(|p| p.1.response);
+    let l = || points.iter().map(|p| p.2.response);
     Ok(InjectedCurves {
-        loop_gain_db: t.iter().map(|(_, c)| 20.0 * c.norm().log10()).collect(),
+        loop_gain_db: t.iter().map(|(_, c)| db(*c)).collect(),
         loop_gain_deg: unwrap_deg(t.iter().map(|(_, c)| *c)),
-        amplitude_v: points.iter().map(|p| p.amplitude).collect(),
-        periods: points.iter().map(|p| p.periods).sum(),
+        amplitude_v: points.iter().map(|p| p.0.amplitude).collect(),
+        output_impedance_db: z().map(db).collect(),
+        output_impedance_deg: unwrap_deg(z()),
+        line_to_output_db: l().map(db).collect(),
+        line_to_output_deg: unwrap_deg(l()),
+        periods: points
+            .iter()
+            .map(|p| p.0.periods + p.1.periods + p.2.periods)
+            .sum(),
         margins: margins_on_grid(&t).into(),
     })
 }
@@ -355,6 +384,8 @@ pub fn csv(r: &LoopReport) -> String {
          sampled_output_impedance_db,sampled_output_impedance_deg,\
          sampled_line_to_output_db,sampled_line_to_output_deg,\
          injected_loop_gain_db,injected_loop_gain_deg,injected_amplitude_v,\
+         injected_output_impedance_db,injected_output_impedance_deg,\
+         injected_line_to_output_db,injected_line_to_output_deg,\
          averaged_loop_gain_db,averaged_loop_gain_deg,\
          averaged_control_to_output_db,averaged_control_to_output_deg,\
          averaged_output_impedance_db,averaged_output_impedance_deg,\
@@ -380,8 +411,16 @@ pub fn csv(r: &LoopReport) -> String {
         None => ",,,,,,,".into(),
     };
     let injected = |c: Option<&InjectedCurves>, k: usize| match c {
-        Some(c) => join(&[c.loop_gain_db[k], c.loop_gain_deg[k], c.amplitude_v[k]]),
-        None => ",,".into(),
+        Some(c) => join(&[
+            c.loop_gain_db[k],
+            c.loop_gain_deg[k],
+            c.amplitude_v[k],
+            c.output_impedance_db[k],
+            c.output_impedance_deg[k],
+            c.line_to_output_db[k],
+            c.line_to_output_deg[k],
+        ]),
+        None => ",,,,,,".into(),
     };
     for (k, f) in r.frequency_hz.iter().enumerate() {
         out += &format!(

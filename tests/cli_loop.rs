@@ -159,7 +159,8 @@ fn open_loop_and_bad_range_are_bad_input() {
 /// the sampled-data one, on a grid moved to frequencies commensurate with the
 /// switching period, and the two crossovers and phase margins agree within the
 /// models' tested tolerances (models/tests/loop_gain_injection.rs: 0.5 dB and 3° to
-/// fs/4; the margins here are interpolated on a 12-point grid, so 10 % and 3°).
+/// fs/4; the margins here are interpolated on a 12-point grid, so 10 % and 3°); the
+/// same for the closed loop's output impedance and line-to-output.
 #[test]
 fn both_methods_are_written_side_by_side() {
     let dir = scratch("cli_loop_both");
@@ -193,6 +194,23 @@ fn both_methods_are_written_side_by_side() {
         json["injected"]["loop_gain_db"].as_array().unwrap().len(),
         n
     );
+    // The injected output impedance and line-to-output beside the sampled-data ones,
+    // within the models' (a)-vs-(b) tolerance to fs/2, 1 dB and 5°
+    // (models/tests/loop_output_impedance.rs).
+    for (key, tol) in [
+        ("output_impedance_db", 1.0),
+        ("output_impedance_deg", 5.0),
+        ("line_to_output_db", 1.0),
+        ("line_to_output_deg", 5.0),
+    ] {
+        let col = |model: &str| json[model][key].as_array().unwrap().clone();
+        let (a, b) = (col("sampled"), col("injected"));
+        assert_eq!(b.len(), n, "{key}");
+        for (x, y) in a.iter().zip(&b) {
+            let (x, y) = (x.as_f64().unwrap(), y.as_f64().unwrap());
+            assert!((x - y).abs() <= tol, "{key}: {x} vs {y}");
+        }
+    }
 }
 
 /// Loop limits in a scenario: a run computes the sampled-data margins at the steady

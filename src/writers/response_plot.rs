@@ -1,7 +1,8 @@
 //! The closed-loop responses of `stepflux loop`: output impedance (dB re 1 Ω) and
 //! line-to-output (dB), each magnitude above phase against log frequency; the
-//! switching model's sampled-data curve solid, the averaged model's dashed, in the
-//! colours of the loop-gain plot ([`super::bode_plot`]).
+//! switching model's sampled-data curve solid, its injected response as circles at the
+//! points injected, the averaged model's dashed, in the colours of the loop-gain plot
+//! ([`super::bode_plot`]).
 
 use std::path::Path;
 
@@ -10,10 +11,11 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 
 use crate::check::eng;
-use crate::loop_cmd::{Curves, LoopReport};
+use crate::loop_cmd::{Curves, InjectedCurves, LoopReport};
 
 const SAMPLED: RGBColor = RGBColor(0, 110, 120);
 const AVERAGED: RGBColor = RGBColor(190, 80, 20);
+const INJECTED: RGBColor = RGBColor(90, 60, 160);
 
 type Panel<'a> = DrawingArea<SVGBackend<'a>, Shift>;
 type Plotted = std::result::Result<(), Box<dyn std::error::Error>>;
@@ -22,24 +24,29 @@ type Plotted = std::result::Result<(), Box<dyn std::error::Error>>;
 struct Trace {
     label: &'static str,
     of: fn(&Curves) -> &[f64],
+    injected: fn(&InjectedCurves) -> &[f64],
 }
 
 const TRACES: [Trace; 4] = [
     Trace {
         label: "|Zout| (dB re 1 Ω)",
         of: |c| &c.output_impedance_db,
+        injected: |c| &c.output_impedance_db,
     },
     Trace {
         label: "phase of Zout (°)",
         of: |c| &c.output_impedance_deg,
+        injected: |c| &c.output_impedance_deg,
     },
     Trace {
         label: "|vo/vin| (dB)",
         of: |c| &c.line_to_output_db,
+        injected: |c| &c.line_to_output_db,
     },
     Trace {
         label: "phase of vo/vin (°)",
         of: |c| &c.line_to_output_deg,
+        injected: |c| &c.line_to_output_deg,
     },
 ];
 
@@ -74,6 +81,11 @@ fn draw_panel(area: &Panel, r: &LoopReport, t: &Trace, legend: bool) -> Plotted 
         .iter()
         .chain(r.averaged.as_ref())
         .flat_map(|c| (t.of)(c).iter().copied())
+        .chain(
+            r.injected
+                .iter()
+                .flat_map(|c| (t.injected)(c).iter().copied()),
+        )
         .filter(|v| v.is_finite())
         .collect();
     let lo = all.iter().copied().fold(f64::INFINITY, f64::min);
@@ -101,6 +113,13 @@ fn draw_panel(area: &Panel, r: &LoopReport, t: &Trace, legend: bool) -> Plotted 
             .draw_series(LineSeries::new(pts(c), SAMPLED.stroke_width(2)))?
             .label("switching model (sampled-data)")
             .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], SAMPLED.stroke_width(2)));
+    }
+    if let Some(c) = &r.injected {
+        let at = f.iter().copied().zip((t.injected)(c).iter().copied());
+        chart
+            .draw_series(at.map(|p| Circle::new(p, 3, INJECTED.stroke_width(1))))?
+            .label("switching model (injection)")
+            .legend(|(x, y)| Circle::new((x + 10, y), 3, INJECTED.stroke_width(1)));
     }
     if let Some(a) = &r.averaged {
         chart

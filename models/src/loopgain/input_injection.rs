@@ -6,10 +6,11 @@
 //! injection ([`super::inject`]).
 //!
 //! **The excitation.** The input is held over each switching period at
-//! uₖ = A·cos(ω(k + r)T_s), r the fraction of the period the held value stands for
-//! ([`Disturbed::reference`]), set on the converter's own source at every clock edge:
-//! the excitation the sampled-data model describes, so the two methods compare like
-//! with like. **The response.** ⟨v_o⟩ₖ, the output's mean over period k (an engine
+//! uₖ = A·cos(ωkT_s), set on the converter's own source at every clock edge: the
+//! excitation the sampled-data model describes, so the two methods compare like with
+//! like; the held value stands for the instant (k + r)T_s ([`Disturbed::reference`]),
+//! where the DFT reads it. (Cosine phase at the clock edge: at fs/2 the held sequence
+//! is A·(−1)ᵏ, never the zero a cosine phased at the period's middle would give.) **The response.** ⟨v_o⟩ₖ, the output's mean over period k (an engine
 //! meter), stands for the middle of the period; with f = M·f_s/N ([`commensurate`]) a
 //! single DFT bin over N periods has no leakage from the DC level and the steady
 //! ripple, and
@@ -57,7 +58,7 @@ fn window(
     let (mut u_bin, mut y_bin) = (C64::new(0.0, 0.0), C64::new(0.0, 0.0));
     let w = TAU * m as f64 / n as f64;
     for k in start..start + n {
-        let u = amplitude * (w * (k as f64 + r)).cos();
+        let u = amplitude * (w * k as f64).cos();
         sampler.hold(input, u)?;
         let s = sampler.period_on(0.0)?;
         u_bin += u * C64::from_polar(1.0, -w * (k as f64 + r));
