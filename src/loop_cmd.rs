@@ -464,5 +464,25 @@ pub fn report_text(r: &LoopReport) -> String {
         (None, Some(e)) => out += &format!("  averaged  not available: {e}\n"),
         (None, None) => {}
     }
+    if let Some(c) = &r.sampled {
+        out += &peak_line(&r.frequency_hz, &c.output_impedance_db);
+    }
     out
+}
+
+/// The largest closed-loop output impedance on the grid, for people.
+fn peak_line(f: &[f64], z_db: &[f64]) -> String {
+    let peak = f
+        .iter()
+        .zip(z_db)
+        .filter(|(_, z)| z.is_finite())
+        .max_by(|a, b| a.1.total_cmp(b.1));
+    match peak {
+        Some((f, z)) => format!(
+            "  sampled   peak output impedance {} at {} (on the grid)\n",
+            eng(10f64.powf(z / 20.0), "Ω"),
+            eng(*f, "Hz")
+        ),
+        None => String::new(),
+    }
 }

@@ -90,6 +90,11 @@ fn output_impedance_and_line_to_output_are_written() {
         "{}",
         String::from_utf8_lossy(&out.stderr)
     );
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        text.contains("peak output impedance") && text.contains("mΩ"),
+        "{text}"
+    );
     let folder = dir.join("demo-startup-loop");
     let csv = std::fs::read_to_string(folder.join("loop.csv")).expect("csv");
     let header: Vec<&str> = csv.lines().next().unwrap().split(',').collect();
