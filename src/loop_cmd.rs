@@ -9,8 +9,12 @@
 //! switching period ([`stepflux_models::loopgain::commensurate`]) and every model is
 //! evaluated there.
 //!
+//! Beside the loop gain, each model gives the closed loop's control-to-output, output
+//! impedance (dB re 1 Ω) and line-to-output at the same steady state.
+//!
 //! Writes `DIR/<name>-loop/`: `loop.csv` and `loop.json` (SI units, degrees and dB) and
-//! `loop.svg` (Bode plot), and prints crossover and margins.
+//! `loop.svg` (Bode plot of the loop gain), `closed-loop.svg` (output impedance and
+//! line-to-output), and prints crossover and margins.
 
 use std::path::{Path, PathBuf};
 
@@ -21,8 +25,9 @@ use serde::Serialize;
 use stepflux_models::averaged::AveragedModel;
 use stepflux_models::controller::ControllerSpec;
 use stepflux_models::loopgain::{
-    commensurate, inject, log_grid, loop_map, margins, margins_on_grid, sampled_model, Bode,
-    InjectionOptions, InjectionPoint, LinearOptions, Margins, SampledModel,
+    commensurate, inject, inject_input, log_grid, loop_map, margins, margins_on_grid,
+    sampled_model, Bode, Disturbed, InjectionOptions, InjectionPoint, InputInjection,
+    LinearOptions, Margins, SampledModel,
 };
 use stepflux_models::steady::SteadyState;
 
@@ -31,7 +36,7 @@ use crate::exit::{Exit, ExitWith, Failure};
 use crate::job::{Drive, Job};
 use crate::scenario;
 use crate::units::{self, Unit};
-use crate::writers::bode_plot;
+use crate::writers::{bode_plot, response_plot};
 
 /// Which switching-model methods to run.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
@@ -109,6 +114,14 @@ pub struct Curves {
     pub control_to_output_db: Vec<f64>,
     /// Control-to-output phase, degrees.
     pub control_to_output_deg: Vec<f64>,
+    /// Closed-loop output impedance magnitude, dB re 1 Ω.
+    pub output_impedance_db: Vec<f64>,
+    /// Closed-loop output impedance phase, degrees.
+    pub output_impedance_deg: Vec<f64>,
+    /// Closed-loop line-to-output magnitude, dB (volts of output per volt of input).
+    pub line_to_output_db: Vec<f64>,
+    /// Closed-loop line-to-output phase, degrees.
+    pub line_to_output_deg: Vec<f64>,
     /// Crossover and margins.
     pub margins: MarginReport,
 }
@@ -122,7 +135,15 @@ pub struct InjectedCurves {
     pub loop_gain_deg: Vec<f64>,
     /// Injection amplitude the linearity search settled on, volts.
     pub amplitude_v: Vec<f64>,
-    /// Switching periods simulated, all frequencies and amplitudes.
+    /// Closed-loop output impedance by a sinusoidal load current, dB re 1 Ω.
+    pub output_impedance_db: Vec<f64>,
+    /// Its phase, degrees.
+    pub output_impedance_deg: Vec<f64>,
+    /// Closed-loop line-to-output by a sinusoidal input voltage, dB.
+    pub line_to_output_db: Vec<f64>,
+    /// Its phase, degrees.
+    pub line_to_output_deg: Vec<f64>,
+    /// Switching periods simulated, all frequencies, amplitudes and inputs.
     pub periods: usize,
     /// Crossover and margins, interpolated between grid points.
     pub margins: MarginReport,
@@ -174,6 +195,10 @@ fn curves(bode: &Bode, m: Margins) -> Curves {
         loop_gain_deg: unwrap_deg(bode.iter().map(|p| p.loop_gain)),
         control_to_output_db: bode.iter().map(|p| db(p.control_to_output)).collect(),
         control_to_output_deg: unwrap_deg(bode.iter().map(|p| p.control_to_output)),
+        output_impedance_db: bode.iter().map(|p| db(p.output_impedance)).collect(),
+        output_impedance_deg: unwrap_deg(bode.iter().map(|p| p.output_impedance)),
+        line_to_output_db: bode.iter().map(|p| db(p.line_to_output)).collect(),
+        line_to_output_deg: unwrap_deg(bode.iter().map(|p| p.line_to_output)),
         margins: m.into(),
     }
 }
@@ -226,23 +251,43 @@ fn injected(
     grid: &[f64],
 ) -> Result<InjectedCurves> {
     let opts = InjectionOptions::default();
-    let points: Vec<InjectionPoint> = grid
+    type Point = (InjectionPoint, InputInjection, InputInjection);
+    let points: Vec<Point> = grid
         .par_iter()
         .map_init(
             || loop_map(&job.design, spec),
-            |map, &f| -> Result<InjectionPoint> {
+            |map, &f| -> Result<Point> {
                 let map = map.as_mut().map_err(|e| anyhow!("{e}"))?;
-                inject(map, spec, steady, f, &opts)
-                    .with_context(|| format!("injecting at {}", eng(f, "Hz")))
+                let input = |i| inject_input(&job.design, spec, steady, i, f, &opts);
+                Ok((
+                    inject(map, spec, steady, f, &opts)?,
+                    input(Disturbed::LoadCurrent)?,
+                    input(Disturbed::Line)?,
+                ))
             },
         )
+        .zip(grid)
+        .map(|(p, f)| p.with_context(|| format!("injecting at {}", eng(*f, "Hz"))))
         .collect::<Result<_>>()?;
-    let t: Vec<(f64, Complex<f64>)> = points.iter().map(|p| (p.frequency, p.loop_gain)).collect();
+    let t: Vec<(f64, Complex<f64>)> = points
+        .iter()
+        .map(|p| (p.0.frequency, p.0.loop_gain))
+        .collect();
+    let db = |c: Complex<f64>| 20.0 * c.norm().log10();
+    let z = || points.iter().map(|p| p.1.response);
+    let l = || points.iter().map(|p| p.2.response);
     Ok(InjectedCurves {
-        loop_gain_db: t.iter().map(|(_, c)| 20.0 * c.norm().log10()).collect(),
+        loop_gain_db: t.iter().map(|(_, c)| db(*c)).collect(),
         loop_gain_deg: unwrap_deg(t.iter().map(|(_, c)| *c)),
-        amplitude_v: points.iter().map(|p| p.amplitude).collect(),
-        periods: points.iter().map(|p| p.periods).sum(),
+        amplitude_v: points.iter().map(|p| p.0.amplitude).collect(),
+        output_impedance_db: z().map(db).collect(),
+        output_impedance_deg: unwrap_deg(z()),
+        line_to_output_db: l().map(db).collect(),
+        line_to_output_deg: unwrap_deg(l()),
+        periods: points
+            .iter()
+            .map(|p| p.0.periods + p.1.periods + p.2.periods)
+            .sum(),
         margins: margins_on_grid(&t).into(),
     })
 }
@@ -318,6 +363,7 @@ pub fn run(args: &LoopArgs) -> Result<(), Failure> {
         print!("{}", report_text(&report));
         println!("  table: {}", dir.join("loop.csv").display());
         println!("  plot:  {}", dir.join("loop.svg").display());
+        println!("  closed loop: {}", dir.join("closed-loop.svg").display());
     }
     Ok(())
 }
@@ -326,7 +372,8 @@ fn write(dir: &Path, r: &LoopReport) -> Result<()> {
     std::fs::create_dir_all(dir).with_context(|| format!("creating {}", dir.display()))?;
     std::fs::write(dir.join("loop.csv"), csv(r))?;
     std::fs::write(dir.join("loop.json"), serde_json::to_string_pretty(r)?)?;
-    bode_plot::plot(r, &dir.join("loop.svg"))
+    bode_plot::plot(r, &dir.join("loop.svg"))?;
+    response_plot::plot(r, &dir.join("closed-loop.svg"))
 }
 
 /// One row per frequency, SI units; empty cells for a model not run or not available.
@@ -334,9 +381,15 @@ pub fn csv(r: &LoopReport) -> String {
     let mut out = String::from(
         "frequency_hz,sampled_loop_gain_db,sampled_loop_gain_deg,\
          sampled_control_to_output_db,sampled_control_to_output_deg,\
+         sampled_output_impedance_db,sampled_output_impedance_deg,\
+         sampled_line_to_output_db,sampled_line_to_output_deg,\
          injected_loop_gain_db,injected_loop_gain_deg,injected_amplitude_v,\
+         injected_output_impedance_db,injected_output_impedance_deg,\
+         injected_line_to_output_db,injected_line_to_output_deg,\
          averaged_loop_gain_db,averaged_loop_gain_deg,\
-         averaged_control_to_output_db,averaged_control_to_output_deg\n",
+         averaged_control_to_output_db,averaged_control_to_output_deg,\
+         averaged_output_impedance_db,averaged_output_impedance_deg,\
+         averaged_line_to_output_db,averaged_line_to_output_deg\n",
     );
     let join = |v: &[f64]| {
         v.iter()
@@ -350,12 +403,24 @@ pub fn csv(r: &LoopReport) -> String {
             c.loop_gain_deg[k],
             c.control_to_output_db[k],
             c.control_to_output_deg[k],
+            c.output_impedance_db[k],
+            c.output_impedance_deg[k],
+            c.line_to_output_db[k],
+            c.line_to_output_deg[k],
         ]),
-        None => ",,,".into(),
+        None => ",,,,,,,".into(),
     };
     let injected = |c: Option<&InjectedCurves>, k: usize| match c {
-        Some(c) => join(&[c.loop_gain_db[k], c.loop_gain_deg[k], c.amplitude_v[k]]),
-        None => ",,".into(),
+        Some(c) => join(&[
+            c.loop_gain_db[k],
+            c.loop_gain_deg[k],
+            c.amplitude_v[k],
+            c.output_impedance_db[k],
+            c.output_impedance_deg[k],
+            c.line_to_output_db[k],
+            c.line_to_output_deg[k],
+        ]),
+        None => ",,,,,,".into(),
     };
     for (k, f) in r.frequency_hz.iter().enumerate() {
         out += &format!(
@@ -399,45 +464,25 @@ pub fn report_text(r: &LoopReport) -> String {
         (None, Some(e)) => out += &format!("  averaged  not available: {e}\n"),
         (None, None) => {}
     }
+    if let Some(c) = &r.sampled {
+        out += &peak_line(&r.frequency_hz, &c.output_impedance_db);
+    }
     out
 }
 
-/// The loop figures of a run whose limits ask for them: crossover (`loop.crossover`,
-/// Hz), phase margin (`loop.phase_margin_deg`, °) and gain margin
-/// (`loop.gain_margin_db`, dB) of the sampled-data loop gain at the steady state, read
-/// from fs/1000 to fs/2. A figure that cannot be read (no controller, no steady state,
-/// no crossing in range) is null with the reason.
-pub fn loop_figures(job: &Job) -> Vec<crate::summary::Figure> {
-    use stepflux_models::loopgain;
-    let read = || -> Result<Margins> {
-        let Drive::Controller(spec) = &job.drive else {
-            bail!("the scenario runs open loop, so it has no loop gain");
-        };
-        let (_, m) = sampled_model(&job.design, spec, &LinearOptions::default())
-            .map_err(|e| anyhow!(e))
-            .context("linearising the period map at the steady state")?;
-        let fs = 1.0 / m.period;
-        Ok(margins(fs / 1000.0, fs / 2.0, |f| Ok(m.at(f)?.loop_gain))?)
-    };
-    let (values, why) = match read() {
-        Ok(m) => ([m.crossover, m.phase_margin, m.gain_margin], None),
-        Err(e) => ([None; 3], Some(crate::text::one_line(&e))),
-    };
-    let defs = [
-        &loopgain::CROSSOVER,
-        &loopgain::PHASE_MARGIN,
-        &loopgain::GAIN_MARGIN,
-    ];
-    defs.into_iter()
-        .zip(values)
-        .map(|(def, value)| {
-            let f = def.of(value.unwrap_or(f64::NAN));
-            match value {
-                Some(_) => f,
-                None => f.because(why.clone().unwrap_or_else(|| {
-                    "no crossing between fs/1000 and fs/2 (the loop gain stays on one side)".into()
-                })),
-            }
-        })
-        .collect()
+/// The largest closed-loop output impedance on the grid, for people.
+fn peak_line(f: &[f64], z_db: &[f64]) -> String {
+    let peak = f
+        .iter()
+        .zip(z_db)
+        .filter(|(_, z)| z.is_finite())
+        .max_by(|a, b| a.1.total_cmp(b.1));
+    match peak {
+        Some((f, z)) => format!(
+            "  sampled   peak output impedance {} at {} (on the grid)\n",
+            eng(10f64.powf(z / 20.0), "Ω"),
+            eng(*f, "Hz")
+        ),
+        None => String::new(),
+    }
 }

@@ -151,7 +151,9 @@ fn run(
     let file_result = file.map_or(Ok(()), |f| f.finish());
     let mut results = run.results(job);
     if job.limits.on_loop_gain() {
-        results.figures.extend(crate::loop_cmd::loop_figures(job));
+        results
+            .figures
+            .extend(stepflux_models::job::loop_figures::loop_figures(job));
         results.verdicts = verdicts(&job.limits, &results.figures);
     }
     let stopped = match &outcome {

@@ -2,28 +2,10 @@
 //! JSON report and a Bode plot, both models' crossover and margins are printed in
 //! engineering units, and bad requests are bad input.
 
-use std::path::PathBuf;
-use std::process::Command;
-
 use serde_json::Value;
 
-fn stepflux() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_stepflux"))
-}
-
-fn scratch(name: &str) -> PathBuf {
-    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join(name);
-    // Stale output from an earlier run must not satisfy the assertions.
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).expect("scratch dir");
-    dir
-}
-
-fn scenario(name: &str) -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
-        .join("scenarios")
-        .join(name)
-}
+mod common;
+use common::{example, scratch, stepflux};
 
 /// The demo (15 kHz design crossover, `demo_controller()`): both models cross over
 /// between 10 and 25 kHz with a phase margin between 40° and 60° (the models' own tests
@@ -35,7 +17,7 @@ fn demo_loop_gain_is_written_and_printed() {
     let out = stepflux()
         .args(["loop", "--points", "40", "--out"])
         .arg(&dir)
-        .arg(scenario("demo-startup.json"))
+        .arg(example("demo-startup.json"))
         .output()
         .expect("run");
     let text = String::from_utf8_lossy(&out.stdout);
@@ -70,6 +52,75 @@ fn demo_loop_gain_is_written_and_printed() {
     assert_eq!(json["frequency_hz"].as_array().unwrap().len(), 40);
 }
 
+/// The closed loop's output impedance and line-to-output reach the files: columns of
+/// both models in loop.csv and loop.json, and closed-loop.svg. The models' own tests
+/// (`models/tests/loop_output_impedance.rs`) pin the agreement; here the command must
+/// carry it through: below fs/20 the two models' columns within the same 0.5 dB and 3°
+/// (Middlebrook & Ćuk, PESC 1976), and the output impedance below 1 Ω, as a 5 V, 4 A
+/// regulator's must be (common practice).
+#[test]
+fn output_impedance_and_line_to_output_are_written() {
+    let dir = scratch("cli_loop_zout");
+    let out = stepflux()
+        .args(["loop", "--points", "20", "--to", "7.5kHz", "--out"])
+        .arg(&dir)
+        .arg(example("demo-startup.json"))
+        .output()
+        .expect("run");
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        text.contains("peak output impedance") && text.contains("mΩ"),
+        "{text}"
+    );
+    let folder = dir.join("demo-startup-loop");
+    let csv = std::fs::read_to_string(folder.join("loop.csv")).expect("csv");
+    let header: Vec<&str> = csv.lines().next().unwrap().split(',').collect();
+    for model in ["sampled", "averaged"] {
+        for col in ["output_impedance_db", "line_to_output_deg"] {
+            assert!(
+                header.contains(&format!("{model}_{col}").as_str()),
+                "{header:?}"
+            );
+        }
+    }
+    for row in csv.lines().skip(1) {
+        assert_eq!(row.split(',').count(), header.len(), "{row}");
+    }
+    let json: Value =
+        serde_json::from_str(&std::fs::read_to_string(folder.join("loop.json")).unwrap()).unwrap();
+    let col = |model: &str, key: &str| -> Vec<f64> {
+        json[model][key]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|v| v.as_f64().unwrap())
+            .collect()
+    };
+    for (key, tol) in [
+        ("output_impedance_db", 0.5),
+        ("output_impedance_deg", 3.0),
+        ("line_to_output_db", 0.5),
+        ("line_to_output_deg", 3.0),
+    ] {
+        let (s, a) = (col("sampled", key), col("averaged", key));
+        assert_eq!(s.len(), 20);
+        for (x, y) in s.iter().zip(&a) {
+            assert!((x - y).abs() <= tol, "{key}: {x} vs {y}");
+        }
+    }
+    assert!(col("sampled", "output_impedance_db")
+        .iter()
+        .all(|&z| z < 0.0));
+    assert!(std::fs::read_to_string(folder.join("closed-loop.svg"))
+        .expect("svg")
+        .contains("Zout"));
+}
+
 /// An open-loop scenario has no loop to break, and a range beyond fs/2 is not on the
 /// unit circle's upper half: both are bad input (exit 2).
 #[test]
@@ -78,14 +129,14 @@ fn open_loop_and_bad_range_are_bad_input() {
     let open = stepflux()
         .args(["loop", "--out"])
         .arg(&dir)
-        .arg(scenario("active-clamp.json"))
+        .arg(example("active-clamp.json"))
         .output()
         .expect("run");
     assert_eq!(open.status.code(), Some(2));
     let range = stepflux()
         .args(["loop", "--to", "100kHz", "--out"])
         .arg(&dir)
-        .arg(scenario("demo-startup.json"))
+        .arg(example("demo-startup.json"))
         .output()
         .expect("run");
     assert_eq!(range.status.code(), Some(2));
@@ -95,14 +146,15 @@ fn open_loop_and_bad_range_are_bad_input() {
 /// the sampled-data one, on a grid moved to frequencies commensurate with the
 /// switching period, and the two crossovers and phase margins agree within the
 /// models' tested tolerances (models/tests/loop_gain_injection.rs: 0.5 dB and 3° to
-/// fs/4; the margins here are interpolated on a 12-point grid, so 10 % and 3°).
+/// fs/4; the margins here are interpolated on a 12-point grid, so 10 % and 3°); the
+/// same for the closed loop's output impedance and line-to-output.
 #[test]
 fn both_methods_are_written_side_by_side() {
     let dir = scratch("cli_loop_both");
     let out = stepflux()
         .args(["loop", "--method", "both", "--points", "12", "--out"])
         .arg(&dir)
-        .arg(scenario("demo-startup.json"))
+        .arg(example("demo-startup.json"))
         .output()
         .expect("run");
     let text = String::from_utf8_lossy(&out.stdout);
@@ -129,6 +181,23 @@ fn both_methods_are_written_side_by_side() {
         json["injected"]["loop_gain_db"].as_array().unwrap().len(),
         n
     );
+    // The injected output impedance and line-to-output beside the sampled-data ones,
+    // within the models' (a)-vs-(b) tolerance to fs/2, 1 dB and 5°
+    // (models/tests/loop_output_impedance.rs).
+    for (key, tol) in [
+        ("output_impedance_db", 1.0),
+        ("output_impedance_deg", 5.0),
+        ("line_to_output_db", 1.0),
+        ("line_to_output_deg", 5.0),
+    ] {
+        let col = |model: &str| json[model][key].as_array().unwrap().clone();
+        let (a, b) = (col("sampled"), col("injected"));
+        assert_eq!(b.len(), n, "{key}");
+        for (x, y) in a.iter().zip(&b) {
+            let (x, y) = (x.as_f64().unwrap(), y.as_f64().unwrap());
+            assert!((x - y).abs() <= tol, "{key}: {x} vs {y}");
+        }
+    }
 }
 
 /// Loop limits in a scenario: a run computes the sampled-data margins at the steady
@@ -138,7 +207,7 @@ fn both_methods_are_written_side_by_side() {
 #[test]
 fn loop_limits_are_judged_in_the_summary() {
     let dir = scratch("cli_loop_limits");
-    let text = std::fs::read_to_string(scenario("demo-startup.json")).unwrap();
+    let text = std::fs::read_to_string(example("demo-startup.json")).unwrap();
     let mut doc: Value = serde_json::from_str(&text).unwrap();
     for (name, pm, code) in [("loop-limits-pass", 45.0, 0), ("loop-limits-fail", 60.0, 1)] {
         doc["name"] = Value::from(name);
@@ -173,5 +242,17 @@ fn loop_limits_are_judged_in_the_summary() {
         assert_eq!(verdict["pass"], Value::from(code == 0));
         let pm = verdict["value"].as_f64().unwrap();
         assert!((45.0..60.0).contains(&pm), "{pm}");
+        // The peak closed-loop output impedance rides along, in ohms: tens of mΩ for
+        // a 5 V, 4 A output (its resonant peak near crossover, common practice).
+        let z = summary["measurements"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|m| m["name"] == "loop.peak_output_impedance")
+            .expect("peak output impedance")
+            .clone();
+        assert_eq!(z["unit"], "Ω");
+        let z = z["value"].as_f64().unwrap();
+        assert!(z > 1e-3 && z < 0.5, "{z} Ω");
     }
 }

@@ -1,4 +1,5 @@
-//! Output writers: waveforms (HDF5), plots (SVG), the efficiency and Bode plots (SVG),
+//! Output writers: waveforms (HDF5), plots (SVG), the efficiency, Bode and closed-loop
+//! response plots (SVG),
 //! the run report (HTML), whole files written atomically.
 
 pub mod atomic;
@@ -8,4 +9,5 @@ pub mod figure_json;
 pub mod hdf5;
 pub mod html;
 pub mod plots;
+pub mod response_plot;
 pub mod waveforms;

@@ -1,11 +1,14 @@
 //! The converter job: a validated, ready-to-run scenario ([`Job`], built by the
 //! binary from a scenario file: raw file → `Job`), the plan of its measurements
-//! ([`plan`]), the paper review of its design before it runs ([`review`]), the limits
-//! it is judged against ([`verdict`]) and its run ([`run`]).
+//! ([`plan`]), the paper review of its design before it runs ([`review`]), its
+//! periodic steady state ([`steady`]), the loop figures read from the sampled-data
+//! model there ([`loop_figures`]), the limits it is judged against ([`verdict`]) and
+//! its run ([`run`]).
 //! Everything here is in SI units and already checked; running it needs no further
 //! validation of user input.
 
 pub mod build;
+pub mod loop_figures;
 pub mod plan;
 pub mod review;
 pub mod run;
