@@ -12,6 +12,7 @@ use stepflux::{
 };
 
 fn main() -> ExitCode {
+    restore_broken_pipe_default();
     let cli = Cli::parse_args();
     match run(cli) {
         Ok(()) => Exit::Ok.into(),
@@ -19,6 +20,18 @@ fn main() -> ExitCode {
             report(&failure);
             failure.exit.into()
         }
+    }
+}
+
+/// A reader that closes standard output early (`stepflux schema | head`) ends the
+/// process quietly, as it ends other Unix tools, instead of a panic at the next print:
+/// Rust ignores SIGPIPE by default, which turns the closed pipe into a write error.
+fn restore_broken_pipe_default() {
+    #[cfg(unix)]
+    // SAFETY: called first thing in main, before any thread exists; SIG_DFL is a
+    // valid disposition for SIGPIPE.
+    unsafe {
+        libc::signal(libc::SIGPIPE, libc::SIG_DFL);
     }
 }
 

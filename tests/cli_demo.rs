@@ -5,7 +5,7 @@ use h5::types::VarLenUnicode;
 use hdf5_metno as h5;
 
 mod common;
-use common::{scratch, stepflux};
+use common::{example, scratch, stepflux};
 
 fn unit_of(file: &h5::File, name: &str) -> String {
     let unit: VarLenUnicode = file
@@ -130,4 +130,28 @@ fn unknown_option_is_bad_input() {
         .status()
         .expect("binary runs");
     assert_eq!(status.code(), Some(2));
+}
+
+/// A reader that stops early (`stepflux check scenario.json | head -1`) ends the
+/// process quietly, as with any Unix tool: no panic message on stderr (there was one:
+/// "failed printing to stdout: Broken pipe"). `check` prints its first lines, then
+/// times a trial run before the rest, so the pipe is closed while it still writes.
+#[test]
+fn a_closed_stdout_is_not_a_panic() {
+    use std::io::Read;
+    use std::process::Stdio;
+    let mut child = stepflux()
+        .arg("check")
+        .arg(example("demo-startup.json"))
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("binary runs");
+    let mut first = [0u8; 10];
+    let mut stdout = child.stdout.take().expect("stdout");
+    stdout.read_exact(&mut first).expect("the check starts");
+    drop(stdout);
+    let output = child.wait_with_output().expect("binary ends");
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    assert!(!stderr.contains("panicked"), "stderr: {stderr}");
 }
