@@ -10,7 +10,7 @@ use crate::check::check_structure;
 use crate::circuit::{Circuit, ElementKind, Signal};
 use crate::error::EngineError;
 use crate::kernel;
-use crate::ladder::{quadratic_form, Ladder, TimeGrid};
+use crate::ladder::{quadratic_form, shared_ladder, step_gramian, Ladder, TimeGrid};
 use crate::layout::Layout;
 use crate::nodal::Nodal;
 use crate::topology::Topology;
@@ -43,11 +43,11 @@ pub struct TopologyData {
     /// Augmented state matrix: ż = M z.
     pub m: DMatrix<f64>,
     /// Exact propagators with the event rows carried along (an event function one
-    /// step ahead of z is one dot product, which is what bisection mostly needs), and
-    /// meter integrals: built when a step first needs them ([`TopologyData::ladder`]),
-    /// so a topology only passed through while the diodes settle costs a nodal
-    /// analysis, never exponentials.
-    ladder: OnceLock<Ladder>,
+    /// step ahead of z is one dot product, which is what bisection mostly needs):
+    /// found or built when a step first needs them ([`TopologyData::ladder`]), so a
+    /// topology only passed through while the diodes settle costs a nodal analysis,
+    /// never exponentials, and shared with every run whose inputs are bit-equal.
+    ladder: OnceLock<Arc<Ladder>>,
     /// What the ladder is built from.
     recipe: LadderRecipe,
     /// Rows over z, stored as columns so each is contiguous: diode switching
@@ -66,7 +66,7 @@ struct LadderRecipe {
     grid: TimeGrid,
     /// Event rows (diode functions, then event signals) over z.
     events: DMatrix<f64>,
-    /// Quadratic forms of the meters.
+    /// Quadratic forms of the meters (used only when a meter is read).
     forms: Vec<DMatrix<f64>>,
     bits: u32,
 }
@@ -76,8 +76,19 @@ impl TopologyData {
     pub(crate) fn ladder(&self) -> &Ladder {
         self.ladder.get_or_init(|| {
             let r = &self.recipe;
-            Ladder::build(&self.m, r.nx, &r.grid, &r.events, &r.forms, r.bits)
+            shared_ladder(&self.m, r.nx, &r.grid, &r.events, r.bits)
         })
+    }
+
+    /// Each meter's integral over the steps whose Σ z·zᵀ per table entry are `sums`
+    /// (nz × nz blocks in entry order), added to `totals`: tr(Q_k·L) with L the
+    /// meter-independent integral of [`step_gramian`].
+    pub(crate) fn add_meters(&self, sums: &[f64], totals: &mut [f64]) {
+        let r = &self.recipe;
+        let l = step_gramian(self.ladder(), &self.m, &r.grid, sums);
+        for (total, q) in totals.iter_mut().zip(&r.forms) {
+            *total += kernel::dot(q.as_slice(), l.as_slice());
+        }
     }
 
     /// Rows of a ladder entry's output (see [`Ladder::rows`]), known without building.
