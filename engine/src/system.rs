@@ -58,6 +58,10 @@ pub struct TopologyData {
     /// exact like the quantity itself. Stored row-stacked so the event functions'
     /// slopes at a state are one matrix–vector product.
     pub slopes: DMatrix<f64>,
+    /// The probes' rows and their slopes alone, column-major (probes × nz), so every
+    /// probe is read in one pass over z (a trace point reads them all).
+    probe_rows: DMatrix<f64>,
+    probe_slopes: DMatrix<f64>,
 }
 
 /// The inputs of a topology's [`Ladder`] besides M.
@@ -124,6 +128,21 @@ impl TopologyData {
     #[inline]
     pub fn slopes_into(&self, z: &[f64], out: &mut [f64]) {
         kernel::matvec_rows(self.slopes.as_slice(), self.slopes.nrows(), z, out);
+    }
+
+    /// Every probe's value at state `z` into `out`, bit-equal to [`TopologyData::value_at`]
+    /// of each probe's row.
+    #[inline]
+    pub(crate) fn probe_values_into(&self, z: &[f64], out: &mut [f64]) {
+        kernel::row_dots::<4>(self.probe_rows.as_slice(), self.probe_rows.nrows(), z, out);
+    }
+
+    /// Every probe's slope at state `z` into `out`, bit-equal to [`TopologyData::slope`]
+    /// of each probe's row.
+    #[inline]
+    pub(crate) fn probe_slopes_into(&self, z: &[f64], out: &mut [f64]) {
+        let n = self.probe_slopes.nrows();
+        kernel::row_dots::<2>(self.probe_slopes.as_slice(), n, z, out);
     }
 
     /// Number of rows.
@@ -287,9 +306,14 @@ impl System {
         // binary rungs only.
         let bits = if forms.is_empty() { RADIX_BITS } else { 1 };
         let rows_t = rows.transpose();
+        let slopes = &rows * &m;
+        let first_probe = n_events;
+        let n_probes = obs.probes.len();
         Ok(TopologyData {
             topology: t,
-            slopes: &rows * &m,
+            probe_rows: rows.rows(first_probe, n_probes).into_owned(),
+            probe_slopes: slopes.rows(first_probe, n_probes).into_owned(),
+            slopes,
             m,
             ladder: OnceLock::new(),
             recipe: LadderRecipe {
