@@ -70,6 +70,15 @@ fn accumulate_any(a: &[f64], lda: usize, x: &[f64], y: &mut [f64]) {
     }
 }
 
+/// out = A·B, column by column with [`matvec_rows`]: A column-major with leading
+/// dimension `lda` (its first `out_rows` rows), B column-major with as many rows `k` as
+/// A has columns, out column-major `out_rows` × (B's columns).
+pub(crate) fn matmul(a: &[f64], lda: usize, b: &[f64], k: usize, out: &mut [f64], out_rows: usize) {
+    for (column, x) in out.chunks_exact_mut(out_rows).zip(b.chunks_exact(k)) {
+        matvec_rows(a, lda, x, column);
+    }
+}
+
 /// s += z·zᵀ for s column-major, z.len() × z.len() (four lanes wide with AVX, as
 /// [`accumulate`]).
 #[inline]
@@ -169,13 +178,16 @@ fn row_block<const LANES: usize, const B: usize>(
     x: &[f64],
 ) -> [f64; B] {
     let mut acc = [[0.0f64; B]; LANES];
-    let full = x.len() / LANES * LANES;
-    for (k, &xk) in x[..full].iter().enumerate() {
-        let rows: &[f64; B] = a[k * lda + r..k * lda + r + B]
-            .try_into()
-            .expect("block within column");
-        for (acc_i, &a_i) in acc[k % LANES].iter_mut().zip(rows) {
-            *acc_i += a_i * xk;
+    let chunks = x.chunks_exact(LANES);
+    let rest = chunks.remainder();
+    let mut columns = a.chunks_exact(lda);
+    for xs in chunks {
+        for (lane, &xk) in acc.iter_mut().zip(xs) {
+            let column = columns.next().expect("a column per x");
+            let rows: &[f64; B] = column[r..r + B].try_into().expect("block within column");
+            for (acc_i, &a_i) in lane.iter_mut().zip(rows) {
+                *acc_i += a_i * xk;
+            }
         }
     }
     let mut sum = [0.0f64; B];
@@ -186,9 +198,10 @@ fn row_block<const LANES: usize, const B: usize>(
             _ => unreachable!("the orders of dot and strided_dot only"),
         };
     }
-    for (k, &xk) in x.iter().enumerate().skip(full) {
-        for (i, s) in sum.iter_mut().enumerate() {
-            *s += a[k * lda + r + i] * xk;
+    for (column, &xk) in columns.zip(rest) {
+        let rows: &[f64; B] = column[r..r + B].try_into().expect("block within column");
+        for (s, &a_i) in sum.iter_mut().zip(rows) {
+            *s += a_i * xk;
         }
     }
     sum

@@ -116,7 +116,13 @@ pub(crate) fn rungs_by_squaring(m: &DMatrix<f64>, grid: &TimeGrid) -> Vec<DMatri
     for p in 0..=grid.levels {
         let h = grid.rung(p);
         let next = match rungs.last() {
-            Some(below) if norm * h > THETA_13 => below * below,
+            Some(below) if norm * h > THETA_13 => {
+                let n = below.nrows();
+                let mut square = DMatrix::zeros(n, n);
+                let b = below.as_slice();
+                crate::kernel::matmul(b, n, b, n, square.as_mut_slice(), n);
+                square
+            }
             _ => (m * h).exp(),
         };
         rungs.push(next);

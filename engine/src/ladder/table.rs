@@ -50,29 +50,36 @@ impl Ladder {
         let rungs = rungs_by_squaring(m, grid);
         let (nz, n_events) = (m.nrows(), events.nrows());
         let rows = (nz + n_events).div_ceil(4) * 4;
-        let nu = nz - nx;
-        let mut steps = Vec::new();
-        let mut phi = DMatrix::<f64>::zeros(nz, nz);
-        let mut next = DMatrix::<f64>::zeros(nz, nz);
-        let mut ahead = DMatrix::<f64>::zeros(n_events, nz);
+        // Every entry is S₀·Φ with S₀ = [I_x; E; I_u] (the layout of Φ = I), and within
+        // one digit S₀·Φ(d·R^j) = (S₀·Φ((d − 1)·R^j))·Φ(R^j): one product of the
+        // stacked rows per entry, the event rows carried along.
+        let mut identity = DMatrix::<f64>::zeros(rows, nz);
+        for c in 0..nx {
+            identity[(c, c)] = 1.0;
+        }
+        identity.rows_mut(nx, n_events).copy_from(events);
+        for c in nx..nz {
+            identity[(n_events + c, c)] = 1.0;
+        }
+        let mut steps: Vec<DMatrix<f64>> = Vec::new();
         for ticks in step_lengths(bits, grid.levels) {
-            // Within one digit, d·R^j = R^j + (d − 1)·R^j: one product per entry.
             let lowest = ticks.trailing_zeros();
             let unit = lowest - lowest % bits;
             let rung = &rungs[unit as usize];
-            if ticks == 1 << unit {
-                phi.copy_from(rung);
+            let before = if ticks == 1 << unit {
+                &identity
             } else {
-                rung.mul_to(&phi, &mut next);
-                std::mem::swap(&mut phi, &mut next);
-            }
+                steps.last().expect("the entry one digit value shorter")
+            };
             let mut stacked = DMatrix::<f64>::zeros(rows, nz);
-            stacked.rows_mut(0, nx).copy_from(&phi.rows(0, nx));
-            events.mul_to(&phi, &mut ahead);
-            stacked.rows_mut(nx, n_events).copy_from(&ahead);
-            stacked
-                .rows_mut(nx + n_events, nu)
-                .copy_from(&phi.rows(nx, nu));
+            kernel::matmul(
+                before.as_slice(),
+                rows,
+                rung.as_slice(),
+                nz,
+                stacked.as_mut_slice(),
+                rows,
+            );
             steps.push(stacked);
         }
         let top = oscillation_limit(m, nx, grid);

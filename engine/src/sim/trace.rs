@@ -193,7 +193,7 @@ impl Simulation {
         for &(tick, k) in &found {
             let state = &self.trace.states[k * nz..(k + 1) * nz];
             self.peek_z.copy_from_slice(state);
-            fill_point(topo, &self.peek_z, &mut self.trace);
+            fill_point(topo, self.first_probe_row(), &self.peek_z, &mut self.trace);
             let point = TracePoint {
                 time: self.run.system.grid.time(tick),
                 values: &self.trace.values,
@@ -233,7 +233,7 @@ impl Simulation {
         sink: &mut dyn Sink,
         kind: TraceKind,
     ) -> Result<(), EngineError> {
-        fill_point(topo, &self.peek_z, &mut self.trace);
+        fill_point(topo, self.first_probe_row(), &self.peek_z, &mut self.trace);
         let time = self.time();
         let point = TracePoint {
             time,
@@ -346,8 +346,16 @@ impl Simulation {
     }
 }
 
-/// Each traced probe's value and slope at state `z` in `topo`.
-fn fill_point(topo: &TopologyData, z: &[f64], t: &mut TraceState) {
+/// Each traced probe's value and slope at state `z` in `topo`: row by row when few
+/// probes are traced, else every probe in one pass (bit-equal either way).
+fn fill_point(topo: &TopologyData, first: usize, z: &[f64], t: &mut TraceState) {
+    if 2 * t.list.len() < t.values.len() {
+        for &k in &t.list {
+            t.values[k] = topo.value_at(first + k, z);
+            t.slopes[k] = topo.slope(first + k, z);
+        }
+        return;
+    }
     topo.probe_values_into(z, &mut t.every_value);
     topo.probe_slopes_into(z, &mut t.every_slope);
     for &k in &t.list {
