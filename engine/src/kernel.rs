@@ -125,88 +125,6 @@ fn block<const B: usize>(a: &[f64], lda: usize, r: usize, x: &[f64], init: [f64;
     acc
 }
 
-/// y_i = A_i·x for the first `y.len()` rows of A (column-major, leading dimension
-/// `lda`, `x.len()` columns), each summed in exactly the order of [`dot`] (`LANES` = 4)
-/// or of [`strided_dot`] (`LANES` = 2): column k into partial sum k mod LANES, the
-/// partial sums combined as those do, then the leftover columns in order. So a row read
-/// with this kernel is bit-equal to the same row read alone, while the rows go four at
-/// a time (four lanes wide with AVX, as [`accumulate`]).
-#[inline]
-pub(crate) fn row_dots<const LANES: usize>(a: &[f64], lda: usize, x: &[f64], y: &mut [f64]) {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx") {
-        // SAFETY: the processor has just been found to support AVX, the only
-        // requirement of `row_dots_avx`.
-        unsafe { row_dots_avx::<LANES>(a, lda, x, y) };
-        return;
-    }
-    row_dots_any::<LANES>(a, lda, x, y);
-}
-
-/// [`row_dots`] compiled for AVX.
-///
-/// # Safety
-/// The processor must support AVX.
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx")]
-unsafe fn row_dots_avx<const LANES: usize>(a: &[f64], lda: usize, x: &[f64], y: &mut [f64]) {
-    row_dots_any::<LANES>(a, lda, x, y);
-}
-
-#[inline(always)]
-fn row_dots_any<const LANES: usize>(a: &[f64], lda: usize, x: &[f64], y: &mut [f64]) {
-    let n = y.len();
-    debug_assert!(n <= lda && a.len() >= lda * x.len());
-    let mut r = 0;
-    while r + 4 <= n {
-        let out: [f64; 4] = row_block::<LANES, 4>(a, lda, r, x);
-        y[r..r + 4].copy_from_slice(&out);
-        r += 4;
-    }
-    while r < n {
-        y[r] = row_block::<LANES, 1>(a, lda, r, x)[0];
-        r += 1;
-    }
-}
-
-/// Rows r..r+B of [`row_dots`].
-#[inline(always)]
-fn row_block<const LANES: usize, const B: usize>(
-    a: &[f64],
-    lda: usize,
-    r: usize,
-    x: &[f64],
-) -> [f64; B] {
-    let mut acc = [[0.0f64; B]; LANES];
-    let chunks = x.chunks_exact(LANES);
-    let rest = chunks.remainder();
-    let mut columns = a.chunks_exact(lda);
-    for xs in chunks {
-        for (lane, &xk) in acc.iter_mut().zip(xs) {
-            let column = columns.next().expect("a column per x");
-            let rows: &[f64; B] = column[r..r + B].try_into().expect("block within column");
-            for (acc_i, &a_i) in lane.iter_mut().zip(rows) {
-                *acc_i += a_i * xk;
-            }
-        }
-    }
-    let mut sum = [0.0f64; B];
-    for (i, s) in sum.iter_mut().enumerate() {
-        *s = match LANES {
-            4 => (acc[0][i] + acc[2][i]) + (acc[1][i] + acc[3][i]),
-            2 => acc[0][i] + acc[1][i],
-            _ => unreachable!("the orders of dot and strided_dot only"),
-        };
-    }
-    for (column, &xk) in columns.zip(rest) {
-        let rows: &[f64; B] = column[r..r + B].try_into().expect("block within column");
-        for (s, &a_i) in sum.iter_mut().zip(rows) {
-            *s += a_i * xk;
-        }
-    }
-    sum
-}
-
 /// Σ_k a[k·stride]·x[k]: a row of a column-major matrix (starting at `a[0]`) times x.
 #[inline]
 pub(crate) fn strided_dot(a: &[f64], stride: usize, x: &[f64]) -> f64 {
@@ -295,21 +213,6 @@ mod tests {
         for i in 0..r {
             let row = strided_dot(&a.as_slice()[i..], r, x.as_slice());
             assert_eq!(row, a.row(i).transpose().dot(&x));
-        }
-        // Row reads in bulk equal row reads one by one, bit for bit, whatever the
-        // row count and column count (not exact products here: the order must match).
-        for (rows, cols) in [(13, 16), (7, 5), (4, 3), (9, 1)] {
-            let m = nalgebra::DMatrix::from_fn(rows, cols, |i, j| ((i * 7 + j * 3) as f64).sin());
-            let v: Vec<f64> = (0..cols).map(|k| (k as f64 * 0.37).cos()).collect();
-            let (mut four, mut two) = (vec![0.0; rows], vec![0.0; rows]);
-            row_dots::<4>(m.as_slice(), rows, &v, &mut four);
-            row_dots::<2>(m.as_slice(), rows, &v, &mut two);
-            let mt = m.transpose();
-            for i in 0..rows {
-                let row = &mt.as_slice()[i * cols..(i + 1) * cols];
-                assert_eq!(four[i].to_bits(), dot(row, &v).to_bits());
-                assert_eq!(two[i].to_bits(), strided_dot(&m.as_slice()[i..], rows, &v).to_bits());
-            }
         }
         let mut outer = vec![1.0; 4];
         add_outer(&[1.0, -2.0], &mut outer);

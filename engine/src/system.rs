@@ -58,10 +58,6 @@ pub struct TopologyData {
     /// exact like the quantity itself. Stored row-stacked so the event functions'
     /// slopes at a state are one matrix–vector product.
     pub slopes: DMatrix<f64>,
-    /// The probes' rows and their slopes alone, column-major (probes × nz), so every
-    /// probe is read in one pass over z (a trace point reads them all).
-    probe_rows: DMatrix<f64>,
-    probe_slopes: DMatrix<f64>,
 }
 
 /// The inputs of a topology's [`Ladder`] besides M.
@@ -130,21 +126,6 @@ impl TopologyData {
         kernel::matvec_rows(self.slopes.as_slice(), self.slopes.nrows(), z, out);
     }
 
-    /// Every probe's value at state `z` into `out`, bit-equal to [`TopologyData::value_at`]
-    /// of each probe's row.
-    #[inline]
-    pub(crate) fn probe_values_into(&self, z: &[f64], out: &mut [f64]) {
-        kernel::row_dots::<4>(self.probe_rows.as_slice(), self.probe_rows.nrows(), z, out);
-    }
-
-    /// Every probe's slope at state `z` into `out`, bit-equal to [`TopologyData::slope`]
-    /// of each probe's row.
-    #[inline]
-    pub(crate) fn probe_slopes_into(&self, z: &[f64], out: &mut [f64]) {
-        let n = self.probe_slopes.nrows();
-        kernel::row_dots::<2>(self.probe_slopes.as_slice(), n, z, out);
-    }
-
     /// Number of rows.
     pub fn row_count(&self) -> usize {
         self.rows_t.ncols()
@@ -154,8 +135,8 @@ impl TopologyData {
 /// Bits per digit of the step table: radix 16 halves the products per step of binary
 /// rungs for 3.5 times their memory (about 0.25 MB per topology of 16 states; measured
 /// in the engine benches). Runs with meters use it too: a meter costs one z·zᵀ sum per
-/// entry used (`sim/meters.rs`), and on binary rungs a run with meters took about 2.5
-/// times the steps per period of one without (63 against 25 on the closed-loop demo).
+/// entry used (`sim/meters.rs`), and on binary rungs a start-up case of the corners
+/// study took 63 steps per period against 40 on this table (callgrind, one case).
 const RADIX_BITS: u32 = 4;
 
 /// Hashes a topology mask with one multiplication: the keys are our own bit masks, not
@@ -306,14 +287,9 @@ impl System {
         let events = rows.rows(0, n_events).into_owned();
         let bits = RADIX_BITS;
         let rows_t = rows.transpose();
-        let slopes = &rows * &m;
-        let first_probe = n_events;
-        let n_probes = obs.probes.len();
         Ok(TopologyData {
             topology: t,
-            probe_rows: rows.rows(first_probe, n_probes).into_owned(),
-            probe_slopes: slopes.rows(first_probe, n_probes).into_owned(),
-            slopes,
+            slopes: &rows * &m,
             m,
             ladder: OnceLock::new(),
             recipe: LadderRecipe {

@@ -4,8 +4,8 @@
 //! over every step of one table entry it is tr(Q·L(h, S)) with S = Σ z·zᵀ and
 //! L(h, X) = ∫₀ʰ Φ(s) X Φ(s)ᵀ ds. L does not depend on the meter: one L per topology
 //! serves every meter. And L folds down the ladder: splitting the integral at a,
-//! L(a + b, X) = L(a, X) + L(b, Φ(a) X Φ(a)ᵀ) (Φ(a + s) = Φ(s)Φ(a)), so an entry's sum
-//! goes to the binary rungs of its set bits, and from the top,
+//! L(a + b, X) = L(a, X) + L(b, Φ(a) X Φ(a)ᵀ) (Φ(a + s) = Φ(s)Φ(a)), so the sums of a
+//! digit's entries go to that digit's rung, and from the top,
 //! L(2h, X) = L(h, X + Φ(h) X Φ(h)ᵀ), every rung's sum ends in one integral over one
 //! tick, by Van Loan's block exponential ([`super::tick_gramian`]). A topology costs
 //! two products per rung when read, and nothing while stepping beyond the sums.
@@ -13,9 +13,14 @@
 use nalgebra::DMatrix;
 
 use super::{tick_gramian, Ladder, TimeGrid};
+use crate::kernel;
 
 /// Σ_e L(h_e, S_e) over the entries e of `ladder` (state matrix `m`, grid `grid`),
 /// S_e the nz × nz blocks of `sums` in entry order (column-major).
+///
+/// Within digit j (a = R^j), Σ_d L(d·a, S_d) = L(a, Σ_i Φ_aⁱ G_i Φ_aⁱᵀ) with G_i the sum
+/// of S_d over d > i, formed by Horner's rule from the highest d: one congruence per
+/// digit value, whatever the entries used.
 pub(crate) fn step_gramian(
     ladder: &Ladder,
     m: &DMatrix<f64>,
@@ -23,35 +28,38 @@ pub(crate) fn step_gramian(
     sums: &[f64],
 ) -> DMatrix<f64> {
     let nz = ladder.nz;
-    let per_digit = (1usize << ladder.bits) - 1;
+    let bits = ladder.bits;
+    let per_digit = (1usize << bits) - 1;
     let mut at_rung: Vec<Option<DMatrix<f64>>> = vec![None; grid.levels as usize + 1];
-    for (entry, block) in sums.chunks_exact(nz * nz).enumerate() {
-        if block.iter().all(|&v| v == 0.0) {
-            continue;
-        }
-        let s = DMatrix::from_column_slice(nz, nz, block);
-        let (j, d) = ((entry / per_digit) as u32, (entry % per_digit + 1) as u64);
-        // The set bits of d·R^j, lowest first; `done` the digit value stepped so far.
-        let mut done = 0u64;
-        for bit in (0..ladder.bits).filter(|b| d >> b & 1 == 1) {
-            let x = if done == 0 {
-                s.clone()
-            } else {
-                let phi = ladder.phi(ladder.index(j, done));
-                &phi * &s * phi.transpose()
+    for (j, digit) in sums.chunks(per_digit * nz * nz).enumerate() {
+        let phi = ladder.phi(ladder.index(j as u32, 1));
+        let mut suffix = DMatrix::<f64>::zeros(nz, nz);
+        let mut horner: Option<DMatrix<f64>> = None;
+        for block in digit.chunks_exact(nz * nz).rev() {
+            let used = block.iter().any(|&v| v != 0.0);
+            if used {
+                suffix += DMatrix::from_column_slice(nz, nz, block);
+            }
+            horner = match horner {
+                Some(h) => Some(&suffix + congruence(&phi, &h)),
+                None if used => Some(suffix.clone()),
+                None => None,
             };
-            add_to(&mut at_rung[(j * ladder.bits + bit) as usize], x);
-            done |= 1 << bit;
+        }
+        if let Some(h) = horner {
+            add_to(&mut at_rung[j * bits as usize], h);
         }
     }
+    // From the top, L(2h, X) = L(h, X + Φ(h) X Φ(h)ᵀ).
     let mut carry: Option<DMatrix<f64>> = None;
     for p in (1..at_rung.len()).rev() {
         if let Some(x) = at_rung[p].take() {
             add_to(&mut carry, x);
         }
         if let Some(x) = carry.take() {
-            let phi = ladder.phi(ladder.index((p as u32 - 1) / ladder.bits, 1 << ((p as u32 - 1) % ladder.bits)));
-            let moved = &phi * &x * phi.transpose();
+            let below = (p - 1) as u32;
+            let phi = ladder.phi(ladder.index(below / bits, 1 << (below % bits)));
+            let moved = congruence(&phi, &x);
             carry = Some(x + moved);
         }
     }
@@ -62,6 +70,16 @@ pub(crate) fn step_gramian(
         Some(x) => tick_gramian(m, &x, grid),
         None => DMatrix::zeros(nz, nz),
     }
+}
+
+/// Φ·X·Φᵀ with the engine's kernel.
+fn congruence(phi: &DMatrix<f64>, x: &DMatrix<f64>) -> DMatrix<f64> {
+    let n = phi.nrows();
+    let (mut left, mut out) = (DMatrix::zeros(n, n), DMatrix::zeros(n, n));
+    kernel::matmul(phi.as_slice(), n, x.as_slice(), n, left.as_mut_slice(), n);
+    let phi_t = phi.transpose();
+    kernel::matmul(left.as_slice(), n, phi_t.as_slice(), n, out.as_mut_slice(), n);
+    out
 }
 
 fn add_to(acc: &mut Option<DMatrix<f64>>, x: DMatrix<f64>) {

@@ -37,9 +37,6 @@ pub(super) struct TraceState {
     list: Vec<usize>,
     values: Vec<f64>,
     slopes: Vec<f64>,
-    /// Every probe's value and slope at a point, read in one pass each.
-    every_value: Vec<f64>,
-    every_slope: Vec<f64>,
     /// Slopes at the last point, and where it was: an extremum is looked for only
     /// inside a step that starts at that point, in the same topology.
     prev_slopes: Vec<f64>,
@@ -56,8 +53,6 @@ impl TraceState {
             list: Vec::new(),
             values: vec![0.0; n_probes],
             slopes: vec![f64::NAN; n_probes],
-            every_value: vec![0.0; n_probes],
-            every_slope: vec![0.0; n_probes],
             prev_slopes: vec![f64::NAN; n_probes],
             prev_at: None,
             found: Vec::with_capacity(n_probes),
@@ -193,7 +188,7 @@ impl Simulation {
         for &(tick, k) in &found {
             let state = &self.trace.states[k * nz..(k + 1) * nz];
             self.peek_z.copy_from_slice(state);
-            fill_point(topo, self.first_probe_row(), &self.peek_z, &mut self.trace);
+            fill_point(topo, first, &self.peek_z, &mut self.trace);
             let point = TracePoint {
                 time: self.run.system.grid.time(tick),
                 values: &self.trace.values,
@@ -233,7 +228,8 @@ impl Simulation {
         sink: &mut dyn Sink,
         kind: TraceKind,
     ) -> Result<(), EngineError> {
-        fill_point(topo, self.first_probe_row(), &self.peek_z, &mut self.trace);
+        let first = self.first_probe_row();
+        fill_point(topo, first, &self.peek_z, &mut self.trace);
         let time = self.time();
         let point = TracePoint {
             time,
@@ -346,21 +342,11 @@ impl Simulation {
     }
 }
 
-/// Each traced probe's value and slope at state `z` in `topo`: row by row when few
-/// probes are traced, else every probe in one pass (bit-equal either way).
+/// Every probe's value and each traced probe's slope at state `z` in `topo`.
 fn fill_point(topo: &TopologyData, first: usize, z: &[f64], t: &mut TraceState) {
-    if 2 * t.list.len() < t.values.len() {
-        for &k in &t.list {
-            t.values[k] = topo.value_at(first + k, z);
-            t.slopes[k] = topo.slope(first + k, z);
-        }
-        return;
-    }
-    topo.probe_values_into(z, &mut t.every_value);
-    topo.probe_slopes_into(z, &mut t.every_slope);
     for &k in &t.list {
-        t.values[k] = t.every_value[k];
-        t.slopes[k] = t.every_slope[k];
+        t.values[k] = topo.value_at(first + k, z);
+        t.slopes[k] = topo.slope(first + k, z);
     }
 }
 
