@@ -92,7 +92,11 @@ fn start_up_case(c: &mut Criterion, cold: bool) {
     group.warm_up_time(Duration::from_secs(1));
     group.measurement_time(Duration::from_secs(5));
     let (mut total, mut cases) = (Duration::ZERO, 0u64);
-    let name = if cold { "start_up_5ms" } else { "start_up_5ms_table_warm" };
+    let name = if cold {
+        "start_up_5ms"
+    } else {
+        "start_up_5ms_table_warm"
+    };
     group.bench_function(name, |b| {
         b.iter_custom(|iters| {
             let mut elapsed = Duration::ZERO;
@@ -114,7 +118,11 @@ fn start_up_case(c: &mut Criterion, cold: bool) {
     });
     group.finish();
     if cases > 0 {
-        let how = if cold { "from cold" } else { "ladder table warm" };
+        let how = if cold {
+            "from cold"
+        } else {
+            "ladder table warm"
+        };
         eprintln!(
             "closed_loop_demo: {:.2} ms per 5 ms start-up case, {how} (mean over {cases})",
             total.as_secs_f64() * 1e3 / cases as f64

@@ -78,7 +78,14 @@ fn congruence(phi: &DMatrix<f64>, x: &DMatrix<f64>) -> DMatrix<f64> {
     let (mut left, mut out) = (DMatrix::zeros(n, n), DMatrix::zeros(n, n));
     kernel::matmul(phi.as_slice(), n, x.as_slice(), n, left.as_mut_slice(), n);
     let phi_t = phi.transpose();
-    kernel::matmul(left.as_slice(), n, phi_t.as_slice(), n, out.as_mut_slice(), n);
+    kernel::matmul(
+        left.as_slice(),
+        n,
+        phi_t.as_slice(),
+        n,
+        out.as_mut_slice(),
+        n,
+    );
     out
 }
 

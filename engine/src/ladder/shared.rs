@@ -32,9 +32,19 @@ struct Inputs {
 }
 
 impl Inputs {
-    fn same(&self, m: &DMatrix<f64>, events: &DMatrix<f64>, nx: usize, grid: &TimeGrid, bits: u32) -> bool {
+    fn same(
+        &self,
+        m: &DMatrix<f64>,
+        events: &DMatrix<f64>,
+        nx: usize,
+        grid: &TimeGrid,
+        bits: u32,
+    ) -> bool {
         let eq = |a: &DMatrix<f64>, b: &DMatrix<f64>| {
-            a.shape() == b.shape() && a.iter().zip(b.iter()).all(|(x, y)| x.to_bits() == y.to_bits())
+            a.shape() == b.shape()
+                && a.iter()
+                    .zip(b.iter())
+                    .all(|(x, y)| x.to_bits() == y.to_bits())
         };
         self.nx == nx
             && self.bits == bits
@@ -114,7 +124,11 @@ fn find_or_insert(
         used: AtomicU64::new(clock),
     });
     table.bytes += bytes;
-    table.buckets.entry(hash).or_default().push(Arc::clone(&entry));
+    table
+        .buckets
+        .entry(hash)
+        .or_default()
+        .push(Arc::clone(&entry));
     entry
 }
 
@@ -152,8 +166,19 @@ pub fn clear_shared_ladders() {
 }
 
 /// 64-bit FNV-1a over every input's bits: picks the bucket; equality decides.
-fn fingerprint(m: &DMatrix<f64>, events: &DMatrix<f64>, nx: usize, grid: &TimeGrid, bits: u32) -> u64 {
-    let head = [nx as u64, u64::from(bits), u64::from(grid.levels), grid.quantum.to_bits()];
+fn fingerprint(
+    m: &DMatrix<f64>,
+    events: &DMatrix<f64>,
+    nx: usize,
+    grid: &TimeGrid,
+    bits: u32,
+) -> u64 {
+    let head = [
+        nx as u64,
+        u64::from(bits),
+        u64::from(grid.levels),
+        grid.quantum.to_bits(),
+    ];
     let words = head
         .into_iter()
         .chain([m.nrows() as u64, events.nrows() as u64])

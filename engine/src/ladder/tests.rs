@@ -119,6 +119,9 @@ fn shared_ladders_are_found_only_for_bit_equal_inputs() {
     assert!(!Arc::ptr_eq(&first, &other));
     let fresh = Ladder::build(&m, 5, &grid, &events, 4);
     for (a, b) in fresh.steps.iter().zip(&first.steps) {
-        assert!(a.iter().zip(b.iter()).all(|(x, y)| x.to_bits() == y.to_bits()));
+        assert!(a
+            .iter()
+            .zip(b.iter())
+            .all(|(x, y)| x.to_bits() == y.to_bits()));
     }
 }

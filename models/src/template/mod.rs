@@ -268,7 +268,9 @@ mod unit_tests {
     /// as dimensionless: the list must cover every probe a template makes.
     #[test]
     fn every_probe_unit_is_listed() {
-        let converter = crate::demo_design::demo_design().build().expect("demo builds");
+        let converter = crate::demo_design::demo_design()
+            .build()
+            .expect("demo builds");
         assert!(!converter.probes.is_empty());
         for p in &converter.probes {
             assert!(PROBE_UNITS.contains(&p.unit), "{}: {:?}", p.name, p.unit);
