@@ -123,12 +123,46 @@ pub(crate) fn rungs_by_squaring(m: &DMatrix<f64>, grid: &TimeGrid) -> Vec<DMatri
                 crate::kernel::matmul(b, n, b, n, square.as_mut_slice(), n);
                 square
             }
-            _ => (m * h).exp(),
+            _ => short_exp(&(m * h)),
         };
         rungs.push(next);
     }
     rungs
 }
+
+/// exp(A) for a rung within θ₁₃: where ‖A‖₁ ≤ [`TAYLOR_NORM`] by the Taylor polynomial
+/// of the least degree K whose remainder bound ‖A‖^{K+1}/(K+1)!·e^{‖A‖} is below unit
+/// round-off, in Horner form (K − 1 products: I + A(I + A/2(… (I + A/K)))); else the
+/// Padé exponential. On so small a norm no term cancels another, and the result near I
+/// rounds as any method's does (Moler & Van Loan, "Nineteen dubious ways to compute
+/// the exponential of a matrix, twenty-five years later", SIAM Review 45 (2003),
+/// method 1, whose trouble is large norms only). A grid with a tick far below the
+/// fastest time constant (the shooting trial grid) has a score of such rungs.
+fn short_exp(a: &DMatrix<f64>) -> DMatrix<f64> {
+    let norm = a.column_iter().map(|c| c.abs().sum()).fold(0.0, f64::max);
+    if !(norm <= TAYLOR_NORM) {
+        return a.exp();
+    }
+    let unit = f64::EPSILON / 2.0;
+    let (mut degree, mut remainder) = (1u32, norm * norm / 2.0);
+    while remainder * norm.exp() > unit {
+        degree += 1;
+        remainder *= norm / f64::from(degree + 1);
+    }
+    let n = a.nrows();
+    let identity = DMatrix::<f64>::identity(n, n);
+    let mut p = &identity + a / f64::from(degree);
+    let mut ap = DMatrix::<f64>::zeros(n, n);
+    for i in (1..degree).rev() {
+        crate::kernel::matmul(a.as_slice(), n, p.as_slice(), n, ap.as_mut_slice(), n);
+        p = &identity + &ap / f64::from(i);
+    }
+    p
+}
+
+/// Largest ‖A‖₁ evaluated by its Taylor polynomial (degree 10 at most; above it the
+/// Padé exponential is as cheap).
+const TAYLOR_NORM: f64 = 0.125;
 
 /// θ₁₃ of Higham (2005), Table 2.3: the largest ‖A‖₁ at which the [13/13] Padé
 /// approximant of exp(A) is accurate to unit round-off without scaling.
