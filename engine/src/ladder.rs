@@ -140,7 +140,7 @@ pub(crate) fn rungs_by_squaring(m: &DMatrix<f64>, grid: &TimeGrid) -> Vec<DMatri
 /// fastest time constant (the shooting trial grid) has a score of such rungs.
 fn short_exp(a: &DMatrix<f64>) -> DMatrix<f64> {
     let norm = a.column_iter().map(|c| c.abs().sum()).fold(0.0, f64::max);
-    if !(norm <= TAYLOR_NORM) {
+    if norm.is_nan() || norm > TAYLOR_NORM {
         return a.exp();
     }
     let unit = f64::EPSILON / 2.0;
