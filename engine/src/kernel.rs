@@ -70,6 +70,15 @@ fn accumulate_any(a: &[f64], lda: usize, x: &[f64], y: &mut [f64]) {
     }
 }
 
+/// out = A·B, column by column with [`matvec_rows`]: A column-major with leading
+/// dimension `lda` (its first `out_rows` rows), B column-major with as many rows `k` as
+/// A has columns, out column-major `out_rows` × (B's columns).
+pub(crate) fn matmul(a: &[f64], lda: usize, b: &[f64], k: usize, out: &mut [f64], out_rows: usize) {
+    for (column, x) in out.chunks_exact_mut(out_rows).zip(b.chunks_exact(k)) {
+        matvec_rows(a, lda, x, column);
+    }
+}
+
 /// s += z·zᵀ for s column-major, z.len() × z.len() (four lanes wide with AVX, as
 /// [`accumulate`]).
 #[inline]

@@ -2,8 +2,8 @@
 //!
 //! Time is an integer count of ticks of one quantum q, chosen no longer than the event
 //! resolution. For each topology the propagators Φ_p = exp(M · 2^p q), p = 0..=P, are
-//! computed once (scaling-and-squaring Padé, Higham 2005, as implemented by nalgebra),
-//! and from their products a table of steps of d·R^j ticks (R = 2^bits, 0 < d < R).
+//! computed once (Φ_0 by scaling-and-squaring Padé, Higham 2005, as implemented by
+//! nalgebra, the longer rungs by squaring, [`rungs_by_squaring`]), and from their products a table of steps of d·R^j ticks (R = 2^bits, 0 < d < R).
 //! Any step of n ticks is then the product of the entries of n's nonzero digits:
 //! stepping and event bisection cost matrix–vector products only, never a new
 //! exponential (the bit-walk of the "published methods" note — bisection on the
@@ -12,13 +12,23 @@
 //! Quadratic meters (energies) use Van Loan's block exponential: with
 //! C = [[-Mᵀ, Q], [0, M]] h, exp(C) = [[·, G], [0, F]] and ∫₀ʰ Φ(s)ᵀ Q Φ(s) ds = Fᵀ G
 //! (Van Loan, "Computing integrals involving the matrix exponential", IEEE TAC 1978,
-//! Theorem 1). Stepping from z over h adds zᵀ W z: exact, whatever the waveform.
+//! Theorem 1). Stepping from z over h adds zᵀ W z: exact, whatever the waveform. The
+//! integrals are formed only when a meter is read, from the sums of the steps taken
+//! (`gramian.rs`).
+//!
+//! A topology's table depends only on M, the event rows, the grid and the radix, so
+//! tables are shared between runs and cases whose inputs are bit-equal (`shared.rs`).
 
 use nalgebra::{DMatrix, RowDVector};
 
 use crate::error::EngineError;
 
+mod gramian;
+mod shared;
 mod table;
+pub(crate) use gramian::step_gramian;
+pub use shared::clear_shared_ladders;
+pub(crate) use shared::shared_ladder;
 pub use table::Ladder;
 
 /// Integer time: ticks of [`TimeGrid::quantum`].
@@ -86,43 +96,106 @@ impl TimeGrid {
 /// samples per period is common practice for resolving a sinusoid's extremes.
 const STEPS_PER_OSCILLATION: f64 = 8.0;
 
-/// W_p for every rung. Van Loan's block contains exp(−Mᵀh), which overflows once a
-/// stiff topology has |λ|·h beyond ~700 (a 1 MΩ off-state across 20 µH on a
-/// microsecond rung), so it is used only on a step short enough that ‖M‖₁·h ≤ 1; longer
-/// steps come from splitting the integral at the midpoint,
-/// W(2h) = W(h) + Φ(h)ᵀ W(h) Φ(h), which only multiplies by the propagators.
-pub(crate) fn meter_rungs(
-    m: &DMatrix<f64>,
-    q: &DMatrix<f64>,
-    phi: &[DMatrix<f64>],
-    grid: &TimeGrid,
-) -> Vec<DMatrix<f64>> {
+/// Φ_p = exp(M·2^p q) for p = 0..=P: by the Padé exponential while ‖M·2^p q‖₁ ≤ θ₁₃,
+/// then each rung as the square of the one below (Φ_{p+1} = Φ_p²), so a topology costs
+/// a few unscaled exponentials and one product per longer rung instead of P + 1
+/// scaled exponentials with their own squarings.
+///
+/// Why not square from the shortest rung: a rung close to the identity holds a slow
+/// mode's decay e^{−λh} ≈ 1 − λh only to u/(λh) relative, and each squaring doubles that
+/// error (E_{p+1} ≈ Φ_p E_p + E_p Φ_p, Higham, *Functions of Matrices*, SIAM 2008,
+/// §10.3), so k extra squarings cost a factor 2^k. Scaling and squaring (Higham, "The
+/// scaling and squaring method for the matrix exponential revisited", SIAM J. Matrix
+/// Anal. Appl. 26 (2005), as nalgebra implements it) evaluates a rung past θ₁₃ by
+/// Padé on M·h/2^s with ‖M·h/2^s‖₁ ≤ θ₁₃ and s squarings: starting the squaring at
+/// the last rung within θ₁₃ is the same sequence of squarings, so the rungs carry the
+/// error of the exponential itself, no more. `rungs_match_the_exponential` checks it.
+pub(crate) fn rungs_by_squaring(m: &DMatrix<f64>, grid: &TimeGrid) -> Vec<DMatrix<f64>> {
     let norm = m.column_iter().map(|c| c.abs().sum()).fold(0.0, f64::max);
-    let halvings = (norm * grid.quantum).log2().ceil().clamp(0.0, 64.0) as i32;
-    let h0 = grid.quantum / 2f64.powi(halvings);
-    let mut w = van_loan(m, q, h0);
-    let mut f = (m * h0).exp();
-    for _ in 0..halvings {
-        w = &w + f.transpose() * &w * &f;
-        f = &f * &f;
-    }
-    let mut rungs = Vec::with_capacity(phi.len());
-    rungs.push(w);
-    for p in 1..phi.len() {
-        let prev = &rungs[p - 1];
-        let next = prev + phi[p - 1].transpose() * prev * &phi[p - 1];
+    let mut rungs: Vec<DMatrix<f64>> = Vec::with_capacity(grid.levels as usize + 1);
+    for p in 0..=grid.levels {
+        let h = grid.rung(p);
+        let next = match rungs.last() {
+            Some(below) if norm * h > THETA_13 => {
+                let n = below.nrows();
+                let mut square = DMatrix::zeros(n, n);
+                let b = below.as_slice();
+                crate::kernel::matmul(b, n, b, n, square.as_mut_slice(), n);
+                square
+            }
+            _ => short_exp(&(m * h)),
+        };
         rungs.push(next);
     }
     rungs
 }
 
-/// ∫₀ʰ exp(Mᵀs) Q exp(Ms) ds by Van Loan's block exponential.
-fn van_loan(m: &DMatrix<f64>, q: &DMatrix<f64>, h: f64) -> DMatrix<f64> {
-    let n = m.nrows();
+/// exp(A) for a rung within θ₁₃: where ‖A‖₁ ≤ [`TAYLOR_NORM`] by the Taylor polynomial
+/// of the least degree K whose remainder bound ‖A‖^{K+1}/(K+1)!·e^{‖A‖} is below unit
+/// round-off, in Horner form (K − 1 products: I + A(I + A/2(… (I + A/K)))); else the
+/// Padé exponential. On so small a norm no term cancels another, and the result near I
+/// rounds as any method's does (Moler & Van Loan, "Nineteen dubious ways to compute
+/// the exponential of a matrix, twenty-five years later", SIAM Review 45 (2003),
+/// method 1, whose trouble is large norms only). A grid with a tick far below the
+/// fastest time constant (the shooting trial grid) has a score of such rungs.
+fn short_exp(a: &DMatrix<f64>) -> DMatrix<f64> {
+    let norm = a.column_iter().map(|c| c.abs().sum()).fold(0.0, f64::max);
+    if norm.is_nan() || norm > TAYLOR_NORM {
+        return a.exp();
+    }
+    let unit = f64::EPSILON / 2.0;
+    let (mut degree, mut remainder) = (1u32, norm * norm / 2.0);
+    while remainder * norm.exp() > unit {
+        degree += 1;
+        remainder *= norm / f64::from(degree + 1);
+    }
+    let n = a.nrows();
+    let identity = DMatrix::<f64>::identity(n, n);
+    let mut p = &identity + a / f64::from(degree);
+    let mut ap = DMatrix::<f64>::zeros(n, n);
+    for i in (1..degree).rev() {
+        crate::kernel::matmul(a.as_slice(), n, p.as_slice(), n, ap.as_mut_slice(), n);
+        p = &identity + &ap / f64::from(i);
+    }
+    p
+}
+
+/// Largest ‖A‖₁ evaluated by its Taylor polynomial (degree 10 at most; above it the
+/// Padé exponential is as cheap).
+const TAYLOR_NORM: f64 = 0.125;
+
+/// θ₁₃ of Higham (2005), Table 2.3: the largest ‖A‖₁ at which the [13/13] Padé
+/// approximant of exp(A) is accurate to unit round-off without scaling.
+const THETA_13: f64 = 5.371_920_351_148_152;
+
+/// ∫₀ʰ Φ(s)·X·Φ(s)ᵀ ds for h one tick, Φ(s) = exp(M s), by Van Loan's block
+/// exponential. That block contains exp(−M h), which overflows once a stiff topology
+/// has |λ|·h beyond ~700, so it is used only on a step short enough that ‖M‖₁·h ≤ 1;
+/// the tick comes from doubling, L(2h, X) = L(h, X + Φ(h)·X·Φ(h)ᵀ), which only
+/// multiplies by propagators.
+pub(crate) fn tick_gramian(m: &DMatrix<f64>, x: &DMatrix<f64>, grid: &TimeGrid) -> DMatrix<f64> {
+    let norm = m.column_iter().map(|c| c.abs().sum()).fold(0.0, f64::max);
+    let halvings = (norm * grid.quantum).log2().ceil().clamp(0.0, 64.0) as i32;
+    let h0 = grid.quantum / 2f64.powi(halvings);
+    let mut phis = vec![(m * h0).exp()];
+    for i in 1..halvings as usize {
+        let below = &phis[i - 1];
+        phis.push(below * below);
+    }
+    let mut acc = x.clone();
+    for phi in phis.iter().take(halvings as usize).rev() {
+        acc = &acc + phi * &acc * phi.transpose();
+    }
+    van_loan(&m.transpose(), &acc, h0)
+}
+
+/// ∫₀ʰ exp(Aᵀs)·Q·exp(A s) ds by Van Loan's block exponential.
+fn van_loan(a: &DMatrix<f64>, q: &DMatrix<f64>, h: f64) -> DMatrix<f64> {
+    let n = a.nrows();
     let mut c = DMatrix::<f64>::zeros(2 * n, 2 * n);
-    c.view_mut((0, 0), (n, n)).copy_from(&(-m.transpose() * h));
+    c.view_mut((0, 0), (n, n)).copy_from(&(-a.transpose() * h));
     c.view_mut((0, n), (n, n)).copy_from(&(q * h));
-    c.view_mut((n, n), (n, n)).copy_from(&(m * h));
+    c.view_mut((n, n), (n, n)).copy_from(&(a * h));
     let e = c.exp();
     let f = e.view((n, n), (n, n)).into_owned();
     let g = e.view((0, n), (n, n)).into_owned();
@@ -172,3 +245,6 @@ pub fn quadratic_form(
     }
     q
 }
+
+#[cfg(test)]
+mod tests;

@@ -56,7 +56,7 @@ pub use event::{
     Direction, EventFn, EventSlot, NullSink, Sink, StepOutcome, Stop, TraceKind, TracePoint,
     Turning, MAX_ARMED,
 };
-pub use ladder::{Tick, TimeGrid};
+pub use ladder::{clear_shared_ladders, Tick, TimeGrid};
 pub use layout::{Layout, StateKind};
 pub use nodal::Nodal;
 pub use sim::{EventStamp, SimOptions, Simulation, StormGuard};

@@ -10,7 +10,7 @@ use crate::check::check_structure;
 use crate::circuit::{Circuit, ElementKind, Signal};
 use crate::error::EngineError;
 use crate::kernel;
-use crate::ladder::{quadratic_form, Ladder, TimeGrid};
+use crate::ladder::{quadratic_form, shared_ladder, step_gramian, Ladder, TimeGrid};
 use crate::layout::Layout;
 use crate::nodal::Nodal;
 use crate::topology::Topology;
@@ -43,11 +43,11 @@ pub struct TopologyData {
     /// Augmented state matrix: ż = M z.
     pub m: DMatrix<f64>,
     /// Exact propagators with the event rows carried along (an event function one
-    /// step ahead of z is one dot product, which is what bisection mostly needs), and
-    /// meter integrals: built when a step first needs them ([`TopologyData::ladder`]),
-    /// so a topology only passed through while the diodes settle costs a nodal
-    /// analysis, never exponentials.
-    ladder: OnceLock<Ladder>,
+    /// step ahead of z is one dot product, which is what bisection mostly needs):
+    /// found or built when a step first needs them ([`TopologyData::ladder`]), so a
+    /// topology only passed through while the diodes settle costs a nodal analysis,
+    /// never exponentials, and shared with every run whose inputs are bit-equal.
+    ladder: OnceLock<Arc<Ladder>>,
     /// What the ladder is built from.
     recipe: LadderRecipe,
     /// Rows over z, stored as columns so each is contiguous: diode switching
@@ -66,7 +66,7 @@ struct LadderRecipe {
     grid: TimeGrid,
     /// Event rows (diode functions, then event signals) over z.
     events: DMatrix<f64>,
-    /// Quadratic forms of the meters.
+    /// Quadratic forms of the meters (used only when a meter is read).
     forms: Vec<DMatrix<f64>>,
     bits: u32,
 }
@@ -76,8 +76,19 @@ impl TopologyData {
     pub(crate) fn ladder(&self) -> &Ladder {
         self.ladder.get_or_init(|| {
             let r = &self.recipe;
-            Ladder::build(&self.m, r.nx, &r.grid, &r.events, &r.forms, r.bits)
+            shared_ladder(&self.m, r.nx, &r.grid, &r.events, r.bits)
         })
+    }
+
+    /// Each meter's integral over the steps whose Σ z·zᵀ per table entry are `sums`
+    /// (nz × nz blocks in entry order), added to `totals`: tr(Q_k·L) with L the
+    /// meter-independent integral of [`step_gramian`].
+    pub(crate) fn add_meters(&self, sums: &[f64], totals: &mut [f64]) {
+        let r = &self.recipe;
+        let l = step_gramian(self.ladder(), &self.m, &r.grid, sums);
+        for (total, q) in totals.iter_mut().zip(&r.forms) {
+            *total += kernel::dot(q.as_slice(), l.as_slice());
+        }
     }
 
     /// Rows of a ladder entry's output (see [`Ladder::rows`]), known without building.
@@ -121,9 +132,11 @@ impl TopologyData {
     }
 }
 
-/// Bits per digit of the step table when the run has no meters: radix 16 halves the
-/// products per step of binary rungs for 3.5 times their memory (about 0.25 MB per
-/// topology of 16 states; measured in the engine benches).
+/// Bits per digit of the step table: radix 16 halves the products per step of binary
+/// rungs for 3.5 times their memory (about 0.25 MB per topology of 16 states; measured
+/// in the engine benches). Runs with meters use it too: a meter costs one z·zᵀ sum per
+/// entry used (`sim/meters.rs`), and on binary rungs a start-up case of the corners
+/// study took 63 steps per period against 40 on this table (callgrind, one case).
 const RADIX_BITS: u32 = 4;
 
 /// Hashes a topology mask with one multiplication: the keys are our own bit masks, not
@@ -272,9 +285,7 @@ impl System {
         }
         let n_events = self.diode_count() + obs.event_signals.len();
         let events = rows.rows(0, n_events).into_owned();
-        // Meters multiply the memory of every entry, so runs that have them step on
-        // binary rungs only.
-        let bits = if forms.is_empty() { RADIX_BITS } else { 1 };
+        let bits = RADIX_BITS;
         let rows_t = rows.transpose();
         Ok(TopologyData {
             topology: t,

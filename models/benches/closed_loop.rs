@@ -7,8 +7,11 @@
 //!
 //! A second figure is the cost of one start-up case from cold: build the converter and
 //! controller, then 5 ms (the corners study's start-up window), every topology built
-//! on the way (no meters, no output). It is what each case of a study pays before its
-//! measurements.
+//! on the way (no meters, no output; the process-wide table of propagator ladders
+//! emptied before each case). It is what each case of a study pays before its
+//! measurements. A third is the same case with the table warm: what a case pays whose
+//! topologies an earlier case of the same circuit built (a corners study's cases that
+//! differ in line voltage only, a second run of one circuit).
 //!
 //! `cargo bench -p stepflux-models --bench closed_loop`
 
@@ -16,7 +19,7 @@ use std::hint::black_box;
 use std::time::{Duration, Instant};
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
-use stepflux_engine::NullSink;
+use stepflux_engine::{clear_shared_ladders, NullSink};
 use stepflux_models::controller::modulator::ClosedLoop;
 use stepflux_models::cycles::{CycleRecord, CycleSink};
 use stepflux_models::demo_design::{demo_controller, demo_design};
@@ -75,6 +78,13 @@ fn bench(c: &mut Criterion) {
 const START_UP: f64 = 5e-3;
 
 fn start_up(c: &mut Criterion) {
+    for cold in [true, false] {
+        start_up_case(c, cold);
+    }
+}
+
+/// One 5 ms start-up case per iteration, the ladder table emptied first when `cold`.
+fn start_up_case(c: &mut Criterion, cold: bool) {
     let (design, spec) = (demo_design(), demo_controller());
     let options = ClosedLoop::default_options(&spec);
     let mut group = c.benchmark_group("closed_loop_demo");
@@ -82,16 +92,25 @@ fn start_up(c: &mut Criterion) {
     group.warm_up_time(Duration::from_secs(1));
     group.measurement_time(Duration::from_secs(5));
     let (mut total, mut cases) = (Duration::ZERO, 0u64);
-    group.bench_function("start_up_5ms", |b| {
+    let name = if cold {
+        "start_up_5ms"
+    } else {
+        "start_up_5ms_table_warm"
+    };
+    group.bench_function(name, |b| {
         b.iter_custom(|iters| {
-            let start = Instant::now();
+            let mut elapsed = Duration::ZERO;
             for _ in 0..iters {
+                if cold {
+                    clear_shared_ladders();
+                }
+                let start = Instant::now();
                 let mut cl = ClosedLoop::new(&design, &spec, &[], options).expect("demo builds");
                 cl.advance_to(START_UP, &mut NullSink, &mut NoCycles)
                     .expect("demo starts");
                 black_box(cl.run.probe("out.v"));
+                elapsed += start.elapsed();
             }
-            let elapsed = start.elapsed();
             total += elapsed;
             cases += iters;
             elapsed
@@ -99,8 +118,13 @@ fn start_up(c: &mut Criterion) {
     });
     group.finish();
     if cases > 0 {
+        let how = if cold {
+            "from cold"
+        } else {
+            "ladder table warm"
+        };
         eprintln!(
-            "closed_loop_demo: {:.2} ms per 5 ms start-up case from cold (mean over {cases})",
+            "closed_loop_demo: {:.2} ms per 5 ms start-up case, {how} (mean over {cases})",
             total.as_secs_f64() * 1e3 / cases as f64
         );
     }

@@ -10,7 +10,7 @@
 
 use nalgebra::DMatrix;
 
-use super::{meter_rungs, oscillation_limit, Tick, TimeGrid};
+use super::{oscillation_limit, rungs_by_squaring, Tick, TimeGrid};
 use crate::kernel;
 
 /// The cached propagators of one topology (see the module documentation).
@@ -31,9 +31,6 @@ pub struct Ladder {
     pub steps: Vec<DMatrix<f64>>,
     /// Highest binary rung (2^top ticks) used for a plain step in this topology.
     pub top: u32,
-    /// W per meter and entry (Van Loan integral over that entry's step), over z in its
-    /// own order.
-    pub meters: Vec<Vec<DMatrix<f64>>>,
     /// Whether every entry is finite (a propagator overflows on a topology with a fast
     /// unstable mode and a long rung).
     pub finite: bool,
@@ -41,40 +38,49 @@ pub struct Ladder {
 
 impl Ladder {
     /// Builds the ladder of state matrix `m` (augmented, nz × nz) whose first `nx`
-    /// states are the dynamic ones, with event rows `events` (n_events × nz), quadratic
-    /// forms `q` for meters and `bits` per digit.
+    /// states are the dynamic ones, with event rows `events` (n_events × nz) and `bits`
+    /// per digit.
     pub fn build(
         m: &DMatrix<f64>,
         nx: usize,
         grid: &TimeGrid,
         events: &DMatrix<f64>,
-        q: &[DMatrix<f64>],
         bits: u32,
     ) -> Ladder {
-        let rungs: Vec<DMatrix<f64>> = (0..=grid.levels)
-            .map(|p| (m * grid.rung(p)).exp())
-            .collect();
-        let rung_meters: Vec<Vec<DMatrix<f64>>> = q
-            .iter()
-            .map(|qm| meter_rungs(m, qm, &rungs, grid))
-            .collect();
+        let rungs = rungs_by_squaring(m, grid);
         let (nz, n_events) = (m.nrows(), events.nrows());
         let rows = (nz + n_events).div_ceil(4) * 4;
-        let nu = nz - nx;
-        let mut steps = Vec::new();
-        let mut meters = vec![Vec::new(); q.len()];
+        // Every entry is S₀·Φ with S₀ = [I_x; E; I_u] (the layout of Φ = I), and within
+        // one digit S₀·Φ(d·R^j) = (S₀·Φ((d − 1)·R^j))·Φ(R^j): one product of the
+        // stacked rows per entry, the event rows carried along.
+        let mut identity = DMatrix::<f64>::zeros(rows, nz);
+        for c in 0..nx {
+            identity[(c, c)] = 1.0;
+        }
+        identity.rows_mut(nx, n_events).copy_from(events);
+        for c in nx..nz {
+            identity[(n_events + c, c)] = 1.0;
+        }
+        let mut steps: Vec<DMatrix<f64>> = Vec::new();
         for ticks in step_lengths(bits, grid.levels) {
-            let (phi, w) = compose(ticks, &rungs, &rung_meters);
+            let lowest = ticks.trailing_zeros();
+            let unit = lowest - lowest % bits;
+            let rung = &rungs[unit as usize];
+            let before = if ticks == 1 << unit {
+                &identity
+            } else {
+                steps.last().expect("the entry one digit value shorter")
+            };
             let mut stacked = DMatrix::<f64>::zeros(rows, nz);
-            stacked.rows_mut(0, nx).copy_from(&phi.rows(0, nx));
-            stacked.rows_mut(nx, n_events).copy_from(&(events * &phi));
-            stacked
-                .rows_mut(nx + n_events, nu)
-                .copy_from(&phi.rows(nx, nu));
+            kernel::matmul(
+                before.as_slice(),
+                rows,
+                rung.as_slice(),
+                nz,
+                stacked.as_mut_slice(),
+                rows,
+            );
             steps.push(stacked);
-            for (acc, wk) in meters.iter_mut().zip(w) {
-                acc.push(wk);
-            }
         }
         let top = oscillation_limit(m, nx, grid);
         let finite = steps.iter().all(|p| p.iter().all(|v| v.is_finite()));
@@ -87,8 +93,15 @@ impl Ladder {
             rows,
             steps,
             top,
-            meters,
         }
+    }
+
+    /// Φ of entry `entry` in z's own order (nz × nz), newly allocated; for work done
+    /// outside the stepping loop (meters when they are read).
+    pub fn phi(&self, entry: usize) -> DMatrix<f64> {
+        let mut phi = DMatrix::zeros(self.nz, self.nz);
+        self.phi_into(&self.steps[entry], &mut phi);
+        phi
     }
 
     /// Index of entry (j, d).
@@ -155,6 +168,12 @@ impl Ladder {
     }
 }
 
+/// Entries in a table of `bits` per digit on `levels` (memory is counted from it
+/// before a table is built).
+pub(super) fn step_count(bits: u32, levels: u32) -> usize {
+    step_lengths(bits, levels).len()
+}
+
 /// Tick counts of the table's entries in index order: d·R^j for j = 0, 1, … and
 /// 0 < d < R, up to 2^levels.
 fn step_lengths(bits: u32, levels: u32) -> Vec<Tick> {
@@ -171,26 +190,4 @@ fn step_lengths(bits: u32, levels: u32) -> Vec<Tick> {
         j += 1;
     }
     out
-}
-
-/// Φ and each meter's W for a step of `ticks`, from the binary rungs of its set bits,
-/// shortest first: Φ(a+b) = Φ(b)·Φ(a) and W(a+b) = W(a) + Φ(a)ᵀ·W(b)·Φ(a) (the
-/// integral split at a).
-fn compose(
-    ticks: Tick,
-    rungs: &[DMatrix<f64>],
-    rung_meters: &[Vec<DMatrix<f64>>],
-) -> (DMatrix<f64>, Vec<DMatrix<f64>>) {
-    let mut bits = (0..64).filter(|p| ticks >> p & 1 == 1);
-    let first = bits.next().unwrap_or(0) as usize;
-    let mut phi = rungs[first].clone();
-    let mut w: Vec<DMatrix<f64>> = rung_meters.iter().map(|r| r[first].clone()).collect();
-    for p in bits {
-        let p = p as usize;
-        for (wk, rk) in w.iter_mut().zip(rung_meters) {
-            *wk = &*wk + phi.transpose() * &rk[p] * &phi;
-        }
-        phi = &rungs[p] * &phi;
-    }
-    (phi, w)
 }

@@ -2,8 +2,9 @@
 //! over many steps Σ zᵀ·W_e·z = tr(W_e·Σ z·zᵀ). So each step adds z·zᵀ to a sum kept
 //! per (topology, entry), whatever the number of meters (nz(nz+1)/2 products instead
 //! of 2·nz² per meter), and the meters are formed from the sums when they are read,
-//! which is rare. A topology's sums hold its matrices alive; past `limit` topologies the
-//! least recently used one's sums are folded into the totals and dropped.
+//! which is rare (no meter integral is computed before: `ladder/gramian.rs`). A
+//! topology's sums hold its matrices alive; past `limit` topologies the least recently
+//! used one's sums are folded into the totals and dropped.
 
 use std::collections::HashMap;
 use std::sync::Arc;
@@ -79,7 +80,7 @@ impl MeterSums {
                 .min_by_key(|&k| self.sums[k].used)
                 .unwrap_or(0);
             let gone = self.sums.swap_remove(oldest);
-            fold(&gone, self.nz, &mut self.folded);
+            fold(&gone, &mut self.folded);
             self.index.remove(&gone.topo.topology.0);
             if let Some(moved) = self.sums.get(oldest) {
                 self.index.insert(moved.topo.topology.0, oldest);
@@ -100,19 +101,13 @@ impl MeterSums {
     pub(super) fn totals(&self) -> Vec<f64> {
         let mut out = self.folded.clone();
         for s in &self.sums {
-            fold(s, self.nz, &mut out);
+            fold(s, &mut out);
         }
         out
     }
 }
 
-/// Adds tr(W·S) = Σ W_ij·S_ij (both symmetric) of every entry of `s` to each meter's
-/// total.
-fn fold(s: &Sums, nz: usize, out: &mut [f64]) {
-    for (total, w) in out.iter_mut().zip(&s.topo.ladder().meters) {
-        for (entry, we) in w.iter().enumerate() {
-            let block = &s.sums[entry * nz * nz..(entry + 1) * nz * nz];
-            *total += kernel::dot(block, we.as_slice());
-        }
-    }
+/// Adds every meter's integral over the steps summed in `s` to `out`.
+fn fold(s: &Sums, out: &mut [f64]) {
+    s.topo.add_meters(&s.sums, out);
 }

@@ -155,15 +155,8 @@ impl Spans {
 }
 
 /// out = a·b with a of leading dimension `lda` (its first out.nrows() rows), b square
-/// with as many rows as a has columns; column by column.
+/// with as many rows as a has columns.
 fn multiply(a: &DMatrix<f64>, lda: usize, b: &DMatrix<f64>, out: &mut DMatrix<f64>) {
     let (n, nz) = (out.nrows(), b.nrows());
-    for (c, column) in out.as_mut_slice().chunks_exact_mut(n).enumerate() {
-        kernel::matvec_rows(
-            a.as_slice(),
-            lda,
-            &b.as_slice()[c * nz..(c + 1) * nz],
-            column,
-        );
-    }
+    kernel::matmul(a.as_slice(), lda, b.as_slice(), nz, out.as_mut_slice(), n);
 }

@@ -204,28 +204,26 @@ impl Plan {
         self.parts.watch_switch(bit);
     }
 
-    fn parts(&mut self) -> Vec<&mut dyn Measurement> {
-        let mut v: Vec<&mut dyn Measurement> = Vec::new();
+    /// Calls `f` on every measurement in turn (a trace point reaches each; no list is
+    /// gathered, so feeding a point allocates nothing).
+    fn each_part(&mut self, mut f: impl FnMut(&mut dyn Measurement)) {
         if let Some(s) = self.startup.as_mut() {
-            v.push(s);
+            f(s);
         }
         for s in &mut self.steps {
-            v.push(s);
+            f(s);
         }
         for r in &mut self.ripple {
-            v.push(r);
+            f(r);
         }
-        v.push(&mut self.reset);
-        v.push(&mut self.coss);
-        v
+        f(&mut self.reset);
+        f(&mut self.coss);
     }
 
     /// One point of the exact solution; measurements are fed these, never output
     /// samples, so no figure depends on the sample interval.
     pub fn trace(&mut self, point: &TracePoint<'_>) {
-        for m in self.parts() {
-            m.trace(point);
-        }
+        self.each_part(|m| m.trace(point));
         if self.parts.any() {
             self.parts.trace(point);
         }
@@ -257,9 +255,7 @@ impl Plan {
 
     /// One cycle record.
     pub fn cycle(&mut self, record: &CycleRecord) {
-        for m in self.parts() {
-            m.cycle(record);
-        }
+        self.each_part(|m| m.cycle(record));
         self.parts.cycle(record);
     }
 
@@ -284,9 +280,7 @@ impl Plan {
                 out.extend(report.figures(self.bias));
             }
         }
-        for m in self.parts() {
-            out.extend(m.figures());
-        }
+        self.each_part(|m| out.extend(m.figures()));
         out
     }
 }
