@@ -10,12 +10,10 @@ use anyhow::Result;
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
+use super::frequency_panel::{legend, Chart, Models, Plotted, AVERAGED, INJECTED, SAMPLED};
 use crate::check::eng;
 use crate::loop_cmd::{Curves, InjectedCurves, LoopReport, MarginReport};
 
-const SAMPLED: RGBColor = RGBColor(0, 110, 120);
-const AVERAGED: RGBColor = RGBColor(190, 80, 20);
-const INJECTED: RGBColor = RGBColor(90, 60, 160);
 const MARK: RGBColor = RGBColor(120, 120, 120);
 
 type Panel<'a> = DrawingArea<SVGBackend<'a>, Shift>;
@@ -23,7 +21,7 @@ type Panel<'a> = DrawingArea<SVGBackend<'a>, Shift>;
 /// Writes the SVG.
 pub fn plot(r: &LoopReport, out: &Path) -> Result<()> {
     let root = SVGBackend::new(out, (900, 700)).into_drawing_area();
-    let draw = || -> std::result::Result<(), Box<dyn std::error::Error>> {
+    let draw = || -> Plotted {
         root.fill(&WHITE)?;
         let root = root.titled(
             &format!(
@@ -61,27 +59,15 @@ fn injected_values(c: &InjectedCurves, w: Which) -> &[f64] {
     }
 }
 
-fn panel(
-    area: &Panel,
-    r: &LoopReport,
-    w: Which,
-) -> std::result::Result<(), Box<dyn std::error::Error>> {
+fn panel(area: &Panel, r: &LoopReport, w: Which) -> Plotted {
     let f = &r.frequency_hz;
     let (f0, f1) = (f[0], f[f.len() - 1]);
-    let all: Vec<f64> = r
-        .sampled
-        .iter()
-        .chain(r.averaged.as_ref())
-        .flat_map(|c| values(c, w).iter().copied())
-        .chain(
-            r.injected
-                .iter()
-                .flat_map(|c| injected_values(c, w).iter().copied()),
-        )
-        .filter(|v| v.is_finite())
-        .collect();
-    let lo = all.iter().copied().fold(f64::INFINITY, f64::min);
-    let hi = all.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let models = Models {
+        sampled: r.sampled.as_ref().map(|c| values(c, w)),
+        injected: r.injected.as_ref().map(|c| injected_values(c, w)),
+        averaged: r.averaged.as_ref().map(|c| values(c, w)),
+    };
+    let (lo, hi) = models.range();
     let (lo, hi) = match w {
         Which::Magnitude => (lo.min(-10.0) - 5.0, hi.max(10.0) + 5.0),
         Which::Phase => (lo.min(-180.0) - 15.0, hi + 15.0),
@@ -108,43 +94,7 @@ fn panel(
         [(f0, reference), (f1, reference)],
         MARK.stroke_width(1),
     ))?;
-    let pts = |c: &Curves| -> Vec<(f64, f64)> {
-        f.iter()
-            .copied()
-            .zip(values(c, w).iter().copied())
-            .collect()
-    };
-    if let Some(c) = &r.sampled {
-        chart
-            .draw_series(LineSeries::new(pts(c), SAMPLED.stroke_width(2)))?
-            .label("switching model (sampled-data)")
-            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], SAMPLED.stroke_width(2)));
-    }
-    if let Some(c) = &r.injected {
-        let at: Vec<(f64, f64)> = f
-            .iter()
-            .copied()
-            .zip(injected_values(c, w).iter().copied())
-            .collect();
-        chart
-            .draw_series(
-                at.into_iter()
-                    .map(|p| Circle::new(p, 3, INJECTED.stroke_width(1))),
-            )?
-            .label("switching model (injection)")
-            .legend(|(x, y)| Circle::new((x + 10, y), 3, INJECTED.stroke_width(1)));
-    }
-    if let Some(a) = &r.averaged {
-        chart
-            .draw_series(DashedLineSeries::new(
-                pts(a),
-                8,
-                5,
-                AVERAGED.stroke_width(2),
-            ))?
-            .label("averaged")
-            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 8, y)], AVERAGED.stroke_width(2)));
-    }
+    models.draw(&mut chart, f)?;
     if let Some(c) = &r.sampled {
         marks(&mut chart, &c.margins, SAMPLED, (lo, hi), w, 0)?;
     }
@@ -155,24 +105,10 @@ fn panel(
         marks(&mut chart, &a.margins, AVERAGED, (lo, hi), w, 2)?;
     }
     if w == Which::Magnitude {
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.85))
-            .border_style(BLACK)
-            .draw()?;
+        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
     }
     Ok(())
 }
-
-type Chart<'a, 'b> = ChartContext<
-    'a,
-    SVGBackend<'b>,
-    Cartesian2d<
-        plotters::coord::combinators::LogCoord<f64>,
-        plotters::coord::types::RangedCoordf64,
-    >,
->;
 
 /// Thin vertical lines at crossover (with the phase margin written on the phase panel)
 /// and at the phase crossover (with the gain margin on the magnitude panel); each model's
@@ -184,7 +120,7 @@ fn marks(
     (lo, hi): (f64, f64),
     w: Which,
     row: usize,
-) -> std::result::Result<(), Box<dyn std::error::Error>> {
+) -> Plotted {
     let style = colour.mix(0.6).stroke_width(1);
     let text = ("sans-serif", 13).into_font().color(&colour);
     let y_text = lo + (0.08 + 0.07 * row as f64) * (hi - lo);

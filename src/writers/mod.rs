@@ -6,6 +6,7 @@ pub mod atomic;
 pub mod bode_plot;
 pub mod efficiency_plot;
 pub mod figure_json;
+pub mod frequency_panel;
 pub mod hdf5;
 pub mod html;
 pub mod plots;

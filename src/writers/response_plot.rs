@@ -10,15 +10,11 @@ use anyhow::Result;
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
+use super::frequency_panel::{legend, Models, Plotted};
 use crate::check::eng;
 use crate::loop_cmd::{Curves, InjectedCurves, LoopReport};
 
-const SAMPLED: RGBColor = RGBColor(0, 110, 120);
-const AVERAGED: RGBColor = RGBColor(190, 80, 20);
-const INJECTED: RGBColor = RGBColor(90, 60, 160);
-
 type Panel<'a> = DrawingArea<SVGBackend<'a>, Shift>;
-type Plotted = std::result::Result<(), Box<dyn std::error::Error>>;
 
 /// One panel's curve of a model and its axis label.
 struct Trace {
@@ -73,26 +69,17 @@ pub fn plot(r: &LoopReport, out: &Path) -> Result<()> {
     draw().map_err(|e| anyhow::anyhow!("drawing {}: {e}", out.display()))
 }
 
-fn draw_panel(area: &Panel, r: &LoopReport, t: &Trace, legend: bool) -> Plotted {
+fn draw_panel(area: &Panel, r: &LoopReport, t: &Trace, with_legend: bool) -> Plotted {
     let f = &r.frequency_hz;
     let (f0, f1) = (f[0], f[f.len() - 1]);
-    let all: Vec<f64> = r
-        .sampled
-        .iter()
-        .chain(r.averaged.as_ref())
-        .flat_map(|c| (t.of)(c).iter().copied())
-        .chain(
-            r.injected
-                .iter()
-                .flat_map(|c| (t.injected)(c).iter().copied()),
-        )
-        .filter(|v| v.is_finite())
-        .collect();
-    let lo = all.iter().copied().fold(f64::INFINITY, f64::min);
-    let hi = all.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-    let (lo, hi) = match lo.is_finite() && hi.is_finite() {
-        true => (lo - 5.0, hi + 5.0),
-        false => (-1.0, 1.0),
+    let models = Models {
+        sampled: r.sampled.as_ref().map(t.of),
+        injected: r.injected.as_ref().map(t.injected),
+        averaged: r.averaged.as_ref().map(t.of),
+    };
+    let (lo, hi) = match models.range() {
+        (lo, hi) if lo.is_finite() && hi.is_finite() => (lo - 5.0, hi + 5.0),
+        _ => (-1.0, 1.0),
     };
     let mut chart = ChartBuilder::on(area)
         .margin(12)
@@ -105,40 +92,9 @@ fn draw_panel(area: &Panel, r: &LoopReport, t: &Trace, legend: bool) -> Plotted 
         .y_desc(t.label)
         .x_label_formatter(&|v| eng(*v, "Hz"))
         .draw()?;
-    let pts = |c: &Curves| -> Vec<(f64, f64)> {
-        f.iter().copied().zip((t.of)(c).iter().copied()).collect()
-    };
-    if let Some(c) = &r.sampled {
-        chart
-            .draw_series(LineSeries::new(pts(c), SAMPLED.stroke_width(2)))?
-            .label("switching model (sampled-data)")
-            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], SAMPLED.stroke_width(2)));
-    }
-    if let Some(c) = &r.injected {
-        let at = f.iter().copied().zip((t.injected)(c).iter().copied());
-        chart
-            .draw_series(at.map(|p| Circle::new(p, 3, INJECTED.stroke_width(1))))?
-            .label("switching model (injection)")
-            .legend(|(x, y)| Circle::new((x + 10, y), 3, INJECTED.stroke_width(1)));
-    }
-    if let Some(a) = &r.averaged {
-        chart
-            .draw_series(DashedLineSeries::new(
-                pts(a),
-                8,
-                5,
-                AVERAGED.stroke_width(2),
-            ))?
-            .label("averaged")
-            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 8, y)], AVERAGED.stroke_width(2)));
-    }
-    if legend {
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::LowerRight)
-            .background_style(WHITE.mix(0.85))
-            .border_style(BLACK)
-            .draw()?;
+    models.draw(&mut chart, f)?;
+    if with_legend {
+        legend(&mut chart, SeriesLabelPosition::LowerRight)?;
     }
     Ok(())
 }
