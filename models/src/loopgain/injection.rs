@@ -205,20 +205,33 @@ pub fn inject_at(
     };
     let mut x = steady.x.clone();
     let mut cycles = Vec::new();
-    let mut prev: Option<C64> = None;
-    for w in 0..opts.max_windows {
-        let t = window(map, &mut x, w * n, &tone, &mut cycles)?;
-        if let Some(p) = prev {
-            if (t - p).norm() <= opts.settle_tolerance * t.norm() {
-                return Ok((m as f64 * fs / n as f64, t, (w + 1) * n));
-            }
-        }
-        prev = Some(t);
+    match settled(opts, n, |w| window(map, &mut x, w * n, &tone, &mut cycles))? {
+        Some((t, periods)) => Ok((m as f64 * fs / n as f64, t, periods)),
+        None => Err(ModelError::Infeasible(format!(
+            "loop gain by injection at {frequency} Hz: not settled after {} windows of {n} periods",
+            opts.max_windows
+        ))),
     }
-    Err(ModelError::Infeasible(format!(
-        "loop gain by injection at {frequency} Hz: not settled after {} windows of {n} periods",
-        opts.max_windows
-    )))
+}
+
+/// Windows of `n` periods, `estimate(k)` the response read over window k, until two
+/// successive estimates agree within [`InjectionOptions::settle_tolerance`]: the
+/// settled estimate and the periods run, or `None` after
+/// [`InjectionOptions::max_windows`].
+pub(super) fn settled(
+    opts: &InjectionOptions,
+    n: usize,
+    mut estimate: impl FnMut(usize) -> Result<C64, ModelError>,
+) -> Result<Option<(C64, usize)>, ModelError> {
+    let mut prev: Option<C64> = None;
+    for k in 0..opts.max_windows {
+        let h = estimate(k)?;
+        if prev.is_some_and(|p| (h - p).norm() <= opts.settle_tolerance * h.norm()) {
+            return Ok(Some((h, (k + 1) * n)));
+        }
+        prev = Some(h);
+    }
+    Ok(None)
 }
 
 /// v̇_c just before the steady turn-off, V/s: a backward difference over the last

@@ -22,6 +22,7 @@
 
 use nalgebra::Complex;
 
+use super::injection::settled;
 use super::sampler::Sampler;
 use super::{commensurate, Disturbed, InjectionOptions};
 use crate::controller::ControllerSpec;
@@ -85,21 +86,17 @@ fn inject_input_at(
         Disturbed::Line => 1.0,
     };
     sampler.restore(&steady.x)?;
-    let mut prev: Option<C64> = None;
-    for k in 0..opts.max_windows {
+    let estimate = |k: usize| {
         let (u, y) = window(sampler, input, (m, n, k * n), amplitude, r)?;
-        let h = sign * y / u;
-        if let Some(p) = prev {
-            if (h - p).norm() <= opts.settle_tolerance * h.norm() {
-                return Ok((m as f64 * fs / n as f64, h, (k + 1) * n));
-            }
-        }
-        prev = Some(h);
+        Ok(sign * y / u)
+    };
+    match settled(opts, n, estimate)? {
+        Some((h, periods)) => Ok((m as f64 * fs / n as f64, h, periods)),
+        None => Err(ModelError::Infeasible(format!(
+            "{input:?} by injection at {frequency} Hz: not settled after {} windows of {n} periods",
+            opts.max_windows
+        ))),
     }
-    Err(ModelError::Infeasible(format!(
-        "{input:?} by injection at {frequency} Hz: not settled after {} windows of {n} periods",
-        opts.max_windows
-    )))
 }
 
 /// The closed loop's response to `input` at `frequency` by injection, the amplitude
