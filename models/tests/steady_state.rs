@@ -143,17 +143,7 @@ fn closed_loop_alternating_mode_period_is_two_clocks() {
 
 #[test]
 fn rcd_clamp() {
-    let mut d = demo_design();
-    d.reset = ResetScheme::RcdClamp {
-        diode: reset_diode(),
-        resistance: 1e3,
-        capacitor: Capacitor {
-            capacitance: 100e-9,
-            esr: 0.0,
-        },
-        initial_voltage: 0.0,
-    };
-    let s = agree(&mut open(&d, gate(0.35, 0.0)), "rcd clamp");
+    let s = agree(&mut rcd(), "rcd clamp");
     assert!(s.get("clamp.c").unwrap().abs() > 5.0, "clamp not charged");
 }
 
