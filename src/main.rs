@@ -11,6 +11,10 @@ use stepflux::{
     settle_cmd, size_cmd,
 };
 
+/// The allocator of the whole process (see the note at its dependency in `Cargo.toml`).
+#[global_allocator]
+static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
+
 fn main() -> ExitCode {
     restore_broken_pipe_default();
     let cli = Cli::parse_args();
