@@ -2,8 +2,9 @@
 //!
 //! Time is an integer count of ticks of one quantum q, chosen no longer than the event
 //! resolution. For each topology the propagators Φ_p = exp(M · 2^p q), p = 0..=P, are
-//! computed once (Φ_0 by scaling-and-squaring Padé, Higham 2005, as implemented by
-//! nalgebra, the longer rungs by squaring, [`rungs_by_squaring`]), and from their products a table of steps of d·R^j ticks (R = 2^bits, 0 < d < R).
+//! computed once (each from the one below by doubling its difference from the
+//! identity, [`rungs_by_doubling`]), and from their products a table of steps of d·R^j
+//! ticks (R = 2^bits, 0 < d < R), each formed when a step first needs it.
 //! Any step of n ticks is then the product of the entries of n's nonzero digits:
 //! stepping and event bisection cost matrix–vector products only, never a new
 //! exponential (the bit-walk of the "published methods" note — bisection on the
@@ -96,72 +97,139 @@ impl TimeGrid {
 /// samples per period is common practice for resolving a sinusoid's extremes.
 const STEPS_PER_OSCILLATION: f64 = 8.0;
 
-/// Φ_p = exp(M·2^p q) for p = 0..=P: by the Padé exponential while ‖M·2^p q‖₁ ≤ θ₁₃,
-/// then each rung as the square of the one below (Φ_{p+1} = Φ_p²), so a topology costs
-/// a few unscaled exponentials and one product per longer rung instead of P + 1
-/// scaled exponentials with their own squarings.
+/// The rungs Φ_p = exp(M·2^p q), p = 0..=P. Those within θ₁₃ (‖M·h‖₁ ≤ θ₁₃) as their
+/// differences from the identity F_p = Φ_p − I: from one Taylor polynomial on
+/// M·q/2^s with ‖M·q/2^s‖₁ ≤ [`TAYLOR_NORM`] (s halvings below the tick when the
+/// tick itself is longer), each rung from the one below by doubling,
+/// F_{p+1} = 2F_p + F_p² ((I + F)² = I + 2F + F²), one product per rung. Past θ₁₃, each
+/// rung as the square of the one below, Φ_{p+1} = Φ_p², from the Padé exponential of
+/// the last rung within θ₁₃: the very sequence of squarings the scaling-and-squaring
+/// exponential of each longer rung performs (Higham, "The scaling and squaring method
+/// for the matrix exponential revisited", SIAM J. Matrix Anal. Appl. 26 (2005), as
+/// nalgebra implements it).
 ///
-/// Why not square from the shortest rung: a rung close to the identity holds a slow
-/// mode's decay e^{−λh} ≈ 1 − λh only to u/(λh) relative, and each squaring doubles that
-/// error (E_{p+1} ≈ Φ_p E_p + E_p Φ_p, Higham, *Functions of Matrices*, SIAM 2008,
-/// §10.3), so k extra squarings cost a factor 2^k. Scaling and squaring (Higham, "The
-/// scaling and squaring method for the matrix exponential revisited", SIAM J. Matrix
-/// Anal. Appl. 26 (2005), as nalgebra implements it) evaluates a rung past θ₁₃ by
-/// Padé on M·h/2^s with ‖M·h/2^s‖₁ ≤ θ₁₃ and s squarings: starting the squaring at
-/// the last rung within θ₁₃ is the same sequence of squarings, so the rungs carry the
-/// error of the exponential itself, no more. `rungs_match_the_exponential` checks it.
-pub(crate) fn rungs_by_squaring(m: &DMatrix<f64>, grid: &TimeGrid) -> Vec<DMatrix<f64>> {
+/// Why the difference: a rung near the identity holds a slow mode's decay
+/// e^{−λh} ≈ 1 − λh only to u/(λh) relative once I is added, and squaring Φ doubles that
+/// error at each rung (E_{p+1} ≈ Φ_p E_p + E_p Φ_p, Higham, *Functions of Matrices*,
+/// SIAM 2008, §10.3), so squaring from a short rung costs a factor 2^k over k rungs.
+/// F carries λh itself to unit round-off u (the Taylor terms of so small a norm do
+/// not cancel, Moler & Van Loan, "Nineteen dubious ways to compute the exponential of a
+/// matrix, twenty-five years later", SIAM Review 45 (2003), method 1), and 2F + F²
+/// adds about u relative per doubling instead of doubling the error (a fast decaying
+/// mode near θ₁₃ has F ≈ −1, where 2F + F² cancels to an absolute u, as Φ² would
+/// round). A Padé exponential per rung within θ₁₃ (a fine trial grid has a score of
+/// them) cost ten or more products; `rungs_match_the_exponential` and
+/// `rungs_keep_a_slow_modes_decay` check both regimes.
+pub(crate) fn rungs_by_doubling(m: &DMatrix<f64>, nx: usize, grid: &TimeGrid) -> Vec<DMatrix<f64>> {
+    let n = m.nrows();
     let norm = m.column_iter().map(|c| c.abs().sum()).fold(0.0, f64::max);
-    let mut rungs: Vec<DMatrix<f64>> = Vec::with_capacity(grid.levels as usize + 1);
-    for p in 0..=grid.levels {
+    let within = (0..=grid.levels)
+        .take_while(|&p| norm * grid.rung(p) <= THETA_13)
+        .count();
+    // The rung that squaring starts from is the exponential's own.
+    let doubled = if within > grid.levels as usize {
+        within
+    } else {
+        within.saturating_sub(1)
+    };
+    let mut rungs: Vec<DMatrix<f64>> = differences(m, nx, grid, norm, doubled);
+    for f in &mut rungs {
+        for i in 0..n {
+            f[(i, i)] += 1.0;
+        }
+    }
+    for p in doubled as u32..=grid.levels {
         let h = grid.rung(p);
         let next = match rungs.last() {
             Some(below) if norm * h > THETA_13 => {
-                let n = below.nrows();
                 let mut square = DMatrix::zeros(n, n);
-                let b = below.as_slice();
-                crate::kernel::matmul(b, n, b, n, square.as_mut_slice(), n);
+                square_fed(below, nx, &mut square);
                 square
             }
-            _ => short_exp(&(m * h)),
+            _ => {
+                // No state feeds the inputs, in M nor in its exponential: the block is
+                // set to zero rather than left to the Padé solve's round-off.
+                let mut phi = (m * h).exp();
+                phi.view_mut((nx, 0), (n - nx, nx)).fill(0.0);
+                phi
+            }
         };
         rungs.push(next);
     }
     rungs
 }
 
-/// exp(A) for a rung within θ₁₃: where ‖A‖₁ ≤ [`TAYLOR_NORM`] by the Taylor polynomial
-/// of the least degree K whose remainder bound ‖A‖^{K+1}/(K+1)!·e^{‖A‖} is below unit
-/// round-off, in Horner form (K − 1 products: I + A(I + A/2(… (I + A/K)))); else the
-/// Padé exponential. On so small a norm no term cancels another, and the result near I
-/// rounds as any method's does (Moler & Van Loan, "Nineteen dubious ways to compute
-/// the exponential of a matrix, twenty-five years later", SIAM Review 45 (2003),
-/// method 1, whose trouble is large norms only). A grid with a tick far below the
-/// fastest time constant (the shooting trial grid) has a score of such rungs.
-fn short_exp(a: &DMatrix<f64>) -> DMatrix<f64> {
-    let norm = a.column_iter().map(|c| c.abs().sum()).fold(0.0, f64::max);
-    if norm.is_nan() || norm > TAYLOR_NORM {
-        return a.exp();
+/// F_p = Φ_p − I of the first `count` rungs, by Taylor on the tick (halved to within
+/// [`TAYLOR_NORM`] if need be) and doubling; for rungs within θ₁₃.
+pub(crate) fn differences(
+    m: &DMatrix<f64>,
+    nx: usize,
+    grid: &TimeGrid,
+    norm: f64,
+    count: usize,
+) -> Vec<DMatrix<f64>> {
+    let n = m.nrows();
+    if count == 0 {
+        return Vec::new();
     }
+    let halvings = (norm * grid.quantum / TAYLOR_NORM).log2().ceil().max(0.0) as i32;
+    let mut f = expm1_taylor(&(m * (grid.quantum / 2f64.powi(halvings))));
+    let mut square = DMatrix::<f64>::zeros(n, n);
+    let mut double = |f: &mut DMatrix<f64>| {
+        square_fed(f, nx, &mut square);
+        for (v, s) in f.as_mut_slice().iter_mut().zip(square.as_slice()) {
+            *v = 2.0 * *v + s;
+        }
+    };
+    for _ in 0..halvings {
+        double(&mut f);
+    }
+    let mut out = Vec::with_capacity(count);
+    for p in 0..count {
+        if p > 0 {
+            double(&mut f);
+        }
+        out.push(f.clone());
+    }
+    out
+}
+
+/// out = A² for an A whose rows past `nx` are zero in the first `nx` columns (no state
+/// feeds the inputs): the columns of x need A's columns of x only. The same sums in
+/// the same order as the full product without its terms that are exactly zero.
+fn square_fed(a: &DMatrix<f64>, nx: usize, out: &mut DMatrix<f64>) {
+    let n = a.nrows();
+    let s = a.as_slice();
+    for (c, column) in out.as_mut_slice().chunks_exact_mut(n).enumerate() {
+        let inner = if c < nx { nx } else { n };
+        crate::kernel::matvec_rows(&s[..inner * n], n, &s[c * n..c * n + inner], column);
+    }
+}
+
+/// exp(A) − I for ‖A‖₁ ≤ [`TAYLOR_NORM`], by the Taylor polynomial of the least degree
+/// K whose remainder bound ‖A‖^{K+1}/(K+1)!·e^{‖A‖} is below unit round-off relative to
+/// ‖A‖, in Horner form without the identity: A(I + A/2(I + A/3(… (I + A/K)))).
+fn expm1_taylor(a: &DMatrix<f64>) -> DMatrix<f64> {
+    let norm = a.column_iter().map(|c| c.abs().sum()).fold(0.0, f64::max);
     let unit = f64::EPSILON / 2.0;
-    let (mut degree, mut remainder) = (1u32, norm * norm / 2.0);
-    while remainder * norm.exp() > unit {
+    let (mut degree, mut remainder) = (1u32, norm / 2.0);
+    while remainder * norm.exp() > unit && degree < 30 {
         degree += 1;
         remainder *= norm / f64::from(degree + 1);
     }
     let n = a.nrows();
     let identity = DMatrix::<f64>::identity(n, n);
-    let mut p = &identity + a / f64::from(degree);
+    let mut p = identity.clone();
     let mut ap = DMatrix::<f64>::zeros(n, n);
-    for i in (1..degree).rev() {
+    for i in (2..=degree).rev() {
         crate::kernel::matmul(a.as_slice(), n, p.as_slice(), n, ap.as_mut_slice(), n);
         p = &identity + &ap / f64::from(i);
     }
-    p
+    crate::kernel::matmul(a.as_slice(), n, p.as_slice(), n, ap.as_mut_slice(), n);
+    ap
 }
 
-/// Largest ‖A‖₁ evaluated by its Taylor polynomial (degree 10 at most; above it the
-/// Padé exponential is as cheap).
+/// Largest ‖A‖₁ of the Taylor step that starts the rungs (degree 10 at most).
 const TAYLOR_NORM: f64 = 0.125;
 
 /// θ₁₃ of Higham (2005), Table 2.3: the largest ‖A‖₁ at which the [13/13] Padé

@@ -37,6 +37,7 @@ mod event;
 mod kernel;
 mod ladder;
 mod layout;
+mod lu;
 mod nodal;
 pub mod reference;
 mod run;

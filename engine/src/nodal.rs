@@ -51,10 +51,10 @@ impl<'a> Nodal<'a> {
             topology: topology.describe(circuit, layout),
         };
         // With no unknowns (only ground, e.g. a circuit of behavioural blocks alone)
-        // there is nothing to solve, and nalgebra's LU panics on an empty matrix.
+        // there is nothing to solve.
         if n > 0 {
-            let lu = m.lu();
-            if !lu.solve_mut(&mut rhs) || rhs.iter().any(|v| !v.is_finite()) {
+            let solved = crate::lu::solve_in_place(m.as_mut_slice(), n, rhs.as_mut_slice(), nz);
+            if !solved || rhs.iter().any(|v| !v.is_finite()) {
                 return Err(singular());
             }
         }

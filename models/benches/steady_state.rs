@@ -32,6 +32,10 @@ use stepflux_models::steady::{brute, shoot, Counter, ShootingOptions};
 
 const REPEATS: usize = 5;
 
+/// The binary's allocator, so the setup's allocations cost what they cost in `stepflux`.
+#[global_allocator]
+static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
+
 fn map(vin: f64) -> ClosedLoopMap {
     let mut d = demo_design();
     d.input.voltage = vin;

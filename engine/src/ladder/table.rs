@@ -10,10 +10,15 @@
 
 use nalgebra::DMatrix;
 
-use super::{oscillation_limit, rungs_by_squaring, Tick, TimeGrid};
+use std::sync::OnceLock;
+
+use super::{oscillation_limit, rungs_by_doubling, Tick, TimeGrid};
 use crate::kernel;
 
-/// The cached propagators of one topology (see the module documentation).
+/// The cached propagators of one topology (see the module documentation). Entries are
+/// formed when first read, each by the same product from the same inputs whenever that
+/// is, so a ladder is one pure function of its inputs however a run walks it: a
+/// shooting search on a fine trial grid reads a few dozen of its ~150 entries.
 pub struct Ladder {
     /// Bits per digit.
     pub bits: u32,
@@ -26,14 +31,19 @@ pub struct Ladder {
     /// Rows of each entry: nz + n_events rounded up to a multiple of 4 (zero rows), so
     /// products run in whole register blocks.
     pub rows: usize,
-    /// Entry (j, d) at [`Ladder::index`]: [Φ_x; E·Φ; Φ_u] for a step of d·R^j ticks,
-    /// `rows` × nz, column-major.
-    pub steps: Vec<DMatrix<f64>>,
     /// Highest binary rung (2^top ticks) used for a plain step in this topology.
     pub top: u32,
-    /// Whether every entry is finite (a propagator overflows on a topology with a fast
-    /// unstable mode and a long rung).
+    /// Whether every rung is finite (a propagator overflows on a topology with a fast
+    /// unstable mode and a long rung); every entry is a product of rungs no longer than
+    /// the step it spans.
     pub finite: bool,
+    /// Φ_p for p = 0..=levels ([`rungs_by_doubling`]).
+    rungs: Vec<DMatrix<f64>>,
+    /// The event rows E (n_events × nz).
+    events: DMatrix<f64>,
+    /// Entry (j, d) at [`Ladder::index`]: [Φ_x; E·Φ; Φ_u] for a step of d·R^j ticks,
+    /// `rows` × nz, column-major.
+    entries: Vec<OnceLock<DMatrix<f64>>>,
 }
 
 impl Ladder {
@@ -47,52 +57,85 @@ impl Ladder {
         events: &DMatrix<f64>,
         bits: u32,
     ) -> Ladder {
-        let rungs = rungs_by_squaring(m, grid);
         let (nz, n_events) = (m.nrows(), events.nrows());
+        debug_assert!(
+            m.view((nx, 0), (nz - nx, nx)).iter().all(|&v| v == 0.0),
+            "a state feeds u"
+        );
+        let rungs = rungs_by_doubling(m, nx, grid);
         let rows = (nz + n_events).div_ceil(4) * 4;
-        // Every entry is S₀·Φ with S₀ = [I_x; E; I_u] (the layout of Φ = I), and within
-        // one digit S₀·Φ(d·R^j) = (S₀·Φ((d − 1)·R^j))·Φ(R^j): one product of the
-        // stacked rows per entry, the event rows carried along.
-        let mut identity = DMatrix::<f64>::zeros(rows, nz);
-        for c in 0..nx {
-            identity[(c, c)] = 1.0;
-        }
-        identity.rows_mut(nx, n_events).copy_from(events);
-        for c in nx..nz {
-            identity[(n_events + c, c)] = 1.0;
-        }
-        let mut steps: Vec<DMatrix<f64>> = Vec::new();
-        for ticks in step_lengths(bits, grid.levels) {
-            let lowest = ticks.trailing_zeros();
-            let unit = lowest - lowest % bits;
-            let rung = &rungs[unit as usize];
-            let before = if ticks == 1 << unit {
-                &identity
-            } else {
-                steps.last().expect("the entry one digit value shorter")
-            };
-            let mut stacked = DMatrix::<f64>::zeros(rows, nz);
-            kernel::matmul(
-                before.as_slice(),
-                rows,
-                rung.as_slice(),
-                nz,
-                stacked.as_mut_slice(),
-                rows,
-            );
-            steps.push(stacked);
-        }
-        let top = oscillation_limit(m, nx, grid);
-        let finite = steps.iter().all(|p| p.iter().all(|v| v.is_finite()));
+        let entries = (0..step_count(bits, grid.levels))
+            .map(|_| OnceLock::new())
+            .collect();
         Ladder {
-            finite,
+            finite: rungs
+                .iter()
+                .all(|r| r.as_slice().iter().all(|v| v.is_finite())),
+            top: oscillation_limit(m, nx, grid),
             bits,
             nz,
             nx,
             n_events,
             rows,
-            steps,
-            top,
+            rungs,
+            events: events.clone(),
+            entries,
+        }
+    }
+
+    /// Entries in the table (built or not).
+    pub fn entry_count(&self) -> usize {
+        self.entries.len()
+    }
+
+    /// Entry `e` (see [`Ladder::index`]), formed now if no step has read it before.
+    ///
+    /// Every entry is S₀·Φ, and S₀·Φ(d·R^j) = (S₀·Φ((d − 2^b)·R^j))·Φ(2^b·R^j) with 2^b
+    /// the highest power of two in d: one product of the stacked rows per entry, the
+    /// event rows carried along, and an entry needs at most bits − 1 shorter ones of its
+    /// own digit (those of d's leading binary digits), not every value below it.
+    pub fn entry(&self, e: usize) -> &DMatrix<f64> {
+        self.entries[e].get_or_init(|| {
+            let per_digit = (1usize << self.bits) - 1;
+            let (j, d) = (e / per_digit, e % per_digit + 1);
+            let b = d.ilog2() as usize;
+            let rung = &self.rungs[j * self.bits as usize + b];
+            let rest = d - (1 << b);
+            let mut stacked = DMatrix::<f64>::zeros(self.rows, self.nz);
+            if rest == 0 {
+                self.stack(rung, &mut stacked);
+            } else {
+                self.times_rung(self.entry(j * per_digit + rest - 1), rung, &mut stacked);
+            }
+            stacked
+        })
+    }
+
+    /// out = before·Φ for stacked rows `before` (this layout) and a rung Φ, using that
+    /// no state feeds u: Φ's rows of u are zero in the columns of x, so out's columns of
+    /// x need before's columns of x only. The same sums in the same order as the full
+    /// product without its terms that are exactly zero.
+    fn times_rung(&self, before: &DMatrix<f64>, rung: &DMatrix<f64>, out: &mut DMatrix<f64>) {
+        let (nx, nz, rows) = (self.nx, self.nz, self.rows);
+        let (b, r) = (before.as_slice(), rung.as_slice());
+        for (c, column) in out.as_mut_slice().chunks_exact_mut(rows).enumerate() {
+            let inner = if c < nx { nx } else { nz };
+            kernel::matvec_rows(&b[..inner * rows], rows, &r[c * nz..c * nz + inner], column);
+        }
+    }
+
+    /// out = S₀·Φ for a rung Φ: its rows of x and of u as they are, the event rows E·Φ
+    /// (the product by S₀ without its unit rows).
+    fn stack(&self, rung: &DMatrix<f64>, out: &mut DMatrix<f64>) {
+        let (nx, nz, rows, head) = (self.nx, self.nz, self.rows, self.u_row());
+        let (e, r) = (self.events.as_slice(), rung.as_slice());
+        for (c, column) in out.as_mut_slice().chunks_exact_mut(rows).enumerate() {
+            let phi = &r[c * nz..(c + 1) * nz];
+            let inner = if c < nx { nx } else { nz };
+            column[..nx].copy_from_slice(&phi[..nx]);
+            let ne = self.n_events;
+            kernel::matvec_rows(&e[..inner * ne], ne, &phi[..inner], &mut column[nx..head]);
+            column[head..head + nz - nx].copy_from_slice(&phi[nx..]);
         }
     }
 
@@ -100,7 +143,7 @@ impl Ladder {
     /// outside the stepping loop (meters when they are read).
     pub fn phi(&self, entry: usize) -> DMatrix<f64> {
         let mut phi = DMatrix::zeros(self.nz, self.nz);
-        self.phi_into(&self.steps[entry], &mut phi);
+        self.phi_into(self.entry(entry), &mut phi);
         phi
     }
 
@@ -145,7 +188,7 @@ impl Ladder {
 
     /// Event row `r` one entry ahead of z: (E·Φ)_r · z.
     pub fn event_ahead(&self, entry: usize, r: usize, z: &[f64]) -> f64 {
-        let row = &self.steps[entry].as_slice()[self.nx + r..];
+        let row = &self.entry(entry).as_slice()[self.nx + r..];
         kernel::strided_dot(row, self.rows, z)
     }
 
@@ -169,7 +212,7 @@ impl Ladder {
 }
 
 /// Entries in a table of `bits` per digit on `levels` (memory is counted from it
-/// before a table is built).
+/// before a table is filled).
 pub(super) fn step_count(bits: u32, levels: u32) -> usize {
     step_lengths(bits, levels).len()
 }

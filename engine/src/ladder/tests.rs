@@ -5,7 +5,7 @@ use std::sync::Arc;
 use nalgebra::DMatrix;
 
 use super::table::Ladder;
-use super::{rungs_by_squaring, shared_ladder, step_gramian, van_loan, TimeGrid};
+use super::{differences, rungs_by_doubling, shared_ladder, step_gramian, van_loan, TimeGrid};
 
 /// The grid of a 150 kHz converter (SimOptions::for_period): a quarter period per
 /// longest step, events to 1 ps, 21 rungs.
@@ -44,19 +44,17 @@ fn norm1(a: &DMatrix<f64>) -> f64 {
 fn rungs_match_the_exponential() {
     // The rungs against the Padé exponential of each rung on its own (Higham, "The
     // scaling and squaring method for the matrix exponential revisited", SIAM J.
-    // Matrix Anal. Appl. 26 (2005), the algorithm nalgebra implements). Squaring from
-    // the last rung within θ₁₃ repeats the exponential's own squarings, so the two
-    // agree to round-off (measured 3.5e-14 on both grids: the products differ in summation
-    // order only, each difference doubled by the squarings above it); squaring from the
-    // shortest rung instead would be off by up to 2^21·u ≈ 2e-10 relative on the slow
-    // mode (module documentation of `ladder.rs`), which 1e-12 relative would catch.
-    // A second grid with a tick of 1e-12 of the period (the shooting trial grid, 38
-    // rungs) puts a score of rungs below the Taylor bound (`short_exp`).
+    // Matrix Anal. Appl. 26 (2005), the algorithm nalgebra implements), to round-off
+    // relative to ‖Φ‖ ≥ 1; squaring Φ from the shortest rung instead would be off by up
+    // to 2^21·u ≈ 2e-10 relative on the slow mode (module documentation of
+    // `ladder.rs`), which 1e-12 relative would catch. A second grid with a tick of
+    // 1e-12 of the period (the shooting trial grid, 38 rungs) starts far below the
+    // Taylor bound. `rungs_keep_a_slow_modes_decay` checks the difference from I.
     let period = 1.0 / 150e3;
     let trial = TimeGrid::new(period / 4.0, 1e-12 * period).expect("valid grid");
     let m = stiff_m();
     for grid in [converter_grid(), trial] {
-        let rungs = rungs_by_squaring(&m, &grid);
+        let rungs = rungs_by_doubling(&m, m.nrows(), &grid);
         assert_eq!(rungs.len(), grid.levels as usize + 1);
         let mut worst: f64 = 0.0;
         for (p, rung) in rungs.iter().enumerate() {
@@ -70,6 +68,42 @@ fn rungs_match_the_exponential() {
         );
         assert!(worst < 1e-12, "squaring error {worst:e}");
     }
+}
+
+#[test]
+fn rungs_keep_a_slow_modes_decay() {
+    // Φ − I of every rung of M = [[a, b], [0, c]] against its closed form: e^{ah} − 1,
+    // e^{ch} − 1 and b·(e^{ah} − e^{ch})/(a − c) off the diagonal (the exponential of a
+    // 2 × 2 triangular matrix, Moler & Van Loan, "Nineteen dubious ways to compute the
+    // exponential of a matrix, twenty-five years later", SIAM Review 45 (2003), §2),
+    // each from `f64::exp_m1`. A slow pole (a = −1e3 /s) beside a fast one (c = −1e8 /s)
+    // on the trial grid, every rung doubled as its difference (‖M·h‖₁ ≤ θ₁₃, 34 of 39):
+    // on the first rungs a·h ≈ 1e-20, so Φ − I formed from a Φ that holds I loses
+    // everything; held as the difference, each entry is within 1e-14 relative (about 40
+    // doublings of u allowed; measured 2e-16). Past the bound the rungs are Φ to
+    // round-off relative to ‖Φ‖, as any exponential's (`rungs_match_the_exponential`).
+    let (a, b, c) = (-1e3, 1e5, -1e8);
+    let m = DMatrix::from_row_slice(2, 2, &[a, b, 0.0, c]);
+    let period = 1.0 / 150e3;
+    let grid = TimeGrid::new(period / 4.0, 1e-12 * period).expect("valid grid");
+    let mut worst: f64 = 0.0;
+    let norm = norm1(&m);
+    let within = (0..=grid.levels)
+        .take_while(|&p| norm * grid.rung(p) <= 5.37)
+        .count();
+    assert!(within > 30, "{within} rungs within θ₁₃");
+    let within = differences(&m, 2, &grid, norm, within);
+    for (p, f) in within.iter().enumerate() {
+        let h = grid.rung(p as u32);
+        let (ea, ec) = ((a * h).exp_m1(), (c * h).exp_m1());
+        let want = [ea, ec, b * (ea - ec) / (a - c)];
+        let got = [f[(0, 0)], f[(1, 1)], f[(0, 1)]];
+        for (g, w) in got.iter().zip(want) {
+            worst = worst.max((g - w).abs() / w.abs());
+        }
+    }
+    println!("slow and fast pole, every rung: worst relative error of Φ − I {worst:.1e}");
+    assert!(worst < 1e-14, "relative error {worst:e}");
 }
 
 /// A non-stiff M (|λ| h ≤ 2 on the longest step), so Van Loan's block exponential can
@@ -93,7 +127,7 @@ fn meters_from_sums_match_van_loan_per_entry() {
     let q = DMatrix::from_fn(nz, nz, |i, j| 1.0 / (1.0 + i as f64 + j as f64));
     for bits in [1, 4] {
         let ladder = Ladder::build(&m, 5, &grid, &DMatrix::zeros(1, nz), bits);
-        let entries = ladder.steps.len();
+        let entries = ladder.entry_count();
         let mut sums = vec![0.0; entries * nz * nz];
         let mut expected = 0.0;
         for e in (0..entries).step_by(3) {
@@ -127,7 +161,8 @@ fn shared_ladders_are_found_only_for_bit_equal_inputs() {
     let other = shared_ladder(&nudged, 5, &grid, &events, 4);
     assert!(!Arc::ptr_eq(&first, &other));
     let fresh = Ladder::build(&m, 5, &grid, &events, 4);
-    for (a, b) in fresh.steps.iter().zip(&first.steps) {
+    for e in (0..fresh.entry_count()).rev() {
+        let (a, b) = (fresh.entry(e), first.entry(e));
         assert!(a
             .iter()
             .zip(b.iter())

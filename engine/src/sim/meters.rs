@@ -86,7 +86,7 @@ impl MeterSums {
                 self.index.insert(moved.topo.topology.0, oldest);
             }
         }
-        let entries = topo.ladder().steps.len();
+        let entries = topo.ladder().entry_count();
         self.sums.push(Sums {
             topo: Arc::clone(topo),
             sums: vec![0.0; entries * self.nz * self.nz],

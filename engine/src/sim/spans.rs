@@ -124,7 +124,7 @@ impl Spans {
             rest >>= ladder.bits;
             if d != 0 {
                 if let Some(e) = pending {
-                    ladder.phi_into(&ladder.steps[e], &mut self.phi);
+                    ladder.phi_into(ladder.entry(e), &mut self.phi);
                     if have_partial {
                         multiply(&self.phi, nz, &self.partial, &mut self.next);
                         std::mem::swap(&mut self.partial, &mut self.next);
@@ -140,7 +140,7 @@ impl Spans {
         self.builds += 1;
         let slot = &mut self.slots[k];
         if let Some(e) = pending {
-            let last = &ladder.steps[e];
+            let last = ladder.entry(e);
             if have_partial {
                 multiply(last, ladder.rows, &self.partial, &mut slot.stacked);
             } else {
@@ -150,7 +150,7 @@ impl Spans {
         slot.topology = topology;
         slot.ticks = ticks;
         slot.used = self.clock;
-        slot.id = ladder.steps.len() + self.builds;
+        slot.id = ladder.entry_count() + self.builds;
     }
 }
 

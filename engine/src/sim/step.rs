@@ -120,7 +120,7 @@ impl Simulation {
             let entry = ladder.index(j, d);
             self.meters
                 .add(&self.run.topo, entry, self.run.z.as_slice());
-            Self::sensitivity_moves(&mut self.sens, &ladder.steps[entry], ladder.rows);
+            Self::sensitivity_moves(&mut self.sens, ladder.entry(entry), ladder.rows);
             self.ramp = self.ramp.saturating_mul(RAMP_GROWTH);
         }
         ladder.state_from(&self.ext, self.run.z.as_mut_slice());
@@ -145,7 +145,7 @@ impl Simulation {
         let ladder = topo.ladder();
         let entry = ladder.index(j, d);
         self.meters.add(topo, entry, self.run.z.as_slice());
-        Self::sensitivity_moves(&mut self.sens, &ladder.steps[entry], ladder.rows);
+        Self::sensitivity_moves(&mut self.sens, ladder.entry(entry), ladder.rows);
         table_step(
             ladder,
             topo.topology,
@@ -348,7 +348,7 @@ fn table_step(
     z: &DVector<f64>,
     out: &mut [f64],
 ) {
-    let stacked = &ladder.steps[entry];
+    let stacked = ladder.entry(entry);
     let z = z.as_slice();
     let b = sources.get(topology, entry, ladder, stacked, &z[ladder.nx..]);
     ladder.step(stacked, z, b, out);

@@ -358,7 +358,7 @@ fn peek(ladder: &Ladder, from: &[f64], n: Tick, out: &mut [f64], ext: &mut [f64]
     let mut rest = n;
     while rest > 0 {
         let (j, d) = ladder.longest_within(rest);
-        let stacked = &ladder.steps[ladder.index(j, d)];
+        let stacked = ladder.entry(ladder.index(j, d));
         ladder.source_part(stacked, &out[ladder.nx..], b);
         ladder.step(stacked, out, b, ext);
         ladder.state_from(ext, out);
