@@ -10,12 +10,11 @@
 //! exponential (the bit-walk of the "published methods" note — bisection on the
 //! cached halvings — searched one radix-R digit at a time).
 //!
-//! Quadratic meters (energies) use Van Loan's block exponential: with
-//! C = [[-Mᵀ, Q], [0, M]] h, exp(C) = [[·, G], [0, F]] and ∫₀ʰ Φ(s)ᵀ Q Φ(s) ds = Fᵀ G
-//! (Van Loan, "Computing integrals involving the matrix exponential", IEEE TAC 1978,
-//! Theorem 1). Stepping from z over h adds zᵀ W z: exact, whatever the waveform. The
-//! integrals are formed only when a meter is read, from the sums of the steps taken
-//! (`gramian.rs`).
+//! Quadratic meters (energies) are exact integrals W = ∫₀ʰ Φ(s)ᵀ Q Φ(s) ds (Van Loan,
+//! "Computing integrals involving the matrix exponential", IEEE TAC 1978): stepping
+//! from z over h adds zᵀ W z, exact whatever the waveform. The integrals are formed
+//! only when a meter is read, from the sums of the steps taken, folded down the rungs
+//! to one tick (`gramian.rs`) and there summed as a Taylor series ([`tick_gramian`]).
 //!
 //! A topology's table depends only on M, the event rows, the grid and the radix, so
 //! tables are shared between runs and cases whose inputs are bit-equal (`shared.rs`).
@@ -236,41 +235,63 @@ const TAYLOR_NORM: f64 = 0.125;
 /// approximant of exp(A) is accurate to unit round-off without scaling.
 const THETA_13: f64 = 5.371_920_351_148_152;
 
-/// ∫₀ʰ Φ(s)·X·Φ(s)ᵀ ds for h one tick, Φ(s) = exp(M s), by Van Loan's block
-/// exponential. That block contains exp(−M h), which overflows once a stiff topology
-/// has |λ|·h beyond ~700, so it is used only on a step short enough that ‖M‖₁·h ≤ 1;
-/// the tick comes from doubling, L(2h, X) = L(h, X + Φ(h)·X·Φ(h)ᵀ), which only
-/// multiplies by propagators.
+/// ∫₀ʰ Φ(s)·X·Φ(s)ᵀ ds for h one tick, Φ(s) = exp(M s), X symmetric. On a sub-tick
+/// h₀ = q/2^s with ‖M‖₁·h₀ ≤ [`TAYLOR_NORM`] by its Taylor series: the integrand's k-th
+/// derivative at 0 is T_k = M·T_{k−1} + T_{k−1}·Mᵀ, T₀ = X (d/ds Φ X Φᵀ = M Φ X Φᵀ +
+/// Φ X Φᵀ Mᵀ), so L(h₀, X) = Σ_k h₀^{k+1}/(k+1)!·T_k, one product per term with
+/// ‖T_k‖ ≤ (2‖M‖₁)^k ‖X‖: [`LYAPUNOV_TERMS`] terms reach unit round-off. The tick comes
+/// from doubling, L(2h, X) = L(h, X + Φ(h)·X·Φ(h)ᵀ), which only multiplies by
+/// propagators (the sub-tick ones from the Taylor difference of [`differences`]).
+/// The same integral as Van Loan's block exponential (Van Loan, "Computing integrals
+/// involving the matrix exponential", IEEE TAC 23 (1978), Theorem 1), which
+/// `meters_from_sums_match_van_loan_per_entry` checks, without its 2nz × 2nz
+/// exponential at every read of a meter.
 pub(crate) fn tick_gramian(m: &DMatrix<f64>, x: &DMatrix<f64>, grid: &TimeGrid) -> DMatrix<f64> {
+    let n = m.nrows();
     let norm = m.column_iter().map(|c| c.abs().sum()).fold(0.0, f64::max);
-    let halvings = (norm * grid.quantum).log2().ceil().clamp(0.0, 64.0) as i32;
+    let halvings = (norm * grid.quantum / TAYLOR_NORM)
+        .log2()
+        .ceil()
+        .clamp(0.0, 64.0) as i32;
     let h0 = grid.quantum / 2f64.powi(halvings);
-    let mut phis = vec![(m * h0).exp()];
-    for i in 1..halvings as usize {
-        let below = &phis[i - 1];
-        phis.push(below * below);
+    let identity = DMatrix::<f64>::identity(n, n);
+    let mut phis: Vec<DMatrix<f64>> = Vec::with_capacity(halvings as usize);
+    if halvings > 0 {
+        let mut f = expm1_taylor(&(m * h0));
+        for i in 0..halvings {
+            if i > 0 {
+                f = &f * 2.0 + &f * &f;
+            }
+            phis.push(&f + &identity);
+        }
     }
     let mut acc = x.clone();
-    for phi in phis.iter().take(halvings as usize).rev() {
+    for phi in phis.iter().rev() {
         acc = &acc + phi * &acc * phi.transpose();
     }
-    van_loan(&m.transpose(), &acc, h0)
+    lyapunov_taylor(m, &((&acc + acc.transpose()) * 0.5), h0)
 }
 
-/// ∫₀ʰ exp(Aᵀs)·Q·exp(A s) ds by Van Loan's block exponential.
-fn van_loan(a: &DMatrix<f64>, q: &DMatrix<f64>, h: f64) -> DMatrix<f64> {
-    let n = a.nrows();
-    let mut c = DMatrix::<f64>::zeros(2 * n, 2 * n);
-    c.view_mut((0, 0), (n, n)).copy_from(&(-a.transpose() * h));
-    c.view_mut((0, n), (n, n)).copy_from(&(q * h));
-    c.view_mut((n, n), (n, n)).copy_from(&(a * h));
-    let e = c.exp();
-    let f = e.view((n, n), (n, n)).into_owned();
-    let g = e.view((0, n), (n, n)).into_owned();
-    let w = f.transpose() * g;
-    // Symmetrise: the exact integral is symmetric; this removes round-off asymmetry.
-    (&w + w.transpose()) * 0.5
+/// Σ_{k ≤ K} h^{k+1}/(k+1)!·T_k (see [`tick_gramian`]) for a symmetric X and ‖M‖₁·h ≤
+/// [`TAYLOR_NORM`]; each T_k is P + Pᵀ with P = M·T_{k−1}, symmetric as the integral is.
+fn lyapunov_taylor(m: &DMatrix<f64>, x: &DMatrix<f64>, h: f64) -> DMatrix<f64> {
+    let n = m.nrows();
+    let mut t = x.clone();
+    let mut p = DMatrix::<f64>::zeros(n, n);
+    let mut coef = h;
+    let mut sum = x * h;
+    for k in 1..=LYAPUNOV_TERMS {
+        crate::kernel::matmul(m.as_slice(), n, t.as_slice(), n, p.as_mut_slice(), n);
+        t = &p + p.transpose();
+        coef *= h / f64::from(k + 1);
+        sum += &t * coef;
+    }
+    sum
 }
+
+/// Terms of [`lyapunov_taylor`] past the first: the k-th is at most
+/// (2·TAYLOR_NORM)^k/(k+1)! of the first, below unit round-off from k = 12.
+const LYAPUNOV_TERMS: u32 = 12;
 
 /// Highest rung not longer than 1/8 of the period of the fastest oscillatory mode that
 /// decays by less than e^-π per period (|Re λ| < |Im λ| / 2).

@@ -80,10 +80,14 @@ impl TopologyData {
         })
     }
 
-    /// Each meter's integral over the steps whose Σ z·zᵀ per table entry are `sums`
-    /// (nz × nz blocks in entry order), added to `totals`: tr(Q_k·L) with L the
-    /// meter-independent integral of [`step_gramian`].
-    pub(crate) fn add_meters(&self, sums: &[f64], totals: &mut [f64]) {
+    /// Each meter's integral over the steps whose Σ z·zᵀ per table entry are `sums(e)`
+    /// (an nz × nz block, `None` for an entry no step took), added to `totals`:
+    /// tr(Q_k·L) with L the meter-independent integral of [`step_gramian`].
+    pub(crate) fn add_meters<'a>(
+        &self,
+        sums: impl Fn(usize) -> Option<&'a [f64]>,
+        totals: &mut [f64],
+    ) {
         let r = &self.recipe;
         let l = step_gramian(self.ladder(), &self.m, &r.grid, sums);
         for (total, q) in totals.iter_mut().zip(&r.forms) {

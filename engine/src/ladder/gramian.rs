@@ -7,7 +7,7 @@
 //! L(a + b, X) = L(a, X) + L(b, Φ(a) X Φ(a)ᵀ) (Φ(a + s) = Φ(s)Φ(a)), so the sums of a
 //! digit's entries go to that digit's rung, and from the top,
 //! L(2h, X) = L(h, X + Φ(h) X Φ(h)ᵀ), every rung's sum ends in one integral over one
-//! tick, by Van Loan's block exponential ([`super::tick_gramian`]). A topology costs
+//! tick, by its Taylor series ([`super::tick_gramian`]). A topology costs
 //! two products per rung when read, and nothing while stepping beyond the sums.
 
 use nalgebra::DMatrix;
@@ -16,35 +16,38 @@ use super::{tick_gramian, Ladder, TimeGrid};
 use crate::kernel;
 
 /// Σ_e L(h_e, S_e) over the entries e of `ladder` (state matrix `m`, grid `grid`),
-/// S_e the nz × nz blocks of `sums` in entry order (column-major).
+/// S_e = `sums(e)` (nz × nz, column-major), `None` for an entry no step took.
 ///
 /// Within digit j (a = R^j), Σ_d L(d·a, S_d) = L(a, Σ_i Φ_aⁱ G_i Φ_aⁱᵀ) with G_i the sum
 /// of S_d over d > i, formed by Horner's rule from the highest d: one congruence per
-/// digit value, whatever the entries used.
-pub(crate) fn step_gramian(
+/// digit value from the highest one used, and nothing for a digit no step used.
+pub(crate) fn step_gramian<'a>(
     ladder: &Ladder,
     m: &DMatrix<f64>,
     grid: &TimeGrid,
-    sums: &[f64],
+    sums: impl Fn(usize) -> Option<&'a [f64]>,
 ) -> DMatrix<f64> {
     let nz = ladder.nz;
     let bits = ladder.bits;
     let per_digit = (1usize << bits) - 1;
     let mut at_rung: Vec<Option<DMatrix<f64>>> = vec![None; grid.levels as usize + 1];
-    for (j, digit) in sums.chunks(per_digit * nz * nz).enumerate() {
+    for j in 0..ladder.entry_count().div_ceil(per_digit) {
+        let first = j * per_digit;
+        let last = (first + per_digit).min(ladder.entry_count());
+        let Some(top) = (first..last).rev().find(|&e| sums(e).is_some()) else {
+            continue;
+        };
         let phi = ladder.phi(ladder.index(j as u32, 1));
         let mut suffix = DMatrix::<f64>::zeros(nz, nz);
         let mut horner: Option<DMatrix<f64>> = None;
-        for block in digit.chunks_exact(nz * nz).rev() {
-            let used = block.iter().any(|&v| v != 0.0);
-            if used {
+        for e in (first..=top).rev() {
+            if let Some(block) = sums(e) {
                 suffix += DMatrix::from_column_slice(nz, nz, block);
             }
-            horner = match horner {
-                Some(h) => Some(&suffix + congruence(&phi, &h)),
-                None if used => Some(suffix.clone()),
-                None => None,
-            };
+            horner = Some(match horner {
+                Some(h) => &suffix + congruence(&phi, &h),
+                None => suffix.clone(),
+            });
         }
         if let Some(h) = horner {
             add_to(&mut at_rung[j * bits as usize], h);

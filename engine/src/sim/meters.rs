@@ -13,11 +13,25 @@ use crate::kernel;
 use crate::system::TopologyData;
 use crate::topology::Topology;
 
-/// The sums of one topology: per table entry, Σ z·zᵀ (nz × nz, column-major).
+/// The sums of one topology: per table entry a run steps by, Σ z·zᵀ (nz × nz,
+/// column-major). A topology's steps take a few of its table's entries (the leading
+/// digits of the steps it takes), so each entry's block is made when first used.
 struct Sums {
     topo: Arc<TopologyData>,
-    sums: Vec<f64>,
+    /// Per table entry, where its block starts in `blocks` (NONE: no step took it).
+    slot: Vec<u32>,
+    blocks: Vec<f64>,
     used: u64,
+}
+
+/// A table entry no step took.
+const NONE: u32 = u32::MAX;
+
+impl Sums {
+    fn block(&self, entry: usize, nz: usize) -> Option<&[f64]> {
+        let at = self.slot[entry];
+        (at != NONE).then(|| &self.blocks[at as usize..at as usize + nz * nz])
+    }
 }
 
 /// Lazily summed meters.
@@ -70,7 +84,14 @@ impl MeterSums {
         let s = &mut self.sums[k];
         s.used = self.clock;
         let nz = self.nz;
-        kernel::add_outer(z, &mut s.sums[entry * nz * nz..(entry + 1) * nz * nz]);
+        if s.slot[entry] == NONE {
+            // A step of an entry this topology has not taken before: one block more,
+            // as the topology's own matrices grew when its first step needed them.
+            s.slot[entry] = s.blocks.len() as u32;
+            s.blocks.resize(s.blocks.len() + nz * nz, 0.0);
+        }
+        let at = s.slot[entry] as usize;
+        kernel::add_outer(z, &mut s.blocks[at..at + nz * nz]);
     }
 
     fn open(&mut self, topo: &Arc<TopologyData>) -> usize {
@@ -80,7 +101,7 @@ impl MeterSums {
                 .min_by_key(|&k| self.sums[k].used)
                 .unwrap_or(0);
             let gone = self.sums.swap_remove(oldest);
-            fold(&gone, &mut self.folded);
+            fold(&gone, self.nz, &mut self.folded);
             self.index.remove(&gone.topo.topology.0);
             if let Some(moved) = self.sums.get(oldest) {
                 self.index.insert(moved.topo.topology.0, oldest);
@@ -89,7 +110,8 @@ impl MeterSums {
         let entries = topo.ladder().entry_count();
         self.sums.push(Sums {
             topo: Arc::clone(topo),
-            sums: vec![0.0; entries * self.nz * self.nz],
+            slot: vec![NONE; entries],
+            blocks: Vec::new(),
             used: self.clock,
         });
         let k = self.sums.len() - 1;
@@ -101,13 +123,13 @@ impl MeterSums {
     pub(super) fn totals(&self) -> Vec<f64> {
         let mut out = self.folded.clone();
         for s in &self.sums {
-            fold(s, &mut out);
+            fold(s, self.nz, &mut out);
         }
         out
     }
 }
 
 /// Adds every meter's integral over the steps summed in `s` to `out`.
-fn fold(s: &Sums, out: &mut [f64]) {
-    s.topo.add_meters(&s.sums, out);
+fn fold(s: &Sums, nz: usize, out: &mut [f64]) {
+    s.topo.add_meters(|e| s.block(e, nz), out);
 }
