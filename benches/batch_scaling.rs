@@ -1,15 +1,15 @@
 //! Batch scaling: one 64-case study (2 loads × 4 lines × 8 Monte Carlo units of the
 //! demo start-up, 1 ms each, no waveforms) run by the binary on 1 and on 2 worker
-//! threads. The ratio of the two times is the parallel speed-up (target ≥ 1.8 on a
-//! machine with two idle cores).
+//! threads, alternated, as whole processes. The ratio of the two times is the parallel
+//! speed-up (target ≥ 1.8 on a machine with two idle cores); the bench prints how idle
+//! the processors were just before and just after (a busy second core takes the gain
+//! away, so a figure without it means little).
 //!
-//! `cargo bench --bench batch_scaling`
+//! `cargo bench --bench batch_scaling` (a plain bench: five alternated pairs).
 
 use std::path::{Path, PathBuf};
 use std::process::Command;
-use std::time::Duration;
-
-use criterion::{criterion_group, criterion_main, BenchmarkId, Criterion};
+use std::time::{Duration, Instant};
 
 fn study(dir: &Path) -> PathBuf {
     let base = concat!(env!("CARGO_MANIFEST_DIR"), "/scenarios/demo-startup.json");
@@ -35,7 +35,9 @@ fn study(dir: &Path) -> PathBuf {
     path
 }
 
-fn run(study: &Path, out: &Path, jobs: usize) {
+/// Wall time of one run of the study on `jobs` workers.
+fn run(study: &Path, out: &Path, jobs: usize) -> Duration {
+    let t = Instant::now();
     let status = Command::new(env!("CARGO_BIN_EXE_stepflux"))
         .arg("batch")
         .arg(study)
@@ -46,27 +48,76 @@ fn run(study: &Path, out: &Path, jobs: usize) {
         .stderr(std::process::Stdio::null())
         .status()
         .expect("binary runs");
+    let elapsed = t.elapsed();
     // 0 all passed, 1 a limit failed; both mean every case ran.
     assert!(
         matches!(status.code(), Some(0 | 1)),
         "batch failed: {status}"
     );
+    elapsed
 }
 
-fn scaling(c: &mut Criterion) {
+/// Busy and total jiffies of all processors since boot (`/proc/stat`, first line).
+fn cpu_jiffies() -> Option<(u64, u64)> {
+    let stat = std::fs::read_to_string("/proc/stat").ok()?;
+    let fields: Vec<u64> = stat
+        .lines()
+        .next()?
+        .split_whitespace()
+        .skip(1)
+        .filter_map(|f| f.parse().ok())
+        .collect();
+    let total: u64 = fields.iter().sum();
+    let idle = fields.get(3)? + fields.get(4).unwrap_or(&0);
+    Some((total - idle, total))
+}
+
+/// How busy the processors were over `seconds` of quiet (this bench not running).
+fn idle_share(seconds: u64) -> Option<f64> {
+    let (b0, t0) = cpu_jiffies()?;
+    std::thread::sleep(Duration::from_secs(seconds));
+    let (b1, t1) = cpu_jiffies()?;
+    Some(1.0 - (b1 - b0) as f64 / (t1 - t0).max(1) as f64)
+}
+
+fn median(mut v: Vec<f64>) -> f64 {
+    v.sort_by(f64::total_cmp);
+    v[v.len() / 2]
+}
+
+fn main() {
     let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("bench_batch_scaling");
     let study = study(&dir);
-    let mut group = c.benchmark_group("batch_64_cases");
-    group.sample_size(10);
-    group.measurement_time(Duration::from_secs(40));
-    for jobs in [1, 2] {
-        let out = dir.join(format!("jobs{jobs}"));
-        group.bench_with_input(BenchmarkId::new("jobs", jobs), &jobs, |b, &jobs| {
-            b.iter(|| run(&study, &out, jobs))
-        });
+    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+    let before = idle_share(3);
+    let load = std::fs::read_to_string("/proc/loadavg").unwrap_or_default();
+    let _ = run(&study, &dir.join("warm-up"), 2);
+    let (mut one, mut two, mut ratios) = (Vec::new(), Vec::new(), Vec::new());
+    for _ in 0..PAIRS {
+        let a = run(&study, &dir.join("jobs1"), 1).as_secs_f64();
+        let b = run(&study, &dir.join("jobs2"), 2).as_secs_f64();
+        one.push(a);
+        two.push(b);
+        ratios.push(a / b);
     }
-    group.finish();
+    let after = idle_share(3);
+    let share = |s: Option<f64>| s.map_or("unknown".to_string(), |v| format!("{:.0} %", 100.0 * v));
+    println!("batch scaling, 64 cases of 1 ms, no waveforms ({cores} processors):");
+    println!(
+        "  machine idle before {} and after {} (share of processor time no process used, 3 s each); load average before: {}",
+        share(before),
+        share(after),
+        load.split_whitespace().take(3).collect::<Vec<_>>().join(" ")
+    );
+    println!(
+        "  1 worker {:.3} s, 2 workers {:.3} s (medians of {PAIRS}, alternated); speed-up {:.2}× (median of the pairs, {:.2}–{:.2}×)",
+        median(one),
+        median(two),
+        median(ratios.clone()),
+        ratios.iter().cloned().fold(f64::INFINITY, f64::min),
+        ratios.iter().cloned().fold(0.0, f64::max),
+    );
 }
 
-criterion_group!(benches, scaling);
-criterion_main!(benches);
+/// Alternated pairs (1 worker, then 2) timed.
+const PAIRS: usize = 5;
