@@ -113,14 +113,18 @@ impl Ladder {
 
     /// out = before·Φ for stacked rows `before` (this layout) and a rung Φ, using that
     /// no state feeds u: Φ's rows of u are zero in the columns of x, so out's columns of
-    /// x need before's columns of x only. The same sums in the same order as the full
-    /// product without its terms that are exactly zero.
+    /// x need before's columns of x only, and their rows of u stay zero. The same sums in
+    /// the same order as the full product without its terms that are exactly zero; `out`
+    /// comes zeroed.
     fn times_rung(&self, before: &DMatrix<f64>, rung: &DMatrix<f64>, out: &mut DMatrix<f64>) {
         let (nx, nz, rows) = (self.nx, self.nz, self.rows);
         let (b, r) = (before.as_slice(), rung.as_slice());
+        let head = self.u_row();
         for (c, column) in out.as_mut_slice().chunks_exact_mut(rows).enumerate() {
-            let inner = if c < nx { nx } else { nz };
-            kernel::matvec_rows(&b[..inner * rows], rows, &r[c * nz..c * nz + inner], column);
+            // A column of x has zeros in the rows of u (no state feeds u), left as they are.
+            let (inner, rows_out) = if c < nx { (nx, head) } else { (nz, rows) };
+            let x = &r[c * nz..c * nz + inner];
+            kernel::matvec_rows(&b[..inner * rows], rows, x, &mut column[..rows_out]);
         }
     }
 
