@@ -106,8 +106,8 @@ const STEPS_PER_OSCILLATION: f64 = 8.0;
 /// for the matrix exponential revisited", SIAM J. Matrix Anal. Appl. 26 (2005)), but
 /// from a start held to round-off: each squaring doubles the error it is handed, and
 /// on a stiff test matrix the longest rung lands 13× closer to the exponential's closed
-/// form than the Padé exponential of that rung (`rungs_match_the_exponential`). Only a
-/// tick itself past θ₁₃ starts from the Padé exponential.
+/// form than the Padé exponential of that rung (`rungs_match_the_exponential`). A tick
+/// itself past θ₁₃ is doubled up as a difference from a sub-tick all the same.
 ///
 /// Why the difference: a rung near the identity holds a slow mode's decay
 /// e^{−λh} ≈ 1 − λh only to u/(λh) relative once I is added, and squaring Φ doubles that
@@ -127,26 +127,25 @@ pub(crate) fn rungs_by_doubling(m: &DMatrix<f64>, nx: usize, grid: &TimeGrid) ->
     let within = (0..=grid.levels)
         .take_while(|&p| norm * grid.rung(p) <= THETA_13)
         .count();
-    let doubled = within;
-    let mut rungs: Vec<DMatrix<f64>> = differences(m, nx, grid, norm, doubled);
+    let mut rungs: Vec<DMatrix<f64>> = differences(m, nx, grid, norm, within);
     for f in &mut rungs {
         for i in 0..n {
             f[(i, i)] += 1.0;
         }
     }
-    for p in doubled as u32..=grid.levels {
-        let h = grid.rung(p);
+    for _ in within as u32..=grid.levels {
         let next = match rungs.last() {
-            Some(below) if norm * h > THETA_13 => {
+            Some(below) => {
                 let mut square = DMatrix::zeros(n, n);
                 square_fed(below, nx, &mut square);
                 square
             }
-            _ => {
-                // No state feeds the inputs, in M nor in its exponential: the block is
-                // set to zero rather than left to the Padé solve's round-off.
-                let mut phi = (m * h).exp();
-                phi.view_mut((nx, 0), (n - nx, nx)).fill(0.0);
+            None => {
+                // The tick itself is past θ₁₃: its difference doubled up from a sub-tick.
+                let mut phi = differences(m, nx, grid, norm, 1).remove(0);
+                for i in 0..n {
+                    phi[(i, i)] += 1.0;
+                }
                 phi
             }
         };
@@ -156,7 +155,7 @@ pub(crate) fn rungs_by_doubling(m: &DMatrix<f64>, nx: usize, grid: &TimeGrid) ->
 }
 
 /// F_p = Φ_p − I of the first `count` rungs, by Taylor on the tick (halved to within
-/// [`TAYLOR_NORM`] if need be) and doubling; for rungs within θ₁₃.
+/// [`TAYLOR_NORM`] if need be) and doubling.
 pub(crate) fn differences(
     m: &DMatrix<f64>,
     nx: usize,

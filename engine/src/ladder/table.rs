@@ -8,9 +8,9 @@
 //! which no state feeds. So Φ·z = A_x·x + A_u·u, where A_u·u stays the same from step
 //! to step while the sources hold still, and the rows of u never need A_x.
 
-use nalgebra::DMatrix;
-
 use std::sync::OnceLock;
+
+use nalgebra::DMatrix;
 
 use super::{oscillation_limit, rungs_by_doubling, Tick, TimeGrid};
 use crate::kernel;

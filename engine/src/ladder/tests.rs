@@ -74,11 +74,13 @@ fn rungs_match_the_exponential() {
     // the Padé exponential. 5e-13 bounds that with room for another processor's
     // rounding; squaring Φ from the shortest rung would be off by ~2e-10 on the slow mode
     // (module documentation of `ladder.rs`). The trial grid (a tick of 1e-12 of the
-    // period, 39 rungs) starts far below the Taylor bound.
+    // period, 39 rungs) starts far below the Taylor bound; a coarse grid (a tick of
+    // 1e-4 of the period, ‖M‖₁·q ≈ 20) starts from the Padé exponential of its tick.
     let period = 1.0 / 150e3;
     let trial = TimeGrid::new(period / 4.0, 1e-12 * period).expect("valid grid");
+    let coarse = TimeGrid::new(period / 4.0, 1e-4 * period).expect("valid grid");
     let m = stiff_m();
-    for grid in [converter_grid(), trial] {
+    for grid in [converter_grid(), trial, coarse] {
         let rungs = rungs_by_doubling(&m, m.nrows(), &grid);
         assert_eq!(rungs.len(), grid.levels as usize + 1);
         let (mut worst, mut pade): (f64, f64) = (0.0, 0.0);
