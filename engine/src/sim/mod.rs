@@ -2,8 +2,10 @@
 //! the cached propagator ladder (`step.rs`), diode settling, storm guard, output
 //! sampling.
 //!
-//! The stepping loop allocates nothing: every vector it touches is allocated when the
-//! simulation is built.
+//! The stepping loop allocates nothing of its own: every vector it touches is allocated
+//! when the simulation is built. What a circuit needs the first time it is needed (a
+//! topology, a table entry of its ladder, a meter block for an entry) is allocated
+//! then, once, and kept.
 
 use nalgebra::DVector;
 

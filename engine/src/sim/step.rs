@@ -1,5 +1,5 @@
 //! The stepping loop: plain steps on the step table, and event location by a search
-//! one radix digit at a time. Allocates nothing.
+//! one radix digit at a time. Allocates nothing of its own (see the module above).
 
 use std::sync::Arc;
 
