@@ -8,8 +8,10 @@
 //! `cargo bench --bench batch_scaling` (a plain bench: five alternated pairs).
 
 use std::path::{Path, PathBuf};
-use std::process::Command;
-use std::time::{Duration, Instant};
+use std::time::Duration;
+
+mod common;
+use common::{batch_wall, median};
 
 fn study(dir: &Path) -> PathBuf {
     let base = concat!(env!("CARGO_MANIFEST_DIR"), "/scenarios/demo-startup.json");
@@ -35,28 +37,6 @@ fn study(dir: &Path) -> PathBuf {
     path
 }
 
-/// Wall time of one run of the study on `jobs` workers.
-fn run(study: &Path, out: &Path, jobs: usize) -> Duration {
-    let t = Instant::now();
-    let status = Command::new(env!("CARGO_BIN_EXE_stepflux"))
-        .arg("batch")
-        .arg(study)
-        .arg("--out")
-        .arg(out)
-        .args(["--waveforms", "none", "--jobs", &jobs.to_string()])
-        .stdout(std::process::Stdio::null())
-        .stderr(std::process::Stdio::null())
-        .status()
-        .expect("binary runs");
-    let elapsed = t.elapsed();
-    // 0 all passed, 1 a limit failed; both mean every case ran.
-    assert!(
-        matches!(status.code(), Some(0 | 1)),
-        "batch failed: {status}"
-    );
-    elapsed
-}
-
 /// Busy and total jiffies of all processors since boot (`/proc/stat`, first line).
 fn cpu_jiffies() -> Option<(u64, u64)> {
     let stat = std::fs::read_to_string("/proc/stat").ok()?;
@@ -80,22 +60,18 @@ fn idle_share(seconds: u64) -> Option<f64> {
     Some(1.0 - (b1 - b0) as f64 / (t1 - t0).max(1) as f64)
 }
 
-fn median(mut v: Vec<f64>) -> f64 {
-    v.sort_by(f64::total_cmp);
-    v[v.len() / 2]
-}
-
 fn main() {
     let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("bench_batch_scaling");
     let study = study(&dir);
     let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
     let before = idle_share(3);
     let load = std::fs::read_to_string("/proc/loadavg").unwrap_or_default();
-    let _ = run(&study, &dir.join("warm-up"), 2);
+    let bin = Path::new(env!("CARGO_BIN_EXE_stepflux"));
+    let _ = batch_wall(bin, &study, &dir.join("warm-up"), 2);
     let (mut one, mut two, mut ratios) = (Vec::new(), Vec::new(), Vec::new());
     for _ in 0..PAIRS {
-        let a = run(&study, &dir.join("jobs1"), 1).as_secs_f64();
-        let b = run(&study, &dir.join("jobs2"), 2).as_secs_f64();
+        let a = batch_wall(bin, &study, &dir.join("jobs1"), 1).as_secs_f64();
+        let b = batch_wall(bin, &study, &dir.join("jobs2"), 2).as_secs_f64();
         one.push(a);
         two.push(b);
         ratios.push(a / b);

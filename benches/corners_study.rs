@@ -12,42 +12,14 @@
 //! `cargo bench --bench corners_study` (a plain bench: five alternated pairs).
 
 use std::path::{Path, PathBuf};
-use std::process::Command;
-use std::time::{Duration, Instant};
+
+mod common;
+use common::{batch_wall, median};
 
 const PAIRS: usize = 5;
 
 fn root() -> &'static Path {
     Path::new(env!("CARGO_MANIFEST_DIR"))
-}
-
-/// Wall time of one `batch` run of `study` by `binary`.
-fn run(binary: &Path, study: &Path, out: &Path) -> Duration {
-    let _ = std::fs::remove_dir_all(out);
-    let t = Instant::now();
-    let status = Command::new(binary)
-        .arg("batch")
-        .arg(study)
-        .arg("--out")
-        .arg(out)
-        .args(["--waveforms", "none", "--jobs", "1", "--quiet"])
-        .stdout(std::process::Stdio::null())
-        .stderr(std::process::Stdio::null())
-        .status()
-        .expect("binary runs");
-    let elapsed = t.elapsed();
-    // 0 all passed, 1 a limit failed; both mean every case ran.
-    assert!(
-        matches!(status.code(), Some(0 | 1)),
-        "{} failed: {status}",
-        binary.display()
-    );
-    elapsed
-}
-
-fn median(mut v: Vec<f64>) -> f64 {
-    v.sort_by(f64::total_cmp);
-    v[v.len() / 2]
 }
 
 fn main() {
@@ -60,10 +32,10 @@ fn main() {
     let load = std::fs::read_to_string("/proc/loadavg").unwrap_or_default();
     let (mut now, mut then, mut ratios) = (Vec::new(), Vec::new(), Vec::new());
     for _ in 0..PAIRS {
-        let a = run(&ours, &study, &out.join("now")).as_secs_f64();
+        let a = batch_wall(&ours, &study, &out.join("now"), 1).as_secs_f64();
         now.push(a);
         if let Some(b) = &before {
-            let b = run(b, &before_study, &out.join("before")).as_secs_f64();
+            let b = batch_wall(b, &before_study, &out.join("before"), 1).as_secs_f64();
             then.push(b);
             ratios.push(b / a);
         }

@@ -11,8 +11,10 @@
 //! alternated, so both see the same machine load).
 
 use std::path::{Path, PathBuf};
-use std::process::Command;
-use std::time::{Duration, Instant};
+use std::time::Duration;
+
+mod common;
+use common::batch_wall;
 
 use serde_json::{json, Value};
 
@@ -53,27 +55,6 @@ fn study(dir: &Path, base: &Path, name: &str) -> PathBuf {
     path
 }
 
-/// Wall time of one `batch --jobs 1` of `study` into `out`.
-fn run(study: &Path, out: &Path) -> Duration {
-    let _ = std::fs::remove_dir_all(out);
-    let t = Instant::now();
-    let status = Command::new(env!("CARGO_BIN_EXE_stepflux"))
-        .arg("batch")
-        .arg(study)
-        .arg("--out")
-        .arg(out)
-        .args(["--waveforms", "none", "--jobs", "1", "--quiet"])
-        .status()
-        .expect("binary runs");
-    let elapsed = t.elapsed();
-    // 0 all passed, 1 a limit failed; both mean every case ran.
-    assert!(
-        matches!(status.code(), Some(0 | 1)),
-        "batch failed: {status}"
-    );
-    elapsed
-}
-
 /// The worst value of each step figure and of the output ripple over the study, from
 /// its `worst.json`.
 fn worst_steps(out: &Path, name: &str) -> Vec<(String, f64)> {
@@ -98,14 +79,15 @@ fn worst_steps(out: &Path, name: &str) -> Vec<(String, f64)> {
 }
 
 fn main() {
+    let bin = Path::new(env!("CARGO_BIN_EXE_stepflux"));
     let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("bench_study_start");
     std::fs::create_dir_all(&dir).expect("bench folder");
     let cold = study(&dir, &scenario(&dir, false), "cold");
     let steady = study(&dir, &scenario(&dir, true), "steady");
     let (mut t_cold, mut t_steady) = (Duration::MAX, Duration::MAX);
     for _ in 0..REPEATS {
-        t_cold = t_cold.min(run(&cold, &dir.join("out-cold")));
-        t_steady = t_steady.min(run(&steady, &dir.join("out-steady")));
+        t_cold = t_cold.min(batch_wall(bin, &cold, &dir.join("out-cold"), 1));
+        t_steady = t_steady.min(batch_wall(bin, &steady, &dir.join("out-steady"), 1));
     }
     println!("load-step study, 24 cases, one worker, best of {REPEATS}:");
     println!(

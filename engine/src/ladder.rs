@@ -127,29 +127,19 @@ pub(crate) fn rungs_by_doubling(m: &DMatrix<f64>, nx: usize, grid: &TimeGrid) ->
     let within = (0..=grid.levels)
         .take_while(|&p| norm * grid.rung(p) <= THETA_13)
         .count();
-    let mut rungs: Vec<DMatrix<f64>> = differences(m, nx, grid, norm, within);
+    // At least the tick itself as a difference, doubled up from a sub-tick when it is
+    // past θ₁₃.
+    let mut rungs: Vec<DMatrix<f64>> = differences(m, nx, grid, norm, within.max(1));
     for f in &mut rungs {
         for i in 0..n {
             f[(i, i)] += 1.0;
         }
     }
-    for _ in within as u32..=grid.levels {
-        let next = match rungs.last() {
-            Some(below) => {
-                let mut square = DMatrix::zeros(n, n);
-                square_fed(below, nx, &mut square);
-                square
-            }
-            None => {
-                // The tick itself is past θ₁₃: its difference doubled up from a sub-tick.
-                let mut phi = differences(m, nx, grid, norm, 1).remove(0);
-                for i in 0..n {
-                    phi[(i, i)] += 1.0;
-                }
-                phi
-            }
-        };
-        rungs.push(next);
+    while rungs.len() <= grid.levels as usize {
+        let below = rungs.last().expect("the tick's rung");
+        let mut square = DMatrix::zeros(n, n);
+        square_fed(below, nx, &mut square);
+        rungs.push(square);
     }
     rungs
 }

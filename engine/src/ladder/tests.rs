@@ -41,9 +41,10 @@ fn norm1(a: &DMatrix<f64>) -> f64 {
 }
 
 /// exp(M·h) of [`stiff_m`] in closed form by its block structure M = [[a, r], [0, B]]
-/// (a scalar): exp(M·h) = [[e^{ah}, x], [0, e^{Bh}]] with x·(aI − B) = e^{ah}·r − r·e^{Bh}
-/// (the Sylvester equation of the off-diagonal block, Higham, *Functions of Matrices*,
-/// SIAM 2008, §4.6 and §9.1). aI − B is well conditioned (|a| = 5e10 /s dwarfs B) and
+/// (a scalar): exp(M·h) = [[e^{ah}, x], [0, e^{Bh}]] with x·(aI − B) = e^{ah}·r − r·e^{Bh},
+/// the off-diagonal block of F·M = M·F for F = exp(M·h) (the commutation that Parlett's
+/// recurrence rests on: Parlett, "A recurrence among the elements of functions of
+/// triangular matrices", Linear Algebra Appl. 14 (1976)). aI − B is well conditioned (|a| = 5e10 /s dwarfs B) and
 /// ‖B·h‖ stays below one on every rung here, so e^{Bh} needs no squaring: accurate to a
 /// few units of round-off, whatever the stiffness.
 fn stiff_exp(h: f64) -> DMatrix<f64> {
