@@ -13,7 +13,7 @@ use std::sync::OnceLock;
 use nalgebra::DMatrix;
 
 use super::{oscillation_limit, rungs_by_doubling, Tick, TimeGrid};
-use crate::kernel;
+use crate::kernel::{self, Operand};
 
 /// The cached propagators of one topology (see the module documentation). Entries are
 /// formed when first read, each by the same product from the same inputs whenever that
@@ -119,13 +119,22 @@ impl Ladder {
     fn times_rung(&self, before: &DMatrix<f64>, rung: &DMatrix<f64>, out: &mut DMatrix<f64>) {
         let (nx, nz, rows) = (self.nx, self.nz, self.rows);
         let (b, r) = (before.as_slice(), rung.as_slice());
-        let head = self.u_row();
-        for (c, column) in out.as_mut_slice().chunks_exact_mut(rows).enumerate() {
-            // A column of x has zeros in the rows of u (no state feeds u), left as they are.
-            let (inner, rows_out) = if c < nx { (nx, head) } else { (nz, rows) };
-            let x = &r[c * nz..c * nz + inner];
-            kernel::matvec_rows(&b[..inner * rows], rows, x, &mut column[..rows_out]);
-        }
+        let (x_part, u_part) = out.as_mut_slice().split_at_mut(nx * rows);
+        // A column of x has zeros in the rows of u (no state feeds u), left as they are.
+        let a = Operand {
+            a: b,
+            lda: rows,
+            rows: self.u_row(),
+            inner: nx,
+        };
+        kernel::product(a, r, nz, nx, x_part, rows);
+        let a = Operand {
+            a: b,
+            lda: rows,
+            rows,
+            inner: nz,
+        };
+        kernel::product(a, &r[nx * nz..], nz, nz - nx, u_part, rows);
     }
 
     /// out = S₀·Φ for a rung Φ: its rows of x and of u as they are, the event rows E·Φ
@@ -133,14 +142,31 @@ impl Ladder {
     fn stack(&self, rung: &DMatrix<f64>, out: &mut DMatrix<f64>) {
         let (nx, nz, rows, head) = (self.nx, self.nz, self.rows, self.u_row());
         let (e, r) = (self.events.as_slice(), rung.as_slice());
-        for (c, column) in out.as_mut_slice().chunks_exact_mut(rows).enumerate() {
-            let phi = &r[c * nz..(c + 1) * nz];
-            let inner = if c < nx { nx } else { nz };
+        for (column, phi) in out
+            .as_mut_slice()
+            .chunks_exact_mut(rows)
+            .zip(r.chunks_exact(nz))
+        {
             column[..nx].copy_from_slice(&phi[..nx]);
-            let ne = self.n_events;
-            kernel::matvec_rows(&e[..inner * ne], ne, &phi[..inner], &mut column[nx..head]);
             column[head..head + nz - nx].copy_from_slice(&phi[nx..]);
         }
+        let ne = self.n_events;
+        let events = out.as_mut_slice().split_at_mut(nx).1;
+        let (x_part, u_part) = events.split_at_mut(nx * rows);
+        let a = Operand {
+            a: e,
+            lda: ne,
+            rows: ne,
+            inner: nx,
+        };
+        kernel::product(a, r, nz, nx, x_part, rows);
+        let a = Operand {
+            a: e,
+            lda: ne,
+            rows: ne,
+            inner: nz,
+        };
+        kernel::product(a, &r[nx * nz..], nz, nz - nx, u_part, rows);
     }
 
     /// Φ of entry `entry` in z's own order (nz × nz), newly allocated; for work done

@@ -105,15 +105,14 @@ impl Sensitivity {
     /// about to be taken; [`Sensitivity::commit`] makes it S once the step is.
     pub(super) fn propose(&mut self, stacked: &DMatrix<f64>, rows: usize) {
         let nx = self.nx;
-        let a = stacked.as_slice();
-        for (column, out) in self
-            .s
-            .as_slice()
-            .chunks_exact(nx)
-            .zip(self.next.as_mut_slice().chunks_exact_mut(nx))
-        {
-            kernel::matvec_rows(a, rows, column, out);
-        }
+        let a = kernel::Operand {
+            a: stacked.as_slice(),
+            lda: rows,
+            rows: nx,
+            inner: nx,
+        };
+        let cols = self.s.ncols();
+        kernel::product(a, self.s.as_slice(), nx, cols, self.next.as_mut_slice(), nx);
     }
 
     pub(super) fn commit(&mut self) {
