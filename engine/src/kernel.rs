@@ -181,12 +181,16 @@ fn columns<const C: usize>(
         r += 4;
     }
     for i in r..a.rows {
-        for (c, xc) in xs.iter().enumerate() {
-            let mut sum = 0.0;
-            for (k, &v) in xc.iter().enumerate() {
-                sum += a.a[k * a.lda + i] * v;
+        // The C sums of a row side by side, so they too run independently.
+        let mut sums = [0.0f64; C];
+        for k in 0..a.inner {
+            let a_ik = a.a[k * a.lda + i];
+            for (sum, xc) in sums.iter_mut().zip(&xs) {
+                *sum += a_ik * xc[k];
             }
-            out[(j0 + c) * ldo + i] = sum;
+        }
+        for (c, sum) in sums.iter().enumerate() {
+            out[(j0 + c) * ldo + i] = *sum;
         }
     }
 }
