@@ -12,6 +12,28 @@
 /// Solves A·X = B in place for A n × n and B n × `nrhs`, both column-major: B is
 /// overwritten by X and A by its factors. False when A is singular (a zero pivot).
 pub(crate) fn solve_in_place(a: &mut [f64], n: usize, b: &mut [f64], nrhs: usize) -> bool {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx") {
+        // SAFETY: the processor has just been found to support AVX, the only
+        // requirement of `solve_avx`.
+        return unsafe { solve_avx(a, n, b, nrhs) };
+    }
+    solve_any(a, n, b, nrhs)
+}
+
+/// [`solve_in_place`] compiled for AVX (separate multiplies and adds as without it, so
+/// the same bits).
+///
+/// # Safety
+/// The processor must support AVX.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx")]
+unsafe fn solve_avx(a: &mut [f64], n: usize, b: &mut [f64], nrhs: usize) -> bool {
+    solve_any(a, n, b, nrhs)
+}
+
+#[inline(always)]
+fn solve_any(a: &mut [f64], n: usize, b: &mut [f64], nrhs: usize) -> bool {
     debug_assert_eq!(a.len(), n * n);
     debug_assert_eq!(b.len(), n * nrhs);
     for k in 0..n {
@@ -60,7 +82,7 @@ pub(crate) fn solve_in_place(a: &mut [f64], n: usize, b: &mut [f64], nrhs: usize
 }
 
 /// column[i] −= l_i·column[k] below row k, skipped when column[k] is zero.
-#[inline]
+#[inline(always)]
 fn eliminate(column: &mut [f64], k: usize, l: &[f64]) {
     let x = column[k];
     if x != 0.0 {
@@ -70,6 +92,7 @@ fn eliminate(column: &mut [f64], k: usize, l: &[f64]) {
     }
 }
 
+#[inline(always)]
 fn swap_rows(a: &mut [f64], n: usize, columns: usize, i: usize, j: usize) {
     for c in 0..columns {
         a.swap(c * n + i, c * n + j);
