@@ -37,16 +37,12 @@ fn solve_any(a: &mut [f64], n: usize, b: &mut [f64], nrhs: usize) -> bool {
     debug_assert_eq!(a.len(), n * n);
     debug_assert_eq!(b.len(), n * nrhs);
     for k in 0..n {
-        let column = &a[k * n..(k + 1) * n];
-        let (p, pivot) = (k..n)
-            .map(|i| (i, column[i]))
-            .fold((k, 0.0f64), |best, (i, v)| {
-                if v.abs() > best.1.abs() {
-                    (i, v)
-                } else {
-                    best
-                }
-            });
+        // The first row of the largest magnitude, found as the largest first (four
+        // independent maxima, where a running argmax waits on each comparison).
+        let below = &a[k * n + k..(k + 1) * n];
+        let largest = max_abs(below);
+        let p = k + below.iter().position(|v| v.abs() == largest).unwrap_or(0);
+        let pivot = a[k * n + p];
         if pivot == 0.0 || !pivot.is_finite() {
             return false;
         }
@@ -79,6 +75,22 @@ fn solve_any(a: &mut [f64], n: usize, b: &mut [f64], nrhs: usize) -> bool {
         }
     }
     true
+}
+
+/// The largest |v| over `values` (0 when empty; NaN entries are passed over, as the
+/// comparison `>` of a running maximum passes them over).
+#[inline(always)]
+fn max_abs(values: &[f64]) -> f64 {
+    let chunks = values.chunks_exact(4);
+    let rest = chunks.remainder();
+    let mut m = [0.0f64; 4];
+    for c in chunks {
+        for (mi, &v) in m.iter_mut().zip(c) {
+            *mi = mi.max(v.abs());
+        }
+    }
+    let tail = rest.iter().fold(0.0f64, |acc, &v| acc.max(v.abs()));
+    m[0].max(m[1]).max(m[2].max(m[3])).max(tail)
 }
 
 /// column[i] −= l_i·column[k] below row k, skipped when column[k] is zero.
