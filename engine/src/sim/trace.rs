@@ -41,6 +41,8 @@ pub(super) struct TraceState {
     /// inside a step that starts at that point, in the same topology.
     prev_slopes: Vec<f64>,
     prev_at: Option<(Tick, Topology)>,
+    /// Slopes at the end of the step just taken.
+    end_slopes: Vec<f64>,
     /// Extrema found in the present step: (tick, probe), and the state at each.
     found: Vec<(Tick, usize)>,
     states: Vec<f64>,
@@ -55,6 +57,7 @@ impl TraceState {
             slopes: vec![f64::NAN; n_probes],
             prev_slopes: vec![f64::NAN; n_probes],
             prev_at: None,
+            end_slopes: vec![f64::NAN; n_probes],
             found: Vec::with_capacity(n_probes),
             states: Vec::new(),
         }
@@ -164,6 +167,11 @@ impl Simulation {
     ) -> Result<(), EngineError> {
         let first = self.first_probe_row();
         self.trace.found.clear();
+        // The slopes at the step's end, once: for the extrema search and the end's point.
+        let t = &mut self.trace;
+        for &k in &t.list {
+            t.end_slopes[k] = topo.slope(first + k, self.run.z.as_slice());
+        }
         if self.trace.prev_at == Some((self.start_tick, topo.topology)) {
             for j in 0..self.trace.list.len() {
                 let k = self.trace.list[j];
@@ -171,7 +179,7 @@ impl Simulation {
                     continue;
                 };
                 let s0 = self.trace.prev_slopes[k];
-                let s1 = topo.slope(first + k, self.run.z.as_slice());
+                let s1 = self.trace.end_slopes[k];
                 let wanted = match turning {
                     Turning::Maxima => s0 > 0.0 && s1 < 0.0,
                     Turning::Minima => s0 < 0.0 && s1 > 0.0,
@@ -203,7 +211,12 @@ impl Simulation {
         }
         self.trace.found = found;
         self.peek_z.copy_from_slice(self.run.z.as_slice());
-        self.trace_point(topo, sink, TraceKind::Step)
+        let t = &mut self.trace;
+        for &k in &t.list {
+            t.values[k] = topo.value_at(first + k, &self.peek_z);
+            t.slopes[k] = t.end_slopes[k];
+        }
+        self.send_point(topo, sink, TraceKind::Step)
     }
 
     /// A trace point at the present state in the present topology (after a switching
@@ -230,6 +243,17 @@ impl Simulation {
     ) -> Result<(), EngineError> {
         let first = self.first_probe_row();
         fill_point(topo, first, &self.peek_z, &mut self.trace);
+        self.send_point(topo, sink, kind)
+    }
+
+    /// Sends the point whose values and slopes `trace` holds, at the present tick in
+    /// `topo`, and remembers its slopes.
+    fn send_point(
+        &mut self,
+        topo: &TopologyData,
+        sink: &mut dyn Sink,
+        kind: TraceKind,
+    ) -> Result<(), EngineError> {
         let time = self.time();
         let point = TracePoint {
             time,
