@@ -101,6 +101,30 @@ pub(crate) struct Operand<'a> {
     pub inner: usize,
 }
 
+/// out = A·B for B a propagator or one less the identity (n × n, `a.inner` = n, its
+/// first `nx` states dynamic): no state feeds the sources, so B's rows of u are zero in
+/// its columns of x, and out's columns of x (their first `rows_x` rows) take A's columns
+/// of x alone; its columns of u (`a.rows` rows) take all of A. The same sums in the
+/// same order as the full product less terms that are exactly zero.
+pub(crate) fn times_fed(
+    a: Operand<'_>,
+    rows_x: usize,
+    b: &[f64],
+    nx: usize,
+    out: &mut [f64],
+    ldo: usize,
+) {
+    let n = a.inner;
+    let (x_part, u_part) = out.split_at_mut(nx * ldo);
+    let states = Operand {
+        rows: rows_x,
+        inner: nx,
+        ..a
+    };
+    product(states, b, n, nx, x_part, ldo);
+    product(a, &b[nx * n..], n, n - nx, u_part, ldo);
+}
+
 /// Columns j < `cols` of out (leading dimension `ldo`) = A·(column j of x, leading
 /// dimension `ldx`, its first `a.inner` entries), each entry the sum [`matvec_rows`]
 /// forms. Four columns go together, so each column of A is loaded once for four

@@ -183,30 +183,16 @@ pub(crate) fn differences(
 /// feeds the inputs): the columns of x need A's columns of x only. The same sums in
 /// the same order as the full product without its terms that are exactly zero.
 fn square_fed(a: &DMatrix<f64>, nx: usize, out: &mut DMatrix<f64>) {
-    use crate::kernel::{product, Operand};
+    use crate::kernel::{times_fed, Operand};
     let n = a.nrows();
     let s = a.as_slice();
-    let (x_part, u_part) = out.as_mut_slice().split_at_mut(nx * n);
-    product(
-        Operand {
-            a: s,
-            lda: n,
-            rows: n,
-            inner: nx,
-        },
-        s,
-        n,
-        nx,
-        x_part,
-        n,
-    );
     let all = Operand {
         a: s,
         lda: n,
         rows: n,
         inner: n,
     };
-    product(all, &s[nx * n..], n, n - nx, u_part, n);
+    times_fed(all, n, s, nx, out.as_mut_slice(), n);
 }
 
 /// exp(A) − I for ‖A‖₁ ≤ [`TAYLOR_NORM`], by the Taylor polynomial of the least degree

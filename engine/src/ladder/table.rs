@@ -119,22 +119,14 @@ impl Ladder {
     fn times_rung(&self, before: &DMatrix<f64>, rung: &DMatrix<f64>, out: &mut DMatrix<f64>) {
         let (nx, nz, rows) = (self.nx, self.nz, self.rows);
         let (b, r) = (before.as_slice(), rung.as_slice());
-        let (x_part, u_part) = out.as_mut_slice().split_at_mut(nx * rows);
         // A column of x has zeros in the rows of u (no state feeds u), left as they are.
-        let a = Operand {
-            a: b,
-            lda: rows,
-            rows: self.u_row(),
-            inner: nx,
-        };
-        kernel::product(a, r, nz, nx, x_part, rows);
         let a = Operand {
             a: b,
             lda: rows,
             rows,
             inner: nz,
         };
-        kernel::product(a, &r[nx * nz..], nz, nz - nx, u_part, rows);
+        kernel::times_fed(a, self.u_row(), r, nx, out.as_mut_slice(), rows);
     }
 
     /// out = S₀·Φ for a rung Φ: its rows of x and of u as they are, the event rows E·Φ
@@ -152,21 +144,13 @@ impl Ladder {
         }
         let ne = self.n_events;
         let events = out.as_mut_slice().split_at_mut(nx).1;
-        let (x_part, u_part) = events.split_at_mut(nx * rows);
-        let a = Operand {
-            a: e,
-            lda: ne,
-            rows: ne,
-            inner: nx,
-        };
-        kernel::product(a, r, nz, nx, x_part, rows);
         let a = Operand {
             a: e,
             lda: ne,
             rows: ne,
             inner: nz,
         };
-        kernel::product(a, &r[nx * nz..], nz, nz - nx, u_part, rows);
+        kernel::times_fed(a, ne, r, nx, events, rows);
     }
 
     /// Φ of entry `entry` in z's own order (nz × nz), newly allocated; for work done
