@@ -2,6 +2,37 @@
 //! tens), so what matters is that the loops vectorise and carry no bounds checks or
 //! strides; nalgebra's general kernels do neither for dynamically sized storage.
 
+/// Defines `fn $name(args) = $body;` as a call of `$body` (an `#[inline(always)]`
+/// function of the same arguments) compiled for AVX where the processor has it,
+/// and as written elsewhere. The loops then run four lanes wide, each multiply and add
+/// still separate (no fused multiply–add), so the result is the same bit for bit on
+/// every x86-64 processor.
+macro_rules! with_avx {
+    ($(#[$attr:meta])* $vis:vis fn $name:ident($($arg:ident: $ty:ty),* $(,)?) $(-> $ret:ty)? = $body:ident;) => {
+        $(#[$attr])*
+        $vis fn $name($($arg: $ty),*) $(-> $ret)? {
+            #[cfg(target_arch = "x86_64")]
+            {
+                /// `$body` compiled for AVX.
+                ///
+                /// # Safety
+                /// The processor must support AVX.
+                #[target_feature(enable = "avx")]
+                unsafe fn avx($($arg: $ty),*) $(-> $ret)? {
+                    $body($($arg),*)
+                }
+                if std::arch::is_x86_feature_detected!("avx") {
+                    // SAFETY: the processor has just been found to support AVX, the
+                    // only requirement of `avx`.
+                    return unsafe { avx($($arg),*) };
+                }
+            }
+            $body($($arg),*)
+        }
+    };
+}
+pub(crate) use with_avx;
+
 /// y = the first `y.len()` rows of A·x, for A stored column-major with leading
 /// dimension `lda` (rows per column) and `x.len()` columns. Columns are added in order,
 /// so the result does not depend on the vector width. Rows go in blocks of 8
@@ -20,31 +51,12 @@ pub(crate) fn matvec_add(a: &[f64], lda: usize, x: &[f64], b: &[f64], y: &mut [f
     accumulate(a, lda, x, y);
 }
 
-/// y += the first `y.len()` rows of A·x, in blocks of 8 and 4 rows held in registers
-/// across all columns, so y is read and written once. On x86-64 processors with AVX
-/// the same loops are compiled four lanes wide; each row still adds its products one
-/// column after another, with separate multiply and add (no fused multiply–add), so the
-/// result is the same bit for bit on every x86-64 processor.
-#[inline]
-fn accumulate(a: &[f64], lda: usize, x: &[f64], y: &mut [f64]) {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx") {
-        // SAFETY: the processor has just been found to support AVX, the only
-        // requirement of `accumulate_avx`.
-        unsafe { accumulate_avx(a, lda, x, y) };
-        return;
-    }
-    accumulate_any(a, lda, x, y);
-}
-
-/// [`accumulate`] compiled for AVX.
-///
-/// # Safety
-/// The processor must support AVX.
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx")]
-unsafe fn accumulate_avx(a: &[f64], lda: usize, x: &[f64], y: &mut [f64]) {
-    accumulate_any(a, lda, x, y);
+with_avx! {
+    /// y += the first `y.len()` rows of A·x, in blocks of 8 and 4 rows held in
+    /// registers across all columns, so y is read and written once; each row adds its
+    /// products one column after another.
+    #[inline]
+    fn accumulate(a: &[f64], lda: usize, x: &[f64], y: &mut [f64]) = accumulate_any;
 }
 
 /// The loops of [`accumulate`], for whatever instruction set the caller has.
@@ -125,44 +137,20 @@ pub(crate) fn times_fed(
     product(a, &b[nx * n..], n, n - nx, u_part, ldo);
 }
 
-/// Columns j < `cols` of out (leading dimension `ldo`) = A·(column j of x, leading
-/// dimension `ldx`, its first `a.inner` entries), each entry the sum [`matvec_rows`]
-/// forms. Four columns go together, so each column of A is loaded once for four
-/// products and four independent sums hide the latency of the adds that a single
-/// matrix–vector product waits on.
-pub(crate) fn product(
-    a: Operand<'_>,
-    x: &[f64],
-    ldx: usize,
-    cols: usize,
-    out: &mut [f64],
-    ldo: usize,
-) {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx") {
-        // SAFETY: the processor has just been found to support AVX, the only
-        // requirement of `product_avx`.
-        unsafe { product_avx(a, x, ldx, cols, out, ldo) };
-        return;
-    }
-    product_any(a, x, ldx, cols, out, ldo);
-}
-
-/// [`product`] compiled for AVX.
-///
-/// # Safety
-/// The processor must support AVX.
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx")]
-unsafe fn product_avx(
-    a: Operand<'_>,
-    x: &[f64],
-    ldx: usize,
-    cols: usize,
-    out: &mut [f64],
-    ldo: usize,
-) {
-    product_any(a, x, ldx, cols, out, ldo);
+with_avx! {
+    /// Columns j < `cols` of out (leading dimension `ldo`) = A·(column j of x, leading
+    /// dimension `ldx`, its first `a.inner` entries), each entry the sum
+    /// [`matvec_rows`] forms. Four columns go together, so each column of A is loaded
+    /// once for four products and four independent sums hide the latency of the adds
+    /// that a single matrix–vector product waits on.
+    pub(crate) fn product(
+        a: Operand<'_>,
+        x: &[f64],
+        ldx: usize,
+        cols: usize,
+        out: &mut [f64],
+        ldo: usize,
+    ) = product_any;
 }
 
 #[inline(always)]
@@ -245,28 +233,10 @@ fn panel<const B: usize, const C: usize>(
     acc
 }
 
-/// s += z·zᵀ for s column-major, z.len() × z.len() (four lanes wide with AVX, as
-/// [`accumulate`]).
-#[inline]
-pub(crate) fn add_outer(z: &[f64], s: &mut [f64]) {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx") {
-        // SAFETY: the processor has just been found to support AVX, the only
-        // requirement of `add_outer_avx`.
-        unsafe { add_outer_avx(z, s) };
-        return;
-    }
-    add_outer_any(z, s);
-}
-
-/// [`add_outer`] compiled for AVX.
-///
-/// # Safety
-/// The processor must support AVX.
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx")]
-unsafe fn add_outer_avx(z: &[f64], s: &mut [f64]) {
-    add_outer_any(z, s);
+with_avx! {
+    /// s += z·zᵀ for s column-major, z.len() × z.len().
+    #[inline]
+    pub(crate) fn add_outer(z: &[f64], s: &mut [f64]) = add_outer_any;
 }
 
 #[inline(always)]

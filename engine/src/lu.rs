@@ -9,27 +9,10 @@
 //! in the pivot column (Golub & Van Loan, *Matrix Computations*, 4th ed., §3.4,
 //! Algorithm 3.4.1), then forward and back substitution (§3.1).
 
-/// Solves A·X = B in place for A n × n and B n × `nrhs`, both column-major: B is
-/// overwritten by X and A by its factors. False when A is singular (a zero pivot).
-pub(crate) fn solve_in_place(a: &mut [f64], n: usize, b: &mut [f64], nrhs: usize) -> bool {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx") {
-        // SAFETY: the processor has just been found to support AVX, the only
-        // requirement of `solve_avx`.
-        return unsafe { solve_avx(a, n, b, nrhs) };
-    }
-    solve_any(a, n, b, nrhs)
-}
-
-/// [`solve_in_place`] compiled for AVX (separate multiplies and adds as without it, so
-/// the same bits).
-///
-/// # Safety
-/// The processor must support AVX.
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx")]
-unsafe fn solve_avx(a: &mut [f64], n: usize, b: &mut [f64], nrhs: usize) -> bool {
-    solve_any(a, n, b, nrhs)
+crate::kernel::with_avx! {
+    /// Solves A·X = B in place for A n × n and B n × `nrhs`, both column-major: B is
+    /// overwritten by X and A by its factors. False when A is singular (a zero pivot).
+    pub(crate) fn solve_in_place(a: &mut [f64], n: usize, b: &mut [f64], nrhs: usize) -> bool = solve_any;
 }
 
 #[inline(always)]
