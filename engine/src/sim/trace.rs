@@ -211,9 +211,9 @@ impl Simulation {
         }
         self.trace.found = found;
         self.peek_z.copy_from_slice(self.run.z.as_slice());
+        fill_values(topo, first, &self.peek_z, &mut self.trace);
         let t = &mut self.trace;
         for &k in &t.list {
-            t.values[k] = topo.value_at(first + k, &self.peek_z);
             t.slopes[k] = t.end_slopes[k];
         }
         self.send_point(topo, sink, TraceKind::Step)
@@ -366,11 +366,18 @@ impl Simulation {
     }
 }
 
-/// Every probe's value and each traced probe's slope at state `z` in `topo`.
+/// Each traced probe's value and slope at state `z` in `topo`.
 fn fill_point(topo: &TopologyData, first: usize, z: &[f64], t: &mut TraceState) {
+    fill_values(topo, first, z, t);
+    for &k in &t.list {
+        t.slopes[k] = topo.slope(first + k, z);
+    }
+}
+
+/// Each traced probe's value at state `z` in `topo`.
+fn fill_values(topo: &TopologyData, first: usize, z: &[f64], t: &mut TraceState) {
     for &k in &t.list {
         t.values[k] = topo.value_at(first + k, z);
-        t.slopes[k] = topo.slope(first + k, z);
     }
 }
 
