@@ -123,7 +123,7 @@ const STEPS_PER_OSCILLATION: f64 = 8.0;
 /// `rungs_keep_a_slow_modes_decay` check both regimes against closed forms.
 pub(crate) fn rungs_by_doubling(m: &DMatrix<f64>, nx: usize, grid: &TimeGrid) -> Vec<DMatrix<f64>> {
     let n = m.nrows();
-    let norm = m.column_iter().map(|c| c.abs().sum()).fold(0.0, f64::max);
+    let norm = one_norm(m);
     let within = (0..=grid.levels)
         .take_while(|&p| norm * grid.rung(p) <= THETA_13)
         .count();
@@ -195,11 +195,28 @@ fn square_fed(a: &DMatrix<f64>, nx: usize, out: &mut DMatrix<f64>) {
     times_fed(all, n, s, nx, out.as_mut_slice(), n);
 }
 
+/// ‖A‖₁, the largest column sum of magnitudes: the bound on how fast any mode of A
+/// moves that the Taylor and doubling steps here are sized by.
+pub(crate) fn one_norm(a: &DMatrix<f64>) -> f64 {
+    a.column_iter().map(|c| c.abs().sum()).fold(0.0, f64::max)
+}
+
+/// Ticks within which no mode of M has moved through its first time constant:
+/// ‖M‖₁·h ≤ 1 for steps of at most this many ticks (at least one tick).
+pub(crate) fn quiet_ticks(m: &DMatrix<f64>, grid: &TimeGrid) -> Tick {
+    let ticks = (1.0 / (one_norm(m) * grid.quantum)).floor();
+    if ticks.is_finite() {
+        (ticks as Tick).clamp(1, 1 << grid.levels)
+    } else {
+        1 << grid.levels
+    }
+}
+
 /// exp(A) − I for ‖A‖₁ ≤ [`TAYLOR_NORM`], by the Taylor polynomial of the least degree
 /// K whose remainder bound ‖A‖^{K+1}/(K+1)!·e^{‖A‖} is below unit round-off relative to
 /// ‖A‖, in Horner form without the identity: A(I + A/2(I + A/3(… (I + A/K)))).
 fn expm1_taylor(a: &DMatrix<f64>) -> DMatrix<f64> {
-    let norm = a.column_iter().map(|c| c.abs().sum()).fold(0.0, f64::max);
+    let norm = one_norm(a);
     let unit = f64::EPSILON / 2.0;
     let (mut degree, mut remainder) = (1u32, norm / 2.0);
     while remainder * norm.exp() > unit && degree < 30 {
@@ -238,7 +255,7 @@ const THETA_13: f64 = 5.371_920_351_148_152;
 /// exponential at every read of a meter.
 pub(crate) fn tick_gramian(m: &DMatrix<f64>, x: &DMatrix<f64>, grid: &TimeGrid) -> DMatrix<f64> {
     let n = m.nrows();
-    let norm = m.column_iter().map(|c| c.abs().sum()).fold(0.0, f64::max);
+    let norm = one_norm(m);
     let halvings = (norm * grid.quantum / TAYLOR_NORM)
         .log2()
         .ceil()

@@ -12,7 +12,7 @@ use std::sync::OnceLock;
 
 use nalgebra::DMatrix;
 
-use super::{oscillation_limit, rungs_by_doubling, Tick, TimeGrid};
+use super::{oscillation_limit, quiet_ticks, rungs_by_doubling, Tick, TimeGrid};
 use crate::kernel::{self, Operand};
 
 /// The cached propagators of one topology (see the module documentation). Entries are
@@ -33,6 +33,9 @@ pub struct Ladder {
     pub rows: usize,
     /// Highest binary rung (2^top ticks) used for a plain step in this topology.
     pub top: u32,
+    /// Steps of at most this many ticks are shorter than every time scale of the
+    /// topology (‖M‖₁·h ≤ 1, [`quiet_ticks`]).
+    pub quiet: Tick,
     /// Whether every rung is finite (a propagator overflows on a topology with a fast
     /// unstable mode and a long rung); every entry is a product of rungs no longer than
     /// the step it spans.
@@ -72,6 +75,7 @@ impl Ladder {
                 .iter()
                 .all(|r| r.as_slice().iter().all(|v| v.is_finite())),
             top: oscillation_limit(m, nx, grid),
+            quiet: quiet_ticks(m, grid),
             bits,
             nz,
             nx,
@@ -197,6 +201,16 @@ impl Ladder {
         let head = self.u_row();
         let a = stacked.as_slice();
         kernel::matvec_add(a, self.rows, &z[..self.nx], &b[..head], &mut out[..head]);
+        out[head..].copy_from_slice(&b[head..]);
+    }
+
+    /// [`Ladder::step`] without the event rows (they are left as they were): a move
+    /// whose event values nobody reads, as a digit of an event search. The rows of x
+    /// and u are the same sums as `step` forms.
+    pub fn step_state(&self, stacked: &DMatrix<f64>, z: &[f64], b: &[f64], out: &mut [f64]) {
+        let (nx, head) = (self.nx, self.u_row());
+        let a = stacked.as_slice();
+        kernel::matvec_add(a, self.rows, &z[..nx], &b[..nx], &mut out[..nx]);
         out[head..].copy_from_slice(&b[head..]);
     }
 

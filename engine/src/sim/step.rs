@@ -140,20 +140,20 @@ impl Simulation {
     }
 
     /// Moves the run by table entry (j, d) of the present topology `topo`: meters,
-    /// state, sources' part and tick; the step's output stays in `ext`.
-    fn advance_by(&mut self, topo: &Arc<TopologyData>, j: u32, d: u64) {
+    /// state, sources' part and tick; the step's output (its event rows too, if `rows`
+    /// says so) stays in `ext`.
+    fn advance_by(&mut self, topo: &Arc<TopologyData>, j: u32, d: u64, rows: Rows) {
         let ladder = topo.ladder();
         let entry = ladder.index(j, d);
         self.meters.add(topo, entry, self.run.z.as_slice());
         Self::sensitivity_moves(&mut self.sens, ladder.entry(entry), ladder.rows);
-        table_step(
-            ladder,
-            topo.topology,
-            entry,
-            &mut self.sources,
-            &self.run.z,
-            &mut self.ext,
-        );
+        let stacked = ladder.entry(entry);
+        let z = self.run.z.as_slice();
+        let b = (self.sources).get(topo.topology, entry, ladder, stacked, &z[ladder.nx..]);
+        match rows {
+            Rows::All => ladder.step(stacked, z, b, &mut self.ext),
+            Rows::State => ladder.step_state(stacked, z, b, &mut self.ext),
+        }
         ladder.state_from(&self.ext, self.run.z.as_mut_slice());
         self.sources.stepped();
         self.tick += ladder.ticks(j, d);
@@ -226,10 +226,10 @@ impl Simulation {
             }
             if lo > 0 {
                 // Crossing beyond lo·R^j: move there (the only product of this digit).
-                self.advance_by(topo, j, lo);
+                self.advance_by(topo, j, lo, Rows::State);
             }
         }
-        self.advance_by(topo, 0, 1);
+        self.advance_by(topo, 0, 1, Rows::All);
         let armed = &self.armed[..self.armed_len];
         let t_hi = self.run.system.grid.time(self.tick);
         let raw = &self.ext[ladder.nx..];
@@ -266,6 +266,17 @@ impl Simulation {
 /// five more steps per switching instant.
 pub(super) const RAMP_START: Tick = 16;
 const RAMP_GROWTH: Tick = 16;
+
+/// The first step after a switching instant into the topology of `ladder`: [`RAMP_START`],
+/// or longer where even that is below every time scale of the topology. Steps over
+/// which ‖M‖₁·h ≤ 1 see no mode of M past its first time constant, so no transient
+/// has turned within them; the fastest topologies of a forward converter (a switch's
+/// on-resistance into a small capacitance) already take their first step of
+/// [`RAMP_START`] ticks at about that bound, and starting the others there treats every
+/// topology alike.
+pub(super) fn ramp_start(ladder: &Ladder) -> Tick {
+    RAMP_START.max(ladder.quiet)
+}
 
 /// Event function values at time `t` into `g`, for the functions whose bit is set in
 /// `which`, from `rows(r)`, the value of event row r (diode rows first, then event
@@ -335,6 +346,15 @@ fn crossed(lo: &[f64], hi: &[f64]) -> u128 {
         }
     }
     out
+}
+
+/// The rows of a step's output a move needs.
+#[derive(Clone, Copy)]
+enum Rows {
+    /// The state and the event rows.
+    All,
+    /// The state only.
+    State,
 }
 
 /// One step of table entry `entry` from z into `out` ([`Ladder::step`]), with the

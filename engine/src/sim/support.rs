@@ -31,7 +31,7 @@ impl Simulation {
             &mut self.d_lo,
         );
         self.g_lo_at = Some((self.tick, self.generation));
-        self.ramp = step::RAMP_START;
+        self.ramp = step::ramp_start(self.run.topo.ladder());
         Ok(())
     }
 
