@@ -58,6 +58,9 @@ pub struct TopologyData {
     /// exact like the quantity itself. Stored row-stacked so the event functions'
     /// slopes at a state are one matrix–vector product.
     pub slopes: DMatrix<f64>,
+    /// [`TopologyData::slopes`] transposed, so one row's slope (a traced probe's, at
+    /// every step end) reads contiguous memory.
+    slopes_t: DMatrix<f64>,
 }
 
 /// The inputs of a topology's [`Ladder`] besides M.
@@ -121,7 +124,8 @@ impl TopologyData {
     /// Time derivative of row `r` at state `z`, per second.
     #[inline]
     pub fn slope(&self, r: usize, z: &[f64]) -> f64 {
-        kernel::strided_dot(&self.slopes.as_slice()[r..], self.slopes.nrows(), z)
+        let n = self.slopes_t.nrows();
+        kernel::pair_dot(&self.slopes_t.as_slice()[r * n..(r + 1) * n], z)
     }
 
     /// Slopes of the first `out.len()` rows at state `z`, per second.
@@ -291,9 +295,11 @@ impl System {
         let events = rows.rows(0, n_events).into_owned();
         let bits = RADIX_BITS;
         let rows_t = rows.transpose();
+        let slopes = &rows * &m;
         Ok(TopologyData {
             topology: t,
-            slopes: &rows * &m,
+            slopes_t: slopes.transpose(),
+            slopes,
             m,
             ladder: OnceLock::new(),
             recipe: LadderRecipe {
