@@ -286,6 +286,11 @@ pub(crate) fn strided_dot(a: &[f64], stride: usize, x: &[f64]) -> f64 {
 /// row stored contiguously.
 #[inline]
 pub(crate) fn pair_dot(a: &[f64], x: &[f64]) -> f64 {
+    pair_dot_any(a, x)
+}
+
+#[inline(always)]
+fn pair_dot_any(a: &[f64], x: &[f64]) -> f64 {
     let (ca, cx) = (a.chunks_exact(2), x.chunks_exact(2));
     let (ra, rx) = (ca.remainder(), cx.remainder());
     let mut acc = [0.0f64; 2];
@@ -303,6 +308,61 @@ pub(crate) fn pair_dot(a: &[f64], x: &[f64]) -> f64 {
 /// a·b over the shorter of the two, in four interleaved partial sums.
 #[inline]
 pub(crate) fn dot(a: &[f64], b: &[f64]) -> f64 {
+    dot_any(a, b)
+}
+
+with_avx! {
+    /// out[k] = [`dot`] of row `first + k` of `rows_t` (rows of `n`, one after
+    /// another) with z, for each k in `list`: a trace point's values in one call, so
+    /// the loop runs four lanes wide where the processor can.
+    pub(crate) fn dots_listed(
+        rows_t: &[f64],
+        n: usize,
+        first: usize,
+        list: &[usize],
+        z: &[f64],
+        out: &mut [f64],
+    ) = dots_listed_any;
+}
+
+#[inline(always)]
+fn dots_listed_any(rows_t: &[f64], n: usize, first: usize, list: &[usize], z: &[f64], out: &mut [f64]) {
+    for &k in list {
+        let r = first + k;
+        out[k] = dot_any(&rows_t[r * n..(r + 1) * n], z);
+    }
+}
+
+with_avx! {
+    /// out[k] = [`pair_dot`] of row `first + k` of `rows_t` with z, for each k in
+    /// `list` (as [`dots_listed`]).
+    pub(crate) fn pair_dots_listed(
+        rows_t: &[f64],
+        n: usize,
+        first: usize,
+        list: &[usize],
+        z: &[f64],
+        out: &mut [f64],
+    ) = pair_dots_listed_any;
+}
+
+#[inline(always)]
+fn pair_dots_listed_any(
+    rows_t: &[f64],
+    n: usize,
+    first: usize,
+    list: &[usize],
+    z: &[f64],
+    out: &mut [f64],
+) {
+    for &k in list {
+        let r = first + k;
+        out[k] = pair_dot_any(&rows_t[r * n..(r + 1) * n], z);
+    }
+}
+
+#[inline(always)]
+fn dot_any(a: &[f64], b: &[f64]) -> f64 {
     let (ca, cb) = (a.chunks_exact(4), b.chunks_exact(4));
     let (ra, rb) = (ca.remainder(), cb.remainder());
     let mut acc = [0.0f64; 4];

@@ -128,6 +128,22 @@ impl TopologyData {
         kernel::pair_dot(&self.slopes_t.as_slice()[r * n..(r + 1) * n], z)
     }
 
+    /// `out[k]` = the value of row `first + k` at state `z`, for each k in `list`
+    /// (the same bits as [`TopologyData::value_at`]).
+    #[inline]
+    pub fn values_listed(&self, first: usize, list: &[usize], z: &[f64], out: &mut [f64]) {
+        let n = self.rows_t.nrows();
+        kernel::dots_listed(self.rows_t.as_slice(), n, first, list, z, out);
+    }
+
+    /// `out[k]` = the slope of row `first + k` at state `z`, for each k in `list`
+    /// (the same bits as [`TopologyData::slope`]).
+    #[inline]
+    pub fn slopes_listed(&self, first: usize, list: &[usize], z: &[f64], out: &mut [f64]) {
+        let n = self.slopes_t.nrows();
+        kernel::pair_dots_listed(self.slopes_t.as_slice(), n, first, list, z, out);
+    }
+
     /// Slopes of the first `out.len()` rows at state `z`, per second.
     #[inline]
     pub fn slopes_into(&self, z: &[f64], out: &mut [f64]) {

@@ -169,9 +169,7 @@ impl Simulation {
         self.trace.found.clear();
         // The slopes at the step's end, once: for the extrema search and the end's point.
         let t = &mut self.trace;
-        for &k in &t.list {
-            t.end_slopes[k] = topo.slope(first + k, self.run.z.as_slice());
-        }
+        topo.slopes_listed(first, &t.list, self.run.z.as_slice(), &mut t.end_slopes);
         if self.trace.prev_at == Some((self.start_tick, topo.topology)) {
             for j in 0..self.trace.list.len() {
                 let k = self.trace.list[j];
@@ -369,16 +367,12 @@ impl Simulation {
 /// Each traced probe's value and slope at state `z` in `topo`.
 fn fill_point(topo: &TopologyData, first: usize, z: &[f64], t: &mut TraceState) {
     fill_values(topo, first, z, t);
-    for &k in &t.list {
-        t.slopes[k] = topo.slope(first + k, z);
-    }
+    topo.slopes_listed(first, &t.list, z, &mut t.slopes);
 }
 
 /// Each traced probe's value at state `z` in `topo`.
 fn fill_values(topo: &TopologyData, first: usize, z: &[f64], t: &mut TraceState) {
-    for &k in &t.list {
-        t.values[k] = topo.value_at(first + k, z);
-    }
+    topo.values_listed(first, &t.list, z, &mut t.values);
 }
 
 /// z after `n` more ticks from `from` on `ladder`'s table, into `out` (one product per
