@@ -326,7 +326,14 @@ with_avx! {
 }
 
 #[inline(always)]
-fn dots_listed_any(rows_t: &[f64], n: usize, first: usize, list: &[usize], z: &[f64], out: &mut [f64]) {
+fn dots_listed_any(
+    rows_t: &[f64],
+    n: usize,
+    first: usize,
+    list: &[usize],
+    z: &[f64],
+    out: &mut [f64],
+) {
     for &k in list {
         let r = first + k;
         out[k] = dot_any(&rows_t[r * n..(r + 1) * n], z);
@@ -443,7 +450,11 @@ mod tests {
             for i in 0..rows {
                 let strided = strided_dot(&a.as_slice()[i..], rows, &x);
                 let contiguous = pair_dot(&a_t.as_slice()[i * cols..(i + 1) * cols], &x);
-                assert_eq!(contiguous.to_bits(), strided.to_bits(), "row {i} of {rows}×{cols}");
+                assert_eq!(
+                    contiguous.to_bits(),
+                    strided.to_bits(),
+                    "row {i} of {rows}×{cols}"
+                );
             }
         }
     }
