@@ -45,6 +45,8 @@ pub(super) struct MeterSums {
     last: Option<(Topology, usize)>,
     limit: usize,
     clock: u64,
+    /// Whether steps are summed (off: they are in no meter).
+    on: bool,
 }
 
 impl MeterSums {
@@ -58,6 +60,7 @@ impl MeterSums {
             last: None,
             limit: limit.max(1),
             clock: 0,
+            on: true,
         }
     }
 
@@ -69,7 +72,7 @@ impl MeterSums {
     /// Adds z·zᵀ for a step of `entry` in `topo`. The first step in a topology
     /// allocates its sums (as the topology's matrices were allocated when first built).
     pub(super) fn add(&mut self, topo: &Arc<TopologyData>, entry: usize, z: &[f64]) {
-        if self.is_empty() {
+        if self.is_empty() || !self.on {
             return;
         }
         self.clock += 1;
@@ -117,6 +120,11 @@ impl MeterSums {
         let k = self.sums.len() - 1;
         self.index.insert(topo.topology.0, k);
         k
+    }
+
+    /// Sums the steps from now on (`true`) or leaves them out of every meter.
+    pub(super) fn set_on(&mut self, on: bool) {
+        self.on = on;
     }
 
     /// Every meter's integral so far.

@@ -257,6 +257,14 @@ impl Simulation {
         self.meters.totals()
     }
 
+    /// Sums the steps from now on into the meters (`true`, the default) or leaves them
+    /// out: a run that reads its meters only over a late window need not pay for the
+    /// steps before it. Where steps fall does not depend on it (the stepping chooses
+    /// its steps as if meters were on), so no switching instant or state moves.
+    pub fn set_metering(&mut self, on: bool) {
+        self.meters.set_on(on);
+    }
+
     /// Present value of event signal `k` (without offset or rate).
     #[inline]
     pub fn event_signal(&self, k: usize) -> f64 {
