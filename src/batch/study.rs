@@ -209,8 +209,8 @@ pub fn load(path: &Path) -> Result<Study> {
 /// Checks study `text`; `dir` is where a base file path is relative to, `file` names
 /// the study in messages.
 pub fn load_text(text: &str, dir: &Path, file: &str) -> Result<Study> {
-    let schema = serde_json::to_value(schemars::schema_for!(StudyFile)).unwrap_or_default();
-    let raw: StudyFile = document::parse(text, file, "study", &schema)?;
+    let schema = || serde_json::to_value(schemars::schema_for!(StudyFile)).unwrap_or_default();
+    let raw: StudyFile = document::parse(text, file, "study", schema)?;
     resolve(raw, dir, file)
 }
 

@@ -42,13 +42,15 @@ pub fn decode(bytes: Vec<u8>, file: &str) -> Result<String, ScenarioError> {
     }
 }
 
-/// Parses `text` into `T`; `schema` is `T`'s JSON Schema, used to explain shape errors.
-/// `what` names the top-level object in messages ("scenario", "study").
+/// Parses `text` into `T`; `schema` gives `T`'s JSON Schema, used to explain shape
+/// errors (made only then: a batch parses a scenario per case, and generating the
+/// schema costs more than parsing). `what` names the top-level object in messages
+/// ("scenario", "study").
 pub fn parse<T: DeserializeOwned>(
     text: &str,
     file: &str,
     what: &str,
-    schema: &Value,
+    schema: impl FnOnce() -> Value,
 ) -> Result<T, ScenarioError> {
     let text = text.strip_prefix(BOM).unwrap_or(text);
     let value: Value = serde_json::from_str(text).map_err(|e| syntax(file, what, &e))?;
@@ -56,7 +58,7 @@ pub fn parse<T: DeserializeOwned>(
     serde_path_to_error::deserialize(&mut de).map_err(|e| {
         let segments: Vec<Segment> = e.path().iter().cloned().collect();
         let inner = e.into_inner();
-        let message = explain(&inner, &segments, &value, schema);
+        let message = explain(&inner, &segments, &value, &schema());
         ScenarioError::Field {
             file: file.to_string(),
             line: inner.line(),

@@ -117,7 +117,7 @@ fn old_names(text: &str) -> Vec<Finding> {
 
 /// First stage: JSON → raw types, with the field path of any error.
 fn parse(text: &str, file: &str) -> Result<raw::Scenario, ScenarioError> {
-    document::parse(text, file, "scenario", &json_schema())
+    document::parse(text, file, "scenario", json_schema)
 }
 
 /// The JSON Schema of the format, generated from the same types the loader uses.
