@@ -1,5 +1,5 @@
-//! The shipped 48-case corners study (`scenarios/study_corners.json`: 4 line voltages ×
-//! 3 loads × 2 output capacitors × 2 ESRs, 5 ms start-up each) end to end on one
+//! The shipped 48-case corners study (`scenarios/study_corners.json`: 3 line voltages ×
+//! 2 loads × 8 Monte Carlo units, 5 ms start-up each) end to end on one
 //! worker with no waveforms, as a whole process: process start, every case's build
 //! and topologies, stepping, measurements, tables and the study page.
 //!

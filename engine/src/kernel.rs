@@ -305,67 +305,66 @@ fn pair_dot_any(a: &[f64], x: &[f64]) -> f64 {
     sum
 }
 
+with_avx! {
+    /// out[i] = row i of a block of rows over x stored four rows at a time (see
+    /// [`phased_block`]), for the first `out.len()` rows, each row summed as [`dot`]
+    /// sums it: the same bits, four rows to a register.
+    pub(crate) fn dots_block(a: &[f64], x: &[f64], out: &mut [f64]) = dots_block_any;
+}
+
+with_avx! {
+    /// As [`dots_block`], each row summed as [`pair_dot`] sums it.
+    pub(crate) fn pair_dots_block(a: &[f64], x: &[f64], out: &mut [f64]) = pair_dots_block_any;
+}
+
+#[inline(always)]
+fn dots_block_any(a: &[f64], x: &[f64], out: &mut [f64]) {
+    phased_block::<4, 16>(a, x, out, |p| (p[0] + p[2]) + (p[1] + p[3]));
+}
+
+#[inline(always)]
+fn pair_dots_block_any(a: &[f64], x: &[f64], out: &mut [f64]) {
+    phased_block::<2, 8>(a, x, out, |p| p[0] + p[1]);
+}
+
+/// Rows over x in groups of four, each group `4·x.len()` values: column c's four
+/// entries at `4c` (a row past the last is zeros). Each row is summed as a dot
+/// product of `P` interleaved partial sums (column c into sum c mod P) joined by
+/// `join`, then the columns past the last whole group of P added in order: row by row
+/// the bits of [`dot_any`] (P = 4) and [`pair_dot_any`] (P = 2). `W` = 4·P.
+#[inline(always)]
+fn phased_block<const P: usize, const W: usize>(
+    a: &[f64],
+    x: &[f64],
+    out: &mut [f64],
+    join: impl Fn([f64; P]) -> f64,
+) {
+    debug_assert!(W == 4 * P && a.len() >= out.len().div_ceil(4) * 4 * x.len());
+    for (group, out4) in a.chunks_exact(4 * x.len()).zip(out.chunks_mut(4)) {
+        let mut acc = [[0.0f64; 4]; P];
+        let columns = group.chunks_exact(W);
+        let (rest, x_rest) = (columns.remainder(), x.chunks_exact(P).remainder());
+        for (cols, xs) in columns.zip(x.chunks_exact(P)) {
+            for (p, acc_p) in acc.iter_mut().enumerate() {
+                for (i, s) in acc_p.iter_mut().enumerate() {
+                    *s += cols[4 * p + i] * xs[p];
+                }
+            }
+        }
+        for (i, o) in out4.iter_mut().enumerate() {
+            let mut sum = join(std::array::from_fn(|p| acc[p][i]));
+            for (col, &xc) in rest.chunks_exact(4).zip(x_rest) {
+                sum += col[i] * xc;
+            }
+            *o = sum;
+        }
+    }
+}
+
 /// a·b over the shorter of the two, in four interleaved partial sums.
 #[inline]
 pub(crate) fn dot(a: &[f64], b: &[f64]) -> f64 {
     dot_any(a, b)
-}
-
-with_avx! {
-    /// out[k] = [`dot`] of row `first + k` of `rows_t` (rows of `n`, one after
-    /// another) with z, for each k in `list`: a trace point's values in one call, so
-    /// the loop runs four lanes wide where the processor can.
-    pub(crate) fn dots_listed(
-        rows_t: &[f64],
-        n: usize,
-        first: usize,
-        list: &[usize],
-        z: &[f64],
-        out: &mut [f64],
-    ) = dots_listed_any;
-}
-
-#[inline(always)]
-fn dots_listed_any(
-    rows_t: &[f64],
-    n: usize,
-    first: usize,
-    list: &[usize],
-    z: &[f64],
-    out: &mut [f64],
-) {
-    for &k in list {
-        let r = first + k;
-        out[k] = dot_any(&rows_t[r * n..(r + 1) * n], z);
-    }
-}
-
-with_avx! {
-    /// out[k] = [`pair_dot`] of row `first + k` of `rows_t` with z, for each k in
-    /// `list` (as [`dots_listed`]).
-    pub(crate) fn pair_dots_listed(
-        rows_t: &[f64],
-        n: usize,
-        first: usize,
-        list: &[usize],
-        z: &[f64],
-        out: &mut [f64],
-    ) = pair_dots_listed_any;
-}
-
-#[inline(always)]
-fn pair_dots_listed_any(
-    rows_t: &[f64],
-    n: usize,
-    first: usize,
-    list: &[usize],
-    z: &[f64],
-    out: &mut [f64],
-) {
-    for &k in list {
-        let r = first + k;
-        out[k] = pair_dot_any(&rows_t[r * n..(r + 1) * n], z);
-    }
 }
 
 #[inline(always)]
@@ -403,105 +402,4 @@ pub(crate) fn all_finite(x: &[f64]) -> bool {
 }
 
 #[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn a_product_is_the_same_bits_as_column_by_column() {
-        // Columns side by side must not change a sum's order: inexact values (so a
-        // different order would show in the last bits), 23 rows (blocks of 8 and 4 and a
-        // remainder of 3), and 1 to 9 columns (blocks of four and each remainder).
-        let (rows, lda, inner) = (23, 25, 11);
-        let value = |i: usize| ((i * 7919) % 1009) as f64 / 97.0 - 5.0;
-        let a: Vec<f64> = (0..lda * inner).map(value).collect();
-        for cols in 1..=9 {
-            let x: Vec<f64> = (0..13 * cols)
-                .map(|i| value(i + 31).sqrt().max(-0.3))
-                .collect();
-            let mut out = vec![f64::NAN; lda * cols];
-            let op = Operand {
-                a: &a,
-                lda,
-                rows,
-                inner,
-            };
-            product(op, &x, 13, cols, &mut out, lda);
-            for j in 0..cols {
-                let mut column = vec![0.0; rows];
-                matvec_rows(&a, lda, &x[j * 13..j * 13 + inner], &mut column);
-                assert_eq!(&out[j * lda..j * lda + rows], column.as_slice());
-                assert!(out[j * lda + rows..(j + 1) * lda]
-                    .iter()
-                    .all(|v| v.is_nan()));
-            }
-        }
-    }
-
-    #[test]
-    fn a_row_stored_contiguously_gives_the_bits_of_its_strided_reading() {
-        // A slope read from the transposed copy must equal the one read off the
-        // column-major matrix bit for bit, so inexact values (a different summation
-        // order would show in the last bits), and odd and even lengths.
-        let value = |i: usize| ((i * 7919) % 1009) as f64 / 97.0 - 5.0;
-        for (rows, cols) in [(9, 16), (5, 7), (3, 1)] {
-            let a = nalgebra::DMatrix::from_fn(rows, cols, |i, j| value(i * 31 + j));
-            let x: Vec<f64> = (0..cols).map(|k| value(k + 500).sin()).collect();
-            let a_t = a.transpose();
-            for i in 0..rows {
-                let strided = strided_dot(&a.as_slice()[i..], rows, &x);
-                let contiguous = pair_dot(&a_t.as_slice()[i * cols..(i + 1) * cols], &x);
-                assert_eq!(
-                    contiguous.to_bits(),
-                    strided.to_bits(),
-                    "row {i} of {rows}×{cols}"
-                );
-            }
-        }
-    }
-
-    #[test]
-    fn kernels_agree_with_nalgebra() {
-        // Products of small integers are exact in f64, so any summation order must give
-        // exactly nalgebra's result.
-        let (r, c) = (7, 5);
-        let a = nalgebra::DMatrix::from_fn(r, c, |i, j| (i as f64) - 2.0 * (j as f64) + 1.0);
-        let x = nalgebra::DVector::from_fn(c, |i, _| (i as f64) * 3.0 - 4.0);
-        let mut y = vec![0.0; r];
-        matvec_rows(a.as_slice(), r, x.as_slice(), &mut y);
-        assert_eq!(y.as_slice(), (&a * &x).as_slice());
-        let b = nalgebra::DVector::from_fn(c, |i, _| 1.0 - i as f64);
-        assert_eq!(dot(x.as_slice(), b.as_slice()), x.dot(&b));
-        for rows in [3, 4, 7] {
-            let mut top = vec![0.0; rows];
-            matvec_rows(a.as_slice(), r, x.as_slice(), &mut top);
-            assert_eq!(top.as_slice(), (&a * &x).rows(0, rows).as_slice());
-        }
-        let tall = nalgebra::DMatrix::from_fn(13, c, |i, j| (i * j) as f64 - 5.0);
-        let mut y = vec![0.0; 13];
-        matvec_rows(tall.as_slice(), 13, x.as_slice(), &mut y);
-        assert_eq!(y.as_slice(), (&tall * &x).as_slice());
-        let b: Vec<f64> = (0..13).map(|i| i as f64 * 0.5).collect();
-        let mut with_b = vec![0.0; 13];
-        matvec_add(tall.as_slice(), 13, x.as_slice(), &b, &mut with_b);
-        for i in 0..13 {
-            assert_eq!(with_b[i], y[i] + b[i]);
-        }
-        for i in 0..r {
-            let row = strided_dot(&a.as_slice()[i..], r, x.as_slice());
-            assert_eq!(row, a.row(i).transpose().dot(&x));
-        }
-        let mut outer = vec![1.0; 4];
-        add_outer(&[1.0, -2.0], &mut outer);
-        assert_eq!(outer, vec![2.0, -1.0, -1.0, 5.0]);
-        let mut v = vec![1.0, -2.0, 3.0, 1e300, 5.0, 6.0, 7.0];
-        assert!(all_finite(&v));
-        for bad in [f64::INFINITY, f64::NEG_INFINITY, f64::NAN] {
-            for k in [0, 6] {
-                let keep = v[k];
-                v[k] = bad;
-                assert!(!all_finite(&v));
-                v[k] = keep;
-            }
-        }
-    }
-}
+mod tests;

@@ -88,6 +88,14 @@ pub trait Stepper {
         Ok(())
     }
 
+    /// Whether the path sends a tracing sink a point after every step it takes and
+    /// at every switching instant, gate or source change (the default: it does not).
+    /// A driver that keeps extremes from trace points need not then read the probes
+    /// itself after each step: the last point already holds the present state.
+    fn traces_every_step(&self) -> bool {
+        false
+    }
+
     /// Runs until `until` seconds or until an armed event crosses.
     fn advance(&mut self, until: f64, sink: &mut dyn Sink) -> Result<Stop, EngineError> {
         loop {

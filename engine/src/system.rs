@@ -128,20 +128,16 @@ impl TopologyData {
         kernel::pair_dot(&self.slopes_t.as_slice()[r * n..(r + 1) * n], z)
     }
 
-    /// `out[k]` = the value of row `first + k` at state `z`, for each k in `list`
-    /// (the same bits as [`TopologyData::value_at`]).
-    #[inline]
-    pub fn values_listed(&self, first: usize, list: &[usize], z: &[f64], out: &mut [f64]) {
-        let n = self.rows_t.nrows();
-        kernel::dots_listed(self.rows_t.as_slice(), n, first, list, z, out);
+    /// Rows `rows` (see [`TopologyData::rows_t`]) gathered four rows at a time
+    /// for `kernel::dots_block`.
+    pub(crate) fn gather_rows(&self, rows: &[usize]) -> Vec<f64> {
+        gather(&self.rows_t, rows)
     }
 
-    /// `out[k]` = the slope of row `first + k` at state `z`, for each k in `list`
-    /// (the same bits as [`TopologyData::slope`]).
-    #[inline]
-    pub fn slopes_listed(&self, first: usize, list: &[usize], z: &[f64], out: &mut [f64]) {
-        let n = self.slopes_t.nrows();
-        kernel::pair_dots_listed(self.slopes_t.as_slice(), n, first, list, z, out);
+    /// The slopes of rows `rows`, gathered as [`TopologyData::gather_rows`] gathers
+    /// their values.
+    pub(crate) fn gather_slopes(&self, rows: &[usize]) -> Vec<f64> {
+        gather(&self.slopes_t, rows)
     }
 
     /// Slopes of the first `out.len()` rows at state `z`, per second.
@@ -154,6 +150,19 @@ impl TopologyData {
     pub fn row_count(&self) -> usize {
         self.rows_t.ncols()
     }
+}
+
+/// Columns `rows` of `t` (each a row over z, stored contiguously) four rows at a
+/// time: group g holds column c's entries of rows 4g..4g+4 at 4c, zeros past the last.
+fn gather(t: &DMatrix<f64>, rows: &[usize]) -> Vec<f64> {
+    let nz = t.nrows();
+    let mut block = vec![0.0; rows.len().div_ceil(4) * 4 * nz];
+    for (i, &r) in rows.iter().enumerate() {
+        for (c, &v) in t.column(r).iter().enumerate() {
+            block[(i / 4) * 4 * nz + 4 * c + i % 4] = v;
+        }
+    }
+    block
 }
 
 /// Bits per digit of the step table: radix 16 halves the products per step of binary

@@ -302,7 +302,9 @@ impl<S: Stepper> ConverterRun<S> {
                 watch: &mut self.watch,
             };
             let outcome = self.sim.step_to(t, &mut watched)?;
-            self.watch.observe(&self.sim);
+            if !self.sim.traces_every_step() {
+                self.watch.observe(&self.sim);
+            }
             match outcome {
                 StepOutcome::StopTime => return Ok(Stop::Reached),
                 StepOutcome::Event { time, armed, .. } if armed != 0 => {

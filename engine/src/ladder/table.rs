@@ -40,6 +40,9 @@ pub struct Ladder {
     /// unstable mode and a long rung); every entry is a product of rungs no longer than
     /// the step it spans.
     pub finite: bool,
+    /// Digit position of a tick count by its highest set bit: b / bits for b = 0..64
+    /// (a table read instead of a division at every step).
+    digit_of_bit: [u8; 64],
     /// Φ_p for p = 0..=levels ([`rungs_by_doubling`]).
     rungs: Vec<DMatrix<f64>>,
     /// The event rows E (n_events × nz).
@@ -81,6 +84,7 @@ impl Ladder {
             nx,
             n_events,
             rows,
+            digit_of_bit: std::array::from_fn(|b| (b as u32 / bits) as u8),
             rungs,
             events: events.clone(),
             entries,
@@ -179,7 +183,7 @@ impl Ladder {
     /// The longest entry not longer than `m` ≥ 1 ticks: (j, d) with d the leading
     /// digit of m.
     pub fn longest_within(&self, m: Tick) -> (u32, u64) {
-        let j = (63 - m.leading_zeros()) / self.bits;
+        let j = u32::from(self.digit_of_bit[(63 - m.leading_zeros()) as usize]);
         (j, m >> (self.bits * j))
     }
 

@@ -408,6 +408,7 @@ impl StormRing {
 }
 
 mod meters;
+mod probe_rows;
 mod sensitivity;
 mod sources;
 mod spans;

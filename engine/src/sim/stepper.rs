@@ -56,6 +56,10 @@ impl Stepper for Simulation {
         Simulation::trace_probes(self, probes)
     }
 
+    fn traces_every_step(&self) -> bool {
+        true
+    }
+
     fn step_to(&mut self, until: f64, sink: &mut dyn Sink) -> Result<StepOutcome, EngineError> {
         Simulation::step_to(self, until, sink)
     }

@@ -21,6 +21,7 @@ use crate::ladder::{Ladder, Tick};
 use crate::system::TopologyData;
 use crate::topology::Topology;
 
+use super::probe_rows::ProbeRows;
 use super::Simulation;
 
 /// Bisection of an extremum stops at this fraction of the step (as a shift).
@@ -46,6 +47,8 @@ pub(super) struct TraceState {
     /// Extrema found in the present step: (tick, probe), and the state at each.
     found: Vec<(Tick, usize)>,
     states: Vec<f64>,
+    /// The traced probes' rows, gathered per topology.
+    rows: ProbeRows,
 }
 
 impl TraceState {
@@ -60,6 +63,7 @@ impl TraceState {
             end_slopes: vec![f64::NAN; n_probes],
             found: Vec::with_capacity(n_probes),
             states: Vec::new(),
+            rows: ProbeRows::new(),
         }
     }
 }
@@ -90,6 +94,7 @@ impl Simulation {
         t.values.iter_mut().for_each(|v| *v = f64::NAN);
         t.slopes.iter_mut().for_each(|v| *v = f64::NAN);
         t.states = vec![0.0; n * self.run.z.len()];
+        t.rows.reset(t.list.len());
         t.prev_at = None;
         Ok(())
     }
@@ -169,7 +174,8 @@ impl Simulation {
         self.trace.found.clear();
         // The slopes at the step's end, once: for the extrema search and the end's point.
         let t = &mut self.trace;
-        topo.slopes_listed(first, &t.list, self.run.z.as_slice(), &mut t.end_slopes);
+        let z = self.run.z.as_slice();
+        t.rows.slopes(topo, first, &t.list, z, &mut t.end_slopes);
         if self.trace.prev_at == Some((self.start_tick, topo.topology)) {
             for j in 0..self.trace.list.len() {
                 let k = self.trace.list[j];
@@ -367,12 +373,12 @@ impl Simulation {
 /// Each traced probe's value and slope at state `z` in `topo`.
 fn fill_point(topo: &TopologyData, first: usize, z: &[f64], t: &mut TraceState) {
     fill_values(topo, first, z, t);
-    topo.slopes_listed(first, &t.list, z, &mut t.slopes);
+    t.rows.slopes(topo, first, &t.list, z, &mut t.slopes);
 }
 
 /// Each traced probe's value at state `z` in `topo`.
 fn fill_values(topo: &TopologyData, first: usize, z: &[f64], t: &mut TraceState) {
-    topo.values_listed(first, &t.list, z, &mut t.values);
+    t.rows.values(topo, first, &t.list, z, &mut t.values);
 }
 
 /// z after `n` more ticks from `from` on `ladder`'s table, into `out` (one product per
