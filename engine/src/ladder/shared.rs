@@ -17,12 +17,15 @@ use nalgebra::DMatrix;
 
 use super::{table::step_count, Ladder, TimeGrid};
 
-/// Bytes of ladder matrices kept: about 35 topologies of 16 states with 12 event rows on
-/// a radix-16 table, two or three cases' worth. Enough for a run's own topologies and
-/// for neighbouring cases that share them (line corners share M); kept small because
-/// memory the process has not touched before costs more to fault in and zero than the
-/// lazily built rungs a lost entry costs to form again (a 48-case corners study ran
-/// about 10% faster at 8 MB than at 64 MB, measured side by side).
+/// Bytes of ladder matrices kept, each ladder counted as if all its entries were
+/// formed: about 11 topologies of 16 states with 12 event rows on the radix-64 table of a
+/// 21-level grid (0.7 MB each; the memory actually touched is the entries formed,
+/// far less). Enough for neighbouring cases that share topologies (a study whose cases
+/// differ in source values only); kept small because memory the process has not
+/// touched before costs more to fault in and zero than the lazily built rungs a lost
+/// entry costs to form again (a 48-case corners study ran about 10 % faster at 8 MB
+/// than at 64 MB on radix 16, and about 5 % faster at 8 MB than at 20 MB on radix 64,
+/// measured side by side).
 const BUDGET: usize = 8 << 20;
 
 /// What a ladder is built from, compared bit for bit.
