@@ -345,18 +345,22 @@ fn phased_block<const P: usize, const W: usize>(
         let columns = group.chunks_exact(W);
         let (rest, x_rest) = (columns.remainder(), x.chunks_exact(P).remainder());
         for (cols, xs) in columns.zip(x.chunks_exact(P)) {
-            for (p, acc_p) in acc.iter_mut().enumerate() {
-                for (i, s) in acc_p.iter_mut().enumerate() {
-                    *s += cols[4 * p + i] * xs[p];
+            for (acc_p, (col, &xp)) in acc.iter_mut().zip(cols.chunks_exact(4).zip(xs)) {
+                for (s, &v) in acc_p.iter_mut().zip(col) {
+                    *s += v * xp;
                 }
             }
         }
-        for (i, o) in out4.iter_mut().enumerate() {
-            let mut sum = join(std::array::from_fn(|p| acc[p][i]));
-            for (col, &xc) in rest.chunks_exact(4).zip(x_rest) {
-                sum += col[i] * xc;
+        // Each lane is one row, so joining and adding the rest lane-wise keeps every
+        // row's order.
+        let mut sum: [f64; 4] = std::array::from_fn(|i| join(std::array::from_fn(|p| acc[p][i])));
+        for (col, &xc) in rest.chunks_exact(4).zip(x_rest) {
+            for (s, &v) in sum.iter_mut().zip(col) {
+                *s += v * xc;
             }
-            *o = sum;
+        }
+        for (o, s) in out4.iter_mut().zip(sum) {
+            *o = s;
         }
     }
 }

@@ -20,7 +20,8 @@ struct Block {
     slopes: Vec<f64>,
 }
 
-/// The traced rows of the topologies met so far, and room for one point's results.
+/// The traced rows of the topologies met so far, and room for one point's values and
+/// slopes.
 pub(super) struct ProbeRows {
     blocks: Vec<Block>,
     /// The block used last: consecutive points mostly fall in one topology.
@@ -41,41 +42,32 @@ impl ProbeRows {
     pub(super) fn reset(&mut self, traced: usize) {
         self.blocks.clear();
         self.last = 0;
-        self.out = vec![0.0; traced.div_ceil(4) * 4];
+        self.out = vec![0.0; 2 * traced];
     }
 
-    /// `values[k]` = probe k's value at state `z` in `topo`, for each k in `list`
-    /// (probe k is row `first + k`).
-    pub(super) fn values(
+    /// `values[k]` and `slopes[k]` = probe k's value and its time derivative (per
+    /// second) at state `z` in `topo`, for each k in `list` (probe k is row
+    /// `first + k`).
+    pub(super) fn read(
         &mut self,
         topo: &TopologyData,
         first: usize,
         list: &[usize],
         z: &[f64],
         values: &mut [f64],
-    ) {
-        let b = self.block(topo, first, list);
-        let block = &self.blocks[b];
-        let out = &mut self.out[..list.len()];
-        kernel::dots_block(&block.values, z, out);
-        scatter(out, list, values);
-    }
-
-    /// `slopes[k]` = probe k's time derivative at state `z` in `topo`, per second, for
-    /// each k in `list`.
-    pub(super) fn slopes(
-        &mut self,
-        topo: &TopologyData,
-        first: usize,
-        list: &[usize],
-        z: &[f64],
         slopes: &mut [f64],
     ) {
         let b = self.block(topo, first, list);
         let block = &self.blocks[b];
-        let out = &mut self.out[..list.len()];
-        kernel::pair_dots_block(&block.slopes, z, out);
-        scatter(out, list, slopes);
+        let half = self.out.len() / 2;
+        let (v, s) = self.out.split_at_mut(half);
+        let (v, s) = (&mut v[..list.len()], &mut s[..list.len()]);
+        kernel::dots_block(&block.values, z, v);
+        kernel::pair_dots_block(&block.slopes, z, s);
+        for ((&k, &vk), &sk) in list.iter().zip(v.iter()).zip(s.iter()) {
+            values[k] = vk;
+            slopes[k] = sk;
+        }
     }
 
     /// Index of `topo`'s block, gathered now if it has none.
@@ -97,11 +89,5 @@ impl ProbeRows {
             }
         };
         self.last
-    }
-}
-
-fn scatter(out: &[f64], list: &[usize], to: &mut [f64]) {
-    for (&v, &k) in out.iter().zip(list) {
-        to[k] = v;
     }
 }

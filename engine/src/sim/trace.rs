@@ -42,7 +42,8 @@ pub(super) struct TraceState {
     /// inside a step that starts at that point, in the same topology.
     prev_slopes: Vec<f64>,
     prev_at: Option<(Tick, Topology)>,
-    /// Slopes at the end of the step just taken.
+    /// Values and slopes at the end of the step just taken.
+    end_values: Vec<f64>,
     end_slopes: Vec<f64>,
     /// Extrema found in the present step: (tick, probe), and the state at each.
     found: Vec<(Tick, usize)>,
@@ -60,6 +61,7 @@ impl TraceState {
             slopes: vec![f64::NAN; n_probes],
             prev_slopes: vec![f64::NAN; n_probes],
             prev_at: None,
+            end_values: vec![f64::NAN; n_probes],
             end_slopes: vec![f64::NAN; n_probes],
             found: Vec::with_capacity(n_probes),
             states: Vec::new(),
@@ -175,7 +177,8 @@ impl Simulation {
         // The slopes at the step's end, once: for the extrema search and the end's point.
         let t = &mut self.trace;
         let z = self.run.z.as_slice();
-        t.rows.slopes(topo, first, &t.list, z, &mut t.end_slopes);
+        let (values, slopes) = (&mut t.end_values, &mut t.end_slopes);
+        t.rows.read(topo, first, &t.list, z, values, slopes);
         if self.trace.prev_at == Some((self.start_tick, topo.topology)) {
             for j in 0..self.trace.list.len() {
                 let k = self.trace.list[j];
@@ -214,10 +217,9 @@ impl Simulation {
             })?;
         }
         self.trace.found = found;
-        self.peek_z.copy_from_slice(self.run.z.as_slice());
-        fill_values(topo, first, &self.peek_z, &mut self.trace);
         let t = &mut self.trace;
         for &k in &t.list {
+            t.values[k] = t.end_values[k];
             t.slopes[k] = t.end_slopes[k];
         }
         self.send_point(topo, sink, TraceKind::Step)
@@ -372,13 +374,8 @@ impl Simulation {
 
 /// Each traced probe's value and slope at state `z` in `topo`.
 fn fill_point(topo: &TopologyData, first: usize, z: &[f64], t: &mut TraceState) {
-    fill_values(topo, first, z, t);
-    t.rows.slopes(topo, first, &t.list, z, &mut t.slopes);
-}
-
-/// Each traced probe's value at state `z` in `topo`.
-fn fill_values(topo: &TopologyData, first: usize, z: &[f64], t: &mut TraceState) {
-    t.rows.values(topo, first, &t.list, z, &mut t.values);
+    t.rows
+        .read(topo, first, &t.list, z, &mut t.values, &mut t.slopes);
 }
 
 /// z after `n` more ticks from `from` on `ladder`'s table, into `out` (one product per

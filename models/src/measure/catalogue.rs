@@ -184,8 +184,18 @@ impl FigureDef {
 
     /// Whether a concrete key is an instance of this declaration.
     pub fn matches(&self, key: &str) -> bool {
-        glob(self.key.as_bytes(), key.as_bytes())
+        let (pattern, text) = (self.key.as_bytes(), key.as_bytes());
+        literal_ends_agree(pattern, text) && glob(pattern, text)
     }
+}
+
+/// Whether `text` starts with what `pattern` has before its first `*` and ends with
+/// what it has after its last: true of every match, and false of most keys a
+/// declaration is tried on, so the search of [`glob`] runs for few of them.
+fn literal_ends_agree(pattern: &[u8], text: &[u8]) -> bool {
+    let head = pattern.split(|&c| c == b'*').next().unwrap_or_default();
+    let tail = pattern.rsplit(|&c| c == b'*').next().unwrap_or_default();
+    text.starts_with(head) && text.ends_with(tail)
 }
 
 /// `*` matches one or more characters.
@@ -337,5 +347,9 @@ mod tests {
         assert!(!glob(b"*.mean", b".mean"));
         assert!(glob(b"a.*.*.peak", b"a.worst.rect.v.peak"));
         assert!(!glob(b"a.*.peak", b"a.drain_peak"));
+        // The literal ends are a necessary condition only: they agree here, the
+        // whole pattern does not.
+        assert!(literal_ends_agree(b"a*a", b"a") && !glob(b"a*a", b"a"));
+        assert!(!literal_ends_agree(b"*.mean", b"out.v.peak"));
     }
 }
