@@ -231,18 +231,16 @@ impl Plan {
 
     /// Probes whose extrema the measurements read, for the run to trace.
     pub fn traced_probes(&self, probes: &[Probe]) -> Vec<(usize, Turning)> {
-        let mut out: Vec<(usize, Turning)> = self
-            .reset
-            .probes()
-            .into_iter()
+        let mut out: Vec<(usize, Turning)> = (self.reset.probes().into_iter())
+            .chain(self.startup.iter().map(StartUp::column))
+            .chain(self.steps.iter().map(StepResponse::column))
+            .chain(
+                RIPPLE_PROBES
+                    .iter()
+                    .filter_map(|n| probes.iter().position(|p| p.name == *n)),
+            )
             .map(|k| (k, Turning::Both))
             .collect();
-        out.extend(
-            RIPPLE_PROBES
-                .iter()
-                .filter_map(|n| probes.iter().position(|p| p.name == *n))
-                .map(|k| (k, Turning::Both)),
-        );
         if self.parts.any() {
             for k in self.parts.probes() {
                 if !out.iter().any(|(p, _)| *p == k) {

@@ -109,6 +109,11 @@ impl StartUp {
         })
     }
 
+    /// The probe watched (its index).
+    pub fn column(&self) -> usize {
+        self.column
+    }
+
     /// The figures so far, or `None` before any sample in the window.
     pub fn result(&self) -> Option<StartUpResult> {
         let peak = self.peak?;

@@ -190,6 +190,11 @@ impl StepResponse {
         &self.settings
     }
 
+    /// The probe watched (its index).
+    pub fn column(&self) -> usize {
+        self.column
+    }
+
     /// The figures so far, or `None` before any sample after the step.
     pub fn result(&self) -> Option<StepResult> {
         let s = &self.settings;
