@@ -63,14 +63,20 @@ pub struct TopologyData {
     slopes_t: DMatrix<f64>,
 }
 
+/// One term of a meter: c·a·b with a and b rows over z.
+type MeterTerm = (f64, nalgebra::RowDVector<f64>, nalgebra::RowDVector<f64>);
+
 /// The inputs of a topology's [`Ladder`] besides M.
 struct LadderRecipe {
     nx: usize,
     grid: TimeGrid,
     /// Event rows (diode functions, then event signals) over z.
     events: DMatrix<f64>,
-    /// Quadratic forms of the meters (used only when a meter is read).
-    forms: Vec<DMatrix<f64>>,
+    /// Each meter's terms as (coefficient, row of a, row of b) over z.
+    meter_terms: Vec<Vec<MeterTerm>>,
+    /// Quadratic forms of the meters, formed from their terms when a meter is first
+    /// read in this topology (most topologies a run passes through never are).
+    forms: OnceLock<Vec<DMatrix<f64>>>,
     bits: u32,
 }
 
@@ -93,7 +99,12 @@ impl TopologyData {
     ) {
         let r = &self.recipe;
         let l = step_gramian(self.ladder(), &self.m, &r.grid, sums);
-        for (total, q) in totals.iter_mut().zip(&r.forms) {
+        let nz = self.m.nrows();
+        let forms = (r.forms).get_or_init(|| {
+            let form = |terms: &Vec<MeterTerm>| quadratic_form(nz, terms);
+            r.meter_terms.iter().map(form).collect()
+        });
+        for (total, q) in totals.iter_mut().zip(forms) {
             *total += kernel::dot(q.as_slice(), l.as_slice());
         }
     }
@@ -312,13 +323,13 @@ impl System {
         for (r, s) in signals.enumerate() {
             rows.set_row(self.diode_count() + r, &nodal.signal(s)?);
         }
-        let mut forms = Vec::with_capacity(obs.meters.len());
+        let mut meter_terms = Vec::with_capacity(obs.meters.len());
         for meter in &obs.meters {
             let mut terms = Vec::with_capacity(meter.terms.len());
             for (c, a, b) in &meter.terms {
                 terms.push((*c, nodal.signal(a)?, nodal.signal(b)?));
             }
-            forms.push(quadratic_form(nz, &terms));
+            meter_terms.push(terms);
         }
         let n_events = self.diode_count() + obs.event_signals.len();
         let events = rows.rows(0, n_events).into_owned();
@@ -335,7 +346,8 @@ impl System {
                 nx: self.layout.nx(),
                 grid: self.grid,
                 events,
-                forms,
+                meter_terms,
+                forms: OnceLock::new(),
                 bits,
             },
             rows_t,
