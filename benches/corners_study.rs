@@ -9,14 +9,14 @@
 //! alternately and the ratio of each pair printed. Without it the bench times this
 //! build alone.
 //!
-//! `cargo bench --bench corners_study` (a plain bench: five alternated pairs).
+//! `cargo bench --bench corners_study` (a plain bench: seven alternated pairs).
 
 use std::path::{Path, PathBuf};
 
 mod common;
 use common::{batch_wall, median};
 
-const PAIRS: usize = 5;
+const PAIRS: usize = 7;
 
 fn root() -> &'static Path {
     Path::new(env!("CARGO_MANIFEST_DIR"))
