@@ -44,11 +44,10 @@ pub(crate) fn matvec_rows(a: &[f64], lda: usize, x: &[f64], y: &mut [f64]) {
 }
 
 /// y = b + the first `y.len()` rows of A·x (A as in [`matvec_rows`]): b first, then
-/// the columns in order.
+/// the columns in order (b is read where y's sums start, not copied into y first).
 #[inline]
 pub(crate) fn matvec_add(a: &[f64], lda: usize, x: &[f64], b: &[f64], y: &mut [f64]) {
-    y.copy_from_slice(b);
-    accumulate(a, lda, x, y);
+    add_into(a, lda, x, b, y);
 }
 
 with_avx! {
@@ -59,26 +58,45 @@ with_avx! {
     fn accumulate(a: &[f64], lda: usize, x: &[f64], y: &mut [f64]) = accumulate_any;
 }
 
-/// The loops of [`accumulate`], for whatever instruction set the caller has.
+with_avx! {
+    /// y = b + the first `y.len()` rows of A·x, as [`accumulate`] onto b.
+    #[inline]
+    fn add_into(a: &[f64], lda: usize, x: &[f64], b: &[f64], y: &mut [f64]) = add_into_any;
+}
+
 #[inline(always)]
 fn accumulate_any(a: &[f64], lda: usize, x: &[f64], y: &mut [f64]) {
+    rows_any(a, lda, x, None, y);
+}
+
+#[inline(always)]
+fn add_into_any(a: &[f64], lda: usize, x: &[f64], b: &[f64], y: &mut [f64]) {
+    rows_any(a, lda, x, Some(b), y);
+}
+
+/// The loops of [`accumulate`] and [`add_into`], for whatever instruction set the
+/// caller has: each row starts from b's entry, or y's own without b.
+#[inline(always)]
+fn rows_any(a: &[f64], lda: usize, x: &[f64], b: Option<&[f64]>, y: &mut [f64]) {
     let n = y.len();
-    debug_assert!(n <= lda && a.len() >= lda * x.len());
+    debug_assert!(n <= lda && a.len() >= lda * x.len() && b.is_none_or(|b| b.len() >= n));
     let mut r = 0;
     while r + 8 <= n {
-        let init: [f64; 8] = y[r..r + 8].try_into().expect("eight rows");
+        let init: [f64; 8] = b.unwrap_or(y)[r..r + 8].try_into().expect("eight rows");
         y[r..r + 8].copy_from_slice(&block(a, lda, r, x, init));
         r += 8;
     }
     if r + 4 <= n {
-        let init: [f64; 4] = y[r..r + 4].try_into().expect("four rows");
+        let init: [f64; 4] = b.unwrap_or(y)[r..r + 4].try_into().expect("four rows");
         y[r..r + 4].copy_from_slice(&block(a, lda, r, x, init));
         r += 4;
     }
-    for (i, yi) in y.iter_mut().enumerate().skip(r) {
+    for i in r..n {
+        let mut yi = b.map_or(y[i], |b| b[i]);
         for (column, &xj) in a.chunks_exact(lda).zip(x) {
-            *yi += column[i] * xj;
+            yi += column[i] * xj;
         }
+        y[i] = yi;
     }
 }
 

@@ -52,7 +52,6 @@ impl Simulation {
             );
         }
         self.start_tick = self.tick;
-        self.start_z.copy_from(&self.run.z);
         let topo = Arc::clone(&self.run.topo);
         let (topology, ladder) = (topo.topology, topo.ladder());
         if !ladder.finite {
@@ -109,6 +108,7 @@ impl Simulation {
                 all_events(&self.ext[ev.clone()], armed, nd, t_hi, &mut self.g_hi);
                 let candidates = crossed(&self.g_lo[..n], &self.g_hi[..n]);
                 if candidates != 0 {
+                    self.start_z.copy_from(&self.run.z);
                     return self.locate(&topo, j, d, candidates, sink);
                 }
                 match self.hidden(&topo, len, n) {
@@ -123,7 +123,10 @@ impl Simulation {
             Self::sensitivity_moves(&mut self.sens, ladder.entry(entry), ladder.rows);
             self.ramp = self.ramp.saturating_mul(RAMP_GROWTH);
         }
-        ladder.state_from(&self.ext, self.run.z.as_mut_slice());
+        // The step is taken: its start is kept for reading inside it, and its end is
+        // the state `hidden` just formed for the step's last trial.
+        std::mem::swap(&mut self.start_z, &mut self.run.z);
+        self.run.z.as_mut_slice().copy_from_slice(&self.peek_z);
         self.sources.stepped();
         std::mem::swap(&mut self.g_lo, &mut self.g_hi);
         std::mem::swap(&mut self.d_lo, &mut self.d_hi);
