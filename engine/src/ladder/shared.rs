@@ -15,16 +15,16 @@ use std::sync::{Arc, LazyLock, Mutex, OnceLock};
 
 use nalgebra::DMatrix;
 
-use super::{table::step_count, Ladder, TimeGrid};
+use super::{Ladder, TimeGrid};
 
-/// Bytes of ladder matrices kept, each ladder counted as if all its entries were
-/// formed: about 11 topologies of 16 states with 12 event rows on the radix-64 table of a
-/// 21-level grid (0.7 MB each; the memory actually touched is the entries formed,
-/// far less). Enough for neighbouring cases that share topologies (a study whose cases
-/// differ in source values only); kept small because memory the process has not
-/// touched before costs more to fault in and zero than the lazily built rungs a lost
-/// entry costs to form again (a 48-case corners study ran about 10 % faster at 8 MB
-/// than at 64 MB on radix 16, and about 5 % faster at 8 MB than at 20 MB on radix 64,
+/// Bytes of ladder matrices kept: rungs and the entries formed so far, counted when
+/// a ladder is added (entries are formed as steps first read them, so a ladder grows
+/// after it is added; the next addition makes room). About 20 topologies of 16 states
+/// with 12 event rows on the radix-64 table, a start-up case's worth and more: enough
+/// for neighbouring cases that share topologies (a study whose cases differ in source
+/// values only); kept small because memory the process has not touched before costs
+/// more to fault in and zero than the lazily built rungs a lost entry costs to form
+/// again (a 48-case corners study ran about 10 % faster at 8 MB than at 64 MB,
 /// measured side by side).
 const BUDGET: usize = 8 << 20;
 
@@ -64,16 +64,28 @@ impl Inputs {
 struct Entry {
     inputs: Inputs,
     ladder: OnceLock<Arc<Ladder>>,
-    bytes: usize,
     /// Table clock at the last lookup (written under the table's lock).
     used: AtomicU64,
+}
+
+impl Entry {
+    /// Bytes held now: the inputs kept for comparison and the ladder, once built.
+    fn bytes(&self) -> usize {
+        let inputs = (self.inputs.m.len() + self.inputs.events.len()) * std::mem::size_of::<f64>();
+        inputs + self.ladder.get().map_or(0, |l| l.bytes())
+    }
 }
 
 #[derive(Default)]
 struct Table {
     buckets: HashMap<u64, Vec<Arc<Entry>>>,
-    bytes: usize,
     clock: u64,
+}
+
+impl Table {
+    fn bytes(&self) -> usize {
+        self.buckets.values().flatten().map(|e| e.bytes()).sum()
+    }
 }
 
 static TABLE: LazyLock<Mutex<Table>> = LazyLock::new(|| Mutex::new(Table::default()));
@@ -114,9 +126,7 @@ fn find_or_insert(
             }
         }
     }
-    let rows = (m.nrows() + events.nrows()).div_ceil(4) * 4;
-    let bytes = step_count(bits, grid.levels) * rows * m.ncols() * std::mem::size_of::<f64>();
-    while table.bytes + bytes > BUDGET && evict_oldest(&mut table) {}
+    while table.bytes() > BUDGET && evict_oldest(&mut table) {}
     let entry = Arc::new(Entry {
         inputs: Inputs {
             m: m.clone(),
@@ -126,10 +136,8 @@ fn find_or_insert(
             bits,
         },
         ladder: OnceLock::new(),
-        bytes,
         used: AtomicU64::new(clock),
     });
-    table.bytes += bytes;
     table
         .buckets
         .entry(hash)
@@ -153,8 +161,7 @@ fn evict_oldest(table: &mut Table) -> bool {
         return false;
     };
     if let Some(bucket) = table.buckets.get_mut(&hash) {
-        let gone = bucket.swap_remove(k);
-        table.bytes -= gone.bytes;
+        bucket.swap_remove(k);
         if bucket.is_empty() {
             table.buckets.remove(&hash);
         }
@@ -168,7 +175,6 @@ fn evict_oldest(table: &mut Table) -> bool {
 pub fn clear_shared_ladders() {
     let mut table = TABLE.lock().unwrap_or_else(|e| e.into_inner());
     table.buckets.clear();
-    table.bytes = 0;
 }
 
 /// 64-bit FNV-1a over every input's bits: picks the bucket; equality decides.

@@ -8,6 +8,7 @@
 //! which no state feeds. So Φ·z = A_x·x + A_u·u, where A_u·u stays the same from step
 //! to step while the sources hold still, and the rows of u never need A_x.
 
+use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::OnceLock;
 
 use nalgebra::DMatrix;
@@ -50,6 +51,8 @@ pub struct Ladder {
     /// Entry (j, d) at [`Ladder::index`]: [Φ_x; E·Φ; Φ_u] for a step of d·R^j ticks,
     /// `rows` × nz, column-major.
     entries: Vec<OnceLock<DMatrix<f64>>>,
+    /// Entries formed so far (for the memory the ladder holds).
+    formed: AtomicUsize,
 }
 
 impl Ladder {
@@ -88,12 +91,20 @@ impl Ladder {
             rungs,
             events: events.clone(),
             entries,
+            formed: AtomicUsize::new(0),
         }
     }
 
     /// Entries in the table (built or not).
     pub fn entry_count(&self) -> usize {
         self.entries.len()
+    }
+
+    /// Bytes of matrices the ladder holds now: its rungs and the entries formed so far.
+    pub fn bytes(&self) -> usize {
+        let rungs: usize = self.rungs.iter().map(|r| r.len()).sum();
+        let entries = self.formed.load(Ordering::Relaxed) * self.rows * self.nz;
+        (rungs + entries) * std::mem::size_of::<f64>()
     }
 
     /// Entry `e` (see [`Ladder::index`]), formed now if no step has read it before.
@@ -115,6 +126,7 @@ impl Ladder {
             } else {
                 self.times_rung(self.entry(j * per_digit + rest - 1), rung, &mut stacked);
             }
+            self.formed.fetch_add(1, Ordering::Relaxed);
             stacked
         })
     }
