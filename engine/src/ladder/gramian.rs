@@ -18,9 +18,10 @@ use crate::kernel;
 /// Σ_e L(h_e, S_e) over the entries e of `ladder` (state matrix `m`, grid `grid`),
 /// S_e = `sums(e)` (nz × nz, column-major), `None` for an entry no step took.
 ///
-/// Within digit j (a = R^j), Σ_d L(d·a, S_d) = L(a, Σ_i Φ_aⁱ G_i Φ_aⁱᵀ) with G_i the sum
-/// of S_d over d > i, formed by Horner's rule from the highest d: one congruence per
-/// digit value from the highest one used, and nothing for a digit no step used.
+/// An entry of d·a ticks (a = R^j) splits at its highest binary digit 2^b·a:
+/// L(d·a, S) = L(2^b·a, S) + L((d − 2^b)·a, Φ(2^b·a) S Φ(2^b·a)ᵀ), so its sum goes to
+/// the binary rungs of d's set bits, one congruence per further bit: a few per entry
+/// used, whatever the radix, and nothing for an entry no step took.
 pub(crate) fn step_gramian<'a>(
     ladder: &Ladder,
     m: &DMatrix<f64>,
@@ -31,26 +32,26 @@ pub(crate) fn step_gramian<'a>(
     let bits = ladder.bits;
     let per_digit = (1usize << bits) - 1;
     let mut at_rung: Vec<Option<DMatrix<f64>>> = vec![None; grid.levels as usize + 1];
-    for j in 0..ladder.entry_count().div_ceil(per_digit) {
-        let first = j * per_digit;
-        let last = (first + per_digit).min(ladder.entry_count());
-        let Some(top) = (first..last).rev().find(|&e| sums(e).is_some()) else {
-            continue;
-        };
-        let phi = ladder.phi(ladder.index(j as u32, 1));
-        let mut suffix = DMatrix::<f64>::zeros(nz, nz);
-        let mut horner: Option<DMatrix<f64>> = None;
-        for e in (first..=top).rev() {
-            if let Some(block) = sums(e) {
-                suffix += DMatrix::from_column_slice(nz, nz, block);
+    // Φ over 2^p ticks by binary level p, gathered from the table when first needed.
+    let mut powers: Vec<Option<DMatrix<f64>>> = vec![None; grid.levels as usize + 1];
+    let power = |p: usize| ladder.phi(ladder.index(p as u32 / bits, 1 << (p as u32 % bits)));
+    for e in 0..ladder.entry_count() {
+        let Some(block) = sums(e) else { continue };
+        let (j, d) = (e / per_digit, e % per_digit + 1);
+        let mut x = DMatrix::from_column_slice(nz, nz, block);
+        let mut rest = d;
+        loop {
+            let b = rest.ilog2() as usize;
+            let p = j * bits as usize + b;
+            rest -= 1 << b;
+            if rest == 0 {
+                add_to(&mut at_rung[p], x);
+                break;
             }
-            horner = Some(match horner {
-                Some(h) => &suffix + congruence(&phi, &h),
-                None => suffix.clone(),
-            });
-        }
-        if let Some(h) = horner {
-            add_to(&mut at_rung[j * bits as usize], h);
+            let phi = powers[p].get_or_insert_with(|| power(p));
+            let moved = congruence(phi, &x);
+            add_to(&mut at_rung[p], x);
+            x = moved;
         }
     }
     // From the top, L(2h, X) = L(h, X + Φ(h) X Φ(h)ᵀ).
@@ -60,9 +61,8 @@ pub(crate) fn step_gramian<'a>(
             add_to(&mut carry, x);
         }
         if let Some(x) = carry.take() {
-            let below = (p - 1) as u32;
-            let phi = ladder.phi(ladder.index(below / bits, 1 << (below % bits)));
-            let moved = congruence(&phi, &x);
+            let phi = powers[p - 1].get_or_insert_with(|| power(p - 1));
+            let moved = congruence(phi, &x);
             carry = Some(x + moved);
         }
     }
