@@ -4,8 +4,8 @@
 //! over every step of one table entry it is tr(Q·L(h, S)) with S = Σ z·zᵀ and
 //! L(h, X) = ∫₀ʰ Φ(s) X Φ(s)ᵀ ds. L does not depend on the meter: one L per topology
 //! serves every meter. And L folds down the ladder: splitting the integral at a,
-//! L(a + b, X) = L(a, X) + L(b, Φ(a) X Φ(a)ᵀ) (Φ(a + s) = Φ(s)Φ(a)), so the sums of a
-//! digit's entries go to that digit's rung, and from the top,
+//! L(a + b, X) = L(a, X) + L(b, Φ(a) X Φ(a)ᵀ) (Φ(a + s) = Φ(s)Φ(a)), so an entry's
+//! sum goes to the binary rungs of its length's set bits, and from the top,
 //! L(2h, X) = L(h, X + Φ(h) X Φ(h)ᵀ), every rung's sum ends in one integral over one
 //! tick, by its Taylor series ([`super::tick_gramian`]). A topology costs
 //! two products per rung when read, and nothing while stepping beyond the sums.
