@@ -1,12 +1,13 @@
-//! The traced probes' rows of each topology gathered into two small blocks (values,
-//! slopes) stored four rows at a time, so a trace point reads them in one pass over z, four rows
-//! to a register, instead of one dot product a row with its horizontal sum each.
+//! The traced probes' rows of each topology, gathered into two small blocks (values
+//! and slopes) stored four rows at a time, so a trace point reads them in one pass over
+//! z, four rows to a register, instead of one dot product per row, each with its own
+//! horizontal sum.
 //!
 //! The blocks give the same bits as [`TopologyData::value_at`] and
-//! [`TopologyData::slope`] row by row (`kernel::dots_block`), so a probe's value and
-//! the slope its extremum is bisected on do not depend on how its rows are read. A topology's blocks are
-//! gathered the first time a trace point falls in it, the same moment its matrices
-//! are built, and kept until the traced probes change.
+//! [`TopologyData::slope`] row by row (`kernel::dots_block`), so a probe's value, and
+//! the slope its extremum is bisected on, do not depend on how its rows are read. A
+//! topology's blocks are gathered the first time a trace point falls in it (the same
+//! moment its matrices are built) and kept until the traced probes change.
 
 use crate::kernel;
 use crate::system::TopologyData;
