@@ -335,6 +335,19 @@ with_avx! {
     pub(crate) fn pair_dots_block(a: &[f64], x: &[f64], out: &mut [f64]) = pair_dots_block_any;
 }
 
+/// Rows over x (each `n` long) laid out for [`dots_block`] and [`pair_dots_block`]:
+/// four rows at a time, group g holding column c's entries of rows 4g..4g+4 at 4c,
+/// zeros past the last row.
+pub(crate) fn rows_block<'a>(rows: impl ExactSizeIterator<Item = &'a [f64]>, n: usize) -> Vec<f64> {
+    let mut block = vec![0.0; rows.len().div_ceil(4) * 4 * n];
+    for (i, row) in rows.enumerate() {
+        for (c, &v) in row[..n].iter().enumerate() {
+            block[(i / 4) * 4 * n + 4 * c + i % 4] = v;
+        }
+    }
+    block
+}
+
 #[inline(always)]
 fn dots_block_any(a: &[f64], x: &[f64], out: &mut [f64]) {
     phased_block::<4, 16>(a, x, out, |p| (p[0] + p[2]) + (p[1] + p[3]));
@@ -345,8 +358,8 @@ fn pair_dots_block_any(a: &[f64], x: &[f64], out: &mut [f64]) {
     phased_block::<2, 8>(a, x, out, |p| p[0] + p[1]);
 }
 
-/// Rows over x in groups of four, each group `4·x.len()` values: column c's four
-/// entries at `4c` (a row past the last is zeros). Each row is summed as a dot
+/// Rows over x in groups of four as [`rows_block`] lays them out, each group
+/// `4·x.len()` values. Each row is summed as a dot
 /// product of `P` interleaved partial sums (column c into sum c mod P) joined by
 /// `join`, then the columns past the last whole group of P added in order: row by row
 /// the bits of [`dot_any`] (P = 4) and [`pair_dot_any`] (P = 2). `W` = 4·P.

@@ -163,17 +163,12 @@ impl TopologyData {
     }
 }
 
-/// Columns `rows` of `t` (each a row over z, stored contiguously) four rows at a
-/// time: group g holds column c's entries of rows 4g..4g+4 at 4c, zeros past the last.
+/// Columns `rows` of `t` (each a row over z, stored contiguously) as the rows of a
+/// `kernel::rows_block`.
 fn gather(t: &DMatrix<f64>, rows: &[usize]) -> Vec<f64> {
     let nz = t.nrows();
-    let mut block = vec![0.0; rows.len().div_ceil(4) * 4 * nz];
-    for (i, &r) in rows.iter().enumerate() {
-        for (c, &v) in t.column(r).iter().enumerate() {
-            block[(i / 4) * 4 * nz + 4 * c + i % 4] = v;
-        }
-    }
-    block
+    let columns = rows.iter().map(|&r| &t.as_slice()[r * nz..(r + 1) * nz]);
+    kernel::rows_block(columns, nz)
 }
 
 /// Bits per digit of the step table: radix 64. A step or an event search costs one

@@ -111,12 +111,8 @@ fn block_rows_give_the_bits_of_their_dots_row_by_row() {
     for cols in 1..=9 {
         for rows in [1usize, 3, 4, 5, 8, 11] {
             let row = |i: usize| -> Vec<f64> { (0..cols).map(|c| value(i * 37 + c)).collect() };
-            let mut block = vec![0.0; rows.div_ceil(4) * 4 * cols];
-            for i in 0..rows {
-                for (c, v) in row(i).into_iter().enumerate() {
-                    block[(i / 4) * 4 * cols + 4 * c + i % 4] = v;
-                }
-            }
+            let all: Vec<Vec<f64>> = (0..rows).map(row).collect();
+            let block = rows_block(all.iter().map(Vec::as_slice), cols);
             let x: Vec<f64> = (0..cols).map(|k| value(k + 500).sin()).collect();
             let (mut four, mut two) = (vec![f64::NAN; rows], vec![f64::NAN; rows]);
             dots_block(&block, &x, &mut four);
