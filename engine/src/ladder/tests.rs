@@ -156,7 +156,8 @@ fn meters_from_sums_match_van_loan_per_entry() {
     let (m, grid) = (mild_m(), converter_grid());
     let nz = m.nrows();
     let q = DMatrix::from_fn(nz, nz, |i, j| 1.0 / (1.0 + i as f64 + j as f64));
-    for bits in [1, 4] {
+    // Bits 6 is the table the runs use: digit values with up to six set bits.
+    for bits in [1, 4, 6] {
         let ladder = Ladder::build(&m, 5, &grid, &DMatrix::zeros(1, nz), bits);
         let entries = ladder.entry_count();
         let mut sums = vec![0.0; entries * nz * nz];
