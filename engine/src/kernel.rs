@@ -43,13 +43,6 @@ pub(crate) fn matvec_rows(a: &[f64], lda: usize, x: &[f64], y: &mut [f64]) {
     accumulate(a, lda, x, y);
 }
 
-/// y = b + the first `y.len()` rows of A·x (A as in [`matvec_rows`]): b first, then
-/// the columns in order (b is read where y's sums start, not copied into y first).
-#[inline]
-pub(crate) fn matvec_add(a: &[f64], lda: usize, x: &[f64], b: &[f64], y: &mut [f64]) {
-    add_into(a, lda, x, b, y);
-}
-
 with_avx! {
     /// y += the first `y.len()` rows of A·x, in blocks of 8 and 4 rows held in
     /// registers across all columns, so y is read and written once; each row adds its
@@ -59,9 +52,11 @@ with_avx! {
 }
 
 with_avx! {
-    /// y = b + the first `y.len()` rows of A·x, as [`accumulate`] onto b.
+    /// y = b + the first `y.len()` rows of A·x (A as in [`matvec_rows`]): b first, then
+    /// the columns in order, as [`accumulate`] onto b (b is read where y's sums start,
+    /// not copied into y first).
     #[inline]
-    fn add_into(a: &[f64], lda: usize, x: &[f64], b: &[f64], y: &mut [f64]) = add_into_any;
+    pub(crate) fn matvec_add(a: &[f64], lda: usize, x: &[f64], b: &[f64], y: &mut [f64]) = matvec_add_any;
 }
 
 #[inline(always)]
@@ -70,11 +65,11 @@ fn accumulate_any(a: &[f64], lda: usize, x: &[f64], y: &mut [f64]) {
 }
 
 #[inline(always)]
-fn add_into_any(a: &[f64], lda: usize, x: &[f64], b: &[f64], y: &mut [f64]) {
+fn matvec_add_any(a: &[f64], lda: usize, x: &[f64], b: &[f64], y: &mut [f64]) {
     rows_any(a, lda, x, Some(b), y);
 }
 
-/// The loops of [`accumulate`] and [`add_into`], for whatever instruction set the
+/// The loops of [`accumulate`] and [`matvec_add`], for whatever instruction set the
 /// caller has: each row starts from b's entry, or y's own without b.
 #[inline(always)]
 fn rows_any(a: &[f64], lda: usize, x: &[f64], b: Option<&[f64]>, y: &mut [f64]) {
